@@ -1,0 +1,242 @@
+//! Calibration: raw ADC counts to microvolts and nanoamps.
+//!
+//! The front-end is described by textbook relations: an ADC of `N` bits and
+//! reference `Vref` has an LSB of `Vref / 2^N` (the code-width convention of
+//! IEEE Std 1241); a divider scales by `R_bottom / (R_top + R_bottom)`; a shunt
+//! current is `V / R` after the amplifier's gain. Each channel ends up as a
+//! [`ChannelCal`]: a Q20 fixed-point scale and an offset.
+
+use gleaner_protocol::{Calibration, ChannelCal, ReportFlags, Sample};
+
+/// Fractional bits of [`ChannelCal::units_per_count_q20`].
+pub const SCALE_FRACTION_BITS: u32 = 20;
+
+/// One reading of the four channels as raw ADC counts.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct RawSample {
+    /// Counts of the input voltage channel.
+    pub input_voltage: u32,
+    /// Counts of the input current channel.
+    pub input_current: u32,
+    /// Counts of the output voltage channel.
+    pub output_voltage: u32,
+    /// Counts of the output current channel.
+    pub output_current: u32,
+}
+
+/// The ADC shared by the channels.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Adc {
+    /// Resolution in bits.
+    pub bits: u8,
+    /// Reference voltage in microvolts (full scale).
+    pub reference_uv: u32,
+}
+
+impl Adc {
+    /// Highest count the ADC can return, `2^bits - 1`.
+    pub const fn max_count(self) -> u32 {
+        match 1u32.checked_shl(self.bits as u32) {
+            Some(full) => full.saturating_sub(1),
+            None => u32::MAX,
+        }
+    }
+}
+
+/// `units_per_count * 2^20 = numerator * 2^20 / (2^bits * denominator)`, rounded.
+fn q20_scale(numerator: u128, denominator: u128, bits: u8) -> Option<u64> {
+    let scaled = numerator.checked_shl(SCALE_FRACTION_BITS)?;
+    let divisor = denominator.checked_shl(u32::from(bits))?;
+    if divisor == 0 {
+        return None;
+    }
+    let rounded = scaled.checked_add(divisor / 2)?.checked_div(divisor)?;
+    u64::try_from(rounded).ok().filter(|&q| q > 0)
+}
+
+/// A voltage channel read through a resistive divider (`r_top_ohm` from the
+/// signal to the ADC pin, `r_bottom_ohm` from the pin to ground). A direct
+/// connection is `r_top_ohm = 0`. None when a value is zero or the scale overflows.
+pub fn voltage_divider(adc: Adc, r_top_ohm: u32, r_bottom_ohm: u32) -> Option<ChannelCal> {
+    let total = u128::from(r_top_ohm).checked_add(u128::from(r_bottom_ohm))?;
+    let numerator = u128::from(adc.reference_uv).checked_mul(total)?;
+    let units_per_count_q20 = q20_scale(numerator, u128::from(r_bottom_ohm), adc.bits)?;
+    Some(ChannelCal { units_per_count_q20, offset: 0 })
+}
+
+/// A current channel: a shunt of `shunt_milliohm` whose voltage is amplified by
+/// `gain` before the ADC. Current in nA = shunt µV * 10^6 / (gain * shunt mΩ).
+pub fn current_shunt(adc: Adc, shunt_milliohm: u32, gain: u32) -> Option<ChannelCal> {
+    let numerator = u128::from(adc.reference_uv).checked_mul(1_000_000)?;
+    let denominator = u128::from(shunt_milliohm).checked_mul(u128::from(gain))?;
+    let units_per_count_q20 = q20_scale(numerator, denominator, adc.bits)?;
+    Some(ChannelCal { units_per_count_q20, offset: 0 })
+}
+
+/// A reference reading: the counts seen while a known value was applied.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct ReferencePoint {
+    /// Counts the ADC returned.
+    pub counts: u32,
+    /// The value applied, in channel units (µV or nA).
+    pub value: u32,
+}
+
+/// Two-point calibration: the line through two reference readings gives the
+/// gain and offset. None when the points do not rise, or the result is out of range.
+pub fn two_point(low: ReferencePoint, high: ReferencePoint) -> Option<ChannelCal> {
+    let count_span = high.counts.checked_sub(low.counts).filter(|&d| d > 0)?;
+    let value_span = high.value.checked_sub(low.value).filter(|&d| d > 0)?;
+    let scaled = u128::from(value_span).checked_shl(SCALE_FRACTION_BITS)?;
+    let count_span = u128::from(count_span);
+    let q20 = scaled.checked_add(count_span / 2)?.checked_div(count_span)?;
+    let q20 = u64::try_from(q20).ok()?;
+    let low_scaled = i128::from(scale_counts(q20, low.counts)?);
+    let offset = i32::try_from(i128::from(low.value).checked_sub(low_scaled)?).ok()?;
+    Some(ChannelCal { units_per_count_q20: q20, offset })
+}
+
+/// `round(counts * q20 / 2^20)`, None on overflow.
+fn scale_counts(units_per_count_q20: u64, counts: u32) -> Option<u64> {
+    let product = u64::from(counts).checked_mul(units_per_count_q20)?;
+    Some(product.checked_add(1 << (SCALE_FRACTION_BITS - 1))? >> SCALE_FRACTION_BITS)
+}
+
+/// Applies one channel's calibration. Channels are unipolar: a result below
+/// zero (offset correction of a near-zero reading) reads 0; a result beyond
+/// `u32` saturates and sets the returned out-of-range flag.
+pub fn apply(cal: &ChannelCal, counts: u32) -> (u32, bool) {
+    let Some(scaled) = scale_counts(cal.units_per_count_q20, counts) else {
+        return (u32::MAX, true);
+    };
+    let value = i128::from(scaled).saturating_add(i128::from(cal.offset));
+    if value < 0 {
+        (0, false)
+    } else {
+        match u32::try_from(value) {
+            Ok(v) => (v, false),
+            Err(_) => (u32::MAX, true),
+        }
+    }
+}
+
+/// Calibrates all four channels and flags clipping (a count at or above the
+/// ADC's top code) and out-of-range results. A count of 0 is not flagged: on a
+/// unipolar front-end it is a real zero (a dark solar cell).
+pub fn calibrate(cal: &Calibration, raw: &RawSample) -> (Sample, ReportFlags) {
+    let top = Adc { bits: cal.adc_bits, reference_uv: 0 }.max_count();
+    let mut flags = ReportFlags::default();
+    let mut channel = |cal: &ChannelCal, counts: u32| {
+        if counts >= top {
+            flags.insert(ReportFlags::ADC_CLIPPED);
+        }
+        let (value, out_of_range) = apply(cal, counts);
+        if out_of_range {
+            flags.insert(ReportFlags::OUT_OF_RANGE);
+        }
+        value
+    };
+    let sample = Sample {
+        input_uv: channel(&cal.input_voltage, raw.input_voltage),
+        input_na: channel(&cal.input_current, raw.input_current),
+        output_uv: channel(&cal.output_voltage, raw.output_voltage),
+        output_na: channel(&cal.output_current, raw.output_current),
+    };
+    (sample, flags)
+}
+
+/// The counts a channel would read for `value` (inverse of [`apply`], rounded,
+/// clamped to `max_count`). Used by simulators and tests to synthesise readings.
+pub fn counts_for(cal: &ChannelCal, value: u32, max_count: u32) -> u32 {
+    let shifted = i128::from(value).saturating_sub(i128::from(cal.offset));
+    if shifted <= 0 || cal.units_per_count_q20 == 0 {
+        return 0;
+    }
+    let q = i128::from(cal.units_per_count_q20);
+    let counts = shifted
+        .saturating_mul(1 << SCALE_FRACTION_BITS)
+        .saturating_add(q / 2)
+        .checked_div(q)
+        .unwrap_or(0);
+    u32::try_from(counts).unwrap_or(u32::MAX).min(max_count)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const ADC12: Adc = Adc { bits: 12, reference_uv: 3_300_000 };
+
+    fn units_per_count(cal: &ChannelCal) -> f64 {
+        cal.units_per_count_q20 as f64 / (1u64 << 20) as f64
+    }
+
+    #[test]
+    fn lsb_is_reference_over_two_to_the_bits() {
+        // IEEE Std 1241 code width (from memory): 12 bit, 3.3 V -> 0.8056640625 mV.
+        let direct = voltage_divider(ADC12, 0, 1).unwrap();
+        assert!((units_per_count(&direct) - 805.6640625).abs() < 1e-3);
+        // 16 bit at 2.048 V -> 31.25 uV exactly.
+        let adc16 = Adc { bits: 16, reference_uv: 2_048_000 };
+        assert_eq!(voltage_divider(adc16, 0, 1).unwrap().units_per_count_q20, 32_768_000); // 31.25 uV * 2^20
+    }
+
+    #[test]
+    fn divider_scales_by_total_over_bottom() {
+        // Textbook divider: 1 MOhm over 470 kOhm, ratio 0.319728; 6 V at the top
+        // gives 1.918367 V at the pin, i.e. 2381.1 counts of 805.66 uV.
+        let cal = voltage_divider(ADC12, 1_000_000, 470_000).unwrap();
+        let expected = 805.6640625 / 0.319_728_0;
+        assert!((units_per_count(&cal) - expected).abs() / expected < 1e-6);
+        let counts = counts_for(&cal, 6_000_000, ADC12.max_count());
+        assert_eq!(counts, 2381);
+        let (uv, flagged) = apply(&cal, counts);
+        assert!(!flagged);
+        assert!((i64::from(uv) - 6_000_000).abs() < 2_520, "one LSB of the divided channel");
+    }
+
+    #[test]
+    fn shunt_current_is_voltage_over_resistance() {
+        // Common practice: 12 bit, 3.3 V, gain 50, 1 Ohm -> 16.113 uA per LSB.
+        let cal = current_shunt(ADC12, 1_000, 50).unwrap();
+        assert!((units_per_count(&cal) - 16_113.281_25).abs() < 1e-2);
+        assert_eq!(apply(&cal, 100).0, 1_611_328);
+    }
+
+    #[test]
+    fn two_point_recovers_gain_and_offset() {
+        let cal = two_point(
+            ReferencePoint { counts: 100, value: 150_000 },
+            ReferencePoint { counts: 3_100, value: 2_550_000 },
+        )
+        .unwrap();
+        // Gain 800 uV/count, offset 150000 - 80000 = 70000 uV.
+        assert_eq!(cal.units_per_count_q20, 800 << 20);
+        assert_eq!(cal.offset, 70_000);
+        assert_eq!(apply(&cal, 1_600).0, 1_350_000);
+        assert_eq!(two_point(
+            ReferencePoint { counts: 5, value: 10 },
+            ReferencePoint { counts: 5, value: 20 }), None);
+    }
+
+    #[test]
+    fn negative_results_read_zero_and_overflow_is_flagged() {
+        let cal = ChannelCal { units_per_count_q20: 1 << 20, offset: -50 };
+        assert_eq!(apply(&cal, 10), (0, false));
+        let huge = ChannelCal { units_per_count_q20: u64::MAX, offset: 0 };
+        assert_eq!(apply(&huge, 4_000), (u32::MAX, true));
+    }
+
+    #[test]
+    fn clipping_is_flagged_at_the_top_code_only() {
+        let cal = crate::config::default_config().calibration;
+        let (_, flags) = calibrate(&cal, &RawSample::default());
+        assert!(!flags.contains(ReportFlags::ADC_CLIPPED));
+        let raw = RawSample { input_voltage: 4095, ..RawSample::default() };
+        let (_, flags) = calibrate(&cal, &raw);
+        assert!(flags.contains(ReportFlags::ADC_CLIPPED));
+    }
+}

@@ -1,0 +1,160 @@
+//! Default configuration and the validation rules the node enforces.
+
+use gleaner_protocol::{Calibration, Channel, ChannelCal, NodeConfig, Refusal, Thresholds};
+
+use crate::calibration::{current_shunt, voltage_divider, Adc};
+
+/// The ADC assumed by the defaults: 12 bits, 3.3 V reference.
+pub const DEFAULT_ADC: Adc = Adc { bits: 12, reference_uv: 3_300_000 };
+
+/// Shortest accepted report interval.
+pub const MIN_REPORT_INTERVAL_MS: u32 = 100;
+/// Longest accepted report interval (one hour).
+pub const MAX_REPORT_INTERVAL_MS: u32 = 3_600_000;
+/// Longest accepted debounce time.
+pub const MAX_DEBOUNCE_MS: u32 = 60_000;
+/// Longest accepted timeout or horizon (one day).
+pub const MAX_TIMEOUT_MS: u32 = 86_400_000;
+/// Largest accepted sag margin (1 V).
+pub const MAX_SAG_MARGIN_UV: u32 = 1_000_000;
+/// Largest accepted storage capacitance (1000 F).
+pub const MAX_STORAGE_UF: u32 = 1_000_000_000;
+/// Largest accepted channel scale: 10^9 units per count, in Q20.
+pub const MAX_SCALE_Q20: u64 = 1_000_000_000 << 20;
+
+const fn fallback_cal() -> ChannelCal {
+    ChannelCal { units_per_count_q20: 1 << 20, offset: 0 }
+}
+
+/// The front-end the defaults describe: input read directly (up to 3.3 V),
+/// input current through 1 Ω at gain 50 (16.1 µA per count), output through a
+/// 1 MΩ / 1 MΩ divider (up to 6.6 V), output current through 10 Ω at gain 50.
+pub fn default_calibration() -> Calibration {
+    Calibration {
+        adc_bits: DEFAULT_ADC.bits,
+        input_voltage: voltage_divider(DEFAULT_ADC, 0, 1).unwrap_or(fallback_cal()),
+        input_current: current_shunt(DEFAULT_ADC, 1_000, 50).unwrap_or(fallback_cal()),
+        output_voltage: voltage_divider(DEFAULT_ADC, 1_000_000, 1_000_000)
+            .unwrap_or(fallback_cal()),
+        output_current: current_shunt(DEFAULT_ADC, 10_000, 50).unwrap_or(fallback_cal()),
+    }
+}
+
+/// Thresholds for a single-transistor or small boost stage: it starts near
+/// 0.8 V and holds down to about 0.7 V (a silicon base-emitter junction needs
+/// about 0.6 to 0.7 V: common practice).
+pub const DEFAULT_THRESHOLDS: Thresholds = Thresholds {
+    start_uv: 800_000,
+    hold_uv: 700_000,
+    sag_margin_uv: 50_000,
+    output_up_uv: 2_000_000,
+    output_down_uv: 1_600_000,
+    debounce_ms: 200,
+    cold_start_timeout_ms: 10_000,
+    forecast_horizon_ms: 60_000,
+};
+
+/// The configuration a node starts with when nothing valid is stored.
+pub fn default_config() -> NodeConfig {
+    NodeConfig {
+        calibration: default_calibration(),
+        thresholds: DEFAULT_THRESHOLDS,
+        report_interval_ms: 1_000,
+        output_storage_uf: 0,
+        load_restore_ms: 30_000,
+    }
+}
+
+/// Checks every rule; the first broken one is returned as the refusal reason.
+pub fn validate(config: &NodeConfig) -> Result<(), Refusal> {
+    let cal = &config.calibration;
+    if !(8..=24).contains(&cal.adc_bits) {
+        return Err(Refusal::AdcBitsOutOfRange);
+    }
+    for channel in Channel::ALL {
+        let scale = cal.channel(channel).units_per_count_q20;
+        if scale == 0 || scale > MAX_SCALE_Q20 {
+            return Err(Refusal::ChannelScaleOutOfRange(channel));
+        }
+    }
+    let t = &config.thresholds;
+    if t.hold_uv >= t.start_uv {
+        return Err(Refusal::HoldNotBelowStart);
+    }
+    if t.output_down_uv >= t.output_up_uv {
+        return Err(Refusal::OutputThresholdsInverted);
+    }
+    if t.sag_margin_uv > t.hold_uv || t.sag_margin_uv > MAX_SAG_MARGIN_UV {
+        return Err(Refusal::SagMarginOutOfRange);
+    }
+    if t.debounce_ms > MAX_DEBOUNCE_MS {
+        return Err(Refusal::DebounceOutOfRange);
+    }
+    let timeouts = [t.cold_start_timeout_ms, t.forecast_horizon_ms, config.load_restore_ms];
+    if timeouts.iter().any(|&ms| ms == 0 || ms > MAX_TIMEOUT_MS) {
+        return Err(Refusal::TimeoutOutOfRange);
+    }
+    if !(MIN_REPORT_INTERVAL_MS..=MAX_REPORT_INTERVAL_MS).contains(&config.report_interval_ms) {
+        return Err(Refusal::ReportIntervalOutOfRange);
+    }
+    if config.output_storage_uf > MAX_STORAGE_UF {
+        return Err(Refusal::StorageCapacitanceOutOfRange);
+    }
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn defaults_are_valid() {
+        assert_eq!(validate(&default_config()), Ok(()));
+    }
+
+    /// Every rule, with the smallest change that breaks it.
+    #[test]
+    fn each_rule_refuses_its_bad_case_with_its_reason() {
+        type Breaker = fn(&mut NodeConfig);
+        let cases: [(Breaker, Refusal); 14] = [
+            (|c| c.calibration.adc_bits = 7, Refusal::AdcBitsOutOfRange),
+            (|c| c.calibration.adc_bits = 25, Refusal::AdcBitsOutOfRange),
+            (
+                |c| c.calibration.input_current.units_per_count_q20 = 0,
+                Refusal::ChannelScaleOutOfRange(Channel::InputCurrent),
+            ),
+            (
+                |c| c.calibration.output_voltage.units_per_count_q20 = MAX_SCALE_Q20 + 1,
+                Refusal::ChannelScaleOutOfRange(Channel::OutputVoltage),
+            ),
+            (|c| c.thresholds.hold_uv = c.thresholds.start_uv, Refusal::HoldNotBelowStart),
+            (
+                |c| c.thresholds.output_down_uv = c.thresholds.output_up_uv,
+                Refusal::OutputThresholdsInverted,
+            ),
+            (|c| c.thresholds.sag_margin_uv = c.thresholds.hold_uv + 1, Refusal::SagMarginOutOfRange),
+            (|c| c.thresholds.debounce_ms = MAX_DEBOUNCE_MS + 1, Refusal::DebounceOutOfRange),
+            (|c| c.thresholds.cold_start_timeout_ms = 0, Refusal::TimeoutOutOfRange),
+            (|c| c.thresholds.forecast_horizon_ms = MAX_TIMEOUT_MS + 1, Refusal::TimeoutOutOfRange),
+            (|c| c.load_restore_ms = 0, Refusal::TimeoutOutOfRange),
+            (|c| c.report_interval_ms = 99, Refusal::ReportIntervalOutOfRange),
+            (|c| c.report_interval_ms = MAX_REPORT_INTERVAL_MS + 1, Refusal::ReportIntervalOutOfRange),
+            (|c| c.output_storage_uf = MAX_STORAGE_UF + 1, Refusal::StorageCapacitanceOutOfRange),
+        ];
+        for (break_it, reason) in cases {
+            let mut config = default_config();
+            break_it(&mut config);
+            assert_eq!(validate(&config), Err(reason));
+        }
+    }
+
+    #[test]
+    fn edges_of_ranges_are_accepted() {
+        let mut c = default_config();
+        c.report_interval_ms = MIN_REPORT_INTERVAL_MS;
+        c.thresholds.debounce_ms = MAX_DEBOUNCE_MS;
+        c.thresholds.hold_uv = c.thresholds.start_uv - 1;
+        c.output_storage_uf = MAX_STORAGE_UF;
+        assert_eq!(validate(&c), Ok(()));
+    }
+}

@@ -1,0 +1,267 @@
+//! The cutoff state machine: what the converter is doing and why it changed.
+//!
+//! Every sample is classified against the thresholds; a condition that asks for
+//! another state must hold without a break for `debounce_ms` before the state
+//! changes. The start threshold sits above the hold threshold (hysteresis), so
+//! a converter that stopped for lack of input restarts only once the input has
+//! really come back.
+
+use gleaner_protocol::{CutoffState, Event, Thresholds, TransitionCause};
+
+/// What the state machine looks at for one sample.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Observation {
+    /// Harvester voltage.
+    pub input_uv: u32,
+    /// Output (load or storage) voltage.
+    pub output_uv: u32,
+    /// Latest forecast of time until the input falls to the hold threshold.
+    pub input_cutoff_in_ms: Option<u32>,
+}
+
+/// The state a sample asks for in `state`, with the reason, or None to stay.
+/// Input starvation is checked first, then a fault, then the milder conditions.
+pub fn wanted_transition(
+    state: CutoffState,
+    time_in_state_ms: u64,
+    seen: &Observation,
+    t: &Thresholds,
+) -> Option<(CutoffState, TransitionCause)> {
+    use CutoffState::*;
+    use TransitionCause::*;
+    let input_low = seen.input_uv < t.hold_uv;
+    let input_near = seen.input_uv < t.hold_uv.saturating_add(t.sag_margin_uv);
+    let can_start = seen.input_uv >= t.start_uv;
+    let output_up = seen.output_uv >= t.output_up_uv;
+    let output_down = seen.output_uv < t.output_down_uv;
+    let forecast_short = seen
+        .input_cutoff_in_ms
+        .is_some_and(|ms| ms <= t.forecast_horizon_ms);
+    match state {
+        Idle if output_up && !input_low => Some((Harvesting, OutputUp)),
+        Idle if can_start => Some((ColdStart, InputAboveStart)),
+        ColdStart if input_low => Some((Idle, InputBelowHold)),
+        ColdStart if output_up => Some((Harvesting, OutputUp)),
+        ColdStart if time_in_state_ms >= u64::from(t.cold_start_timeout_ms) => {
+            Some((Stalled, ColdStartTimeout))
+        }
+        Harvesting | Sagging if input_low => Some((CutOff, InputBelowHold)),
+        Harvesting | Sagging if output_down => Some((Stalled, OutputCollapsed)),
+        Harvesting if input_near => Some((Sagging, InputNearHold)),
+        Harvesting if forecast_short => Some((Sagging, ForecastUnderHorizon)),
+        Sagging if !input_near && !forecast_short => Some((Harvesting, Recovered)),
+        CutOff if can_start => Some((ColdStart, InputAboveStart)),
+        Stalled if input_low => Some((CutOff, InputBelowHold)),
+        Stalled if output_up => Some((Harvesting, Recovered)),
+        _ => None,
+    }
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+struct Pending {
+    to: CutoffState,
+    cause: TransitionCause,
+    since_ms: u64,
+}
+
+/// The debounced state machine.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct CutoffDetector {
+    state: CutoffState,
+    entered_ms: u64,
+    pending: Option<Pending>,
+}
+
+impl Default for CutoffDetector {
+    fn default() -> Self {
+        Self::new(0)
+    }
+}
+
+impl CutoffDetector {
+    /// Starts in `Idle` at `now_ms`.
+    pub const fn new(now_ms: u64) -> Self {
+        CutoffDetector { state: CutoffState::Idle, entered_ms: now_ms, pending: None }
+    }
+
+    /// The present state.
+    pub const fn state(&self) -> CutoffState {
+        self.state
+    }
+
+    /// When the present state was entered.
+    pub const fn entered_ms(&self) -> u64 {
+        self.entered_ms
+    }
+
+    /// Classifies one observation at `now_ms`; returns the event when the state changes.
+    pub fn update(&mut self, now_ms: u64, seen: &Observation, t: &Thresholds) -> Option<Event> {
+        let in_state = now_ms.saturating_sub(self.entered_ms);
+        let Some((to, cause)) = wanted_transition(self.state, in_state, seen, t) else {
+            self.pending = None;
+            return None;
+        };
+        let pending = match self.pending {
+            Some(p) if p.to == to => p,
+            _ => Pending { to, cause, since_ms: now_ms },
+        };
+        if now_ms.saturating_sub(pending.since_ms) < u64::from(t.debounce_ms) {
+            self.pending = Some(pending);
+            return None;
+        }
+        let event = Event {
+            from: self.state,
+            to,
+            cause: pending.cause,
+            input_uv: seen.input_uv,
+            output_uv: seen.output_uv,
+        };
+        self.state = to;
+        self.entered_ms = now_ms;
+        self.pending = None;
+        Some(event)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::config::DEFAULT_THRESHOLDS as T;
+    use CutoffState::*;
+    use TransitionCause::*;
+
+    /// Input classes against the default thresholds (start 0.8 V, hold 0.7 V,
+    /// margin 50 mV, output up 2.0 V, down 1.6 V).
+    const DEAD: u32 = 100_000;
+    const LOW: u32 = 650_000; // below hold
+    const NEAR: u32 = 720_000; // above hold, inside the sag margin
+    const MID: u32 = 770_000; // between hold + margin and start
+    const GOOD: u32 = 1_000_000; // above start
+    const OUT_UP: u32 = 2_500_000;
+    const OUT_MID: u32 = 1_800_000;
+    const OUT_DOWN: u32 = 1_000_000;
+
+    fn obs(input_uv: u32, output_uv: u32) -> Observation {
+        Observation { input_uv, output_uv, input_cutoff_in_ms: None }
+    }
+
+    /// The full table: every state against every input class.
+    #[test]
+    fn transition_table() {
+        let o = |i, out| obs(i, out);
+        type Row = (CutoffState, Observation, Option<(CutoffState, TransitionCause)>);
+        let cases: &[Row] = &[
+            (Idle, o(DEAD, OUT_DOWN), None),
+            (Idle, o(MID, OUT_DOWN), None),
+            (Idle, o(GOOD, OUT_DOWN), Some((ColdStart, InputAboveStart))),
+            (Idle, o(GOOD, OUT_UP), Some((Harvesting, OutputUp))),
+            (Idle, o(LOW, OUT_UP), None),
+            (ColdStart, o(GOOD, OUT_DOWN), None),
+            (ColdStart, o(MID, OUT_MID), None),
+            (ColdStart, o(LOW, OUT_DOWN), Some((Idle, InputBelowHold))),
+            (ColdStart, o(GOOD, OUT_UP), Some((Harvesting, OutputUp))),
+            (Harvesting, o(GOOD, OUT_UP), None),
+            (Harvesting, o(MID, OUT_MID), None),
+            (Harvesting, o(NEAR, OUT_UP), Some((Sagging, InputNearHold))),
+            (Harvesting, o(LOW, OUT_UP), Some((CutOff, InputBelowHold))),
+            (Harvesting, o(GOOD, OUT_DOWN), Some((Stalled, OutputCollapsed))),
+            (Harvesting, o(LOW, OUT_DOWN), Some((CutOff, InputBelowHold))),
+            (Sagging, o(NEAR, OUT_UP), None),
+            (Sagging, o(MID, OUT_UP), Some((Harvesting, Recovered))),
+            (Sagging, o(LOW, OUT_UP), Some((CutOff, InputBelowHold))),
+            (Sagging, o(NEAR, OUT_DOWN), Some((Stalled, OutputCollapsed))),
+            (CutOff, o(LOW, OUT_DOWN), None),
+            (CutOff, o(MID, OUT_UP), None),
+            (CutOff, o(GOOD, OUT_DOWN), Some((ColdStart, InputAboveStart))),
+            (Stalled, o(GOOD, OUT_DOWN), None),
+            (Stalled, o(GOOD, OUT_UP), Some((Harvesting, Recovered))),
+            (Stalled, o(LOW, OUT_DOWN), Some((CutOff, InputBelowHold))),
+        ];
+        for (state, seen, expected) in cases {
+            assert_eq!(wanted_transition(*state, 0, seen, &T), *expected, "{state:?} {seen:?}");
+        }
+    }
+
+    #[test]
+    fn forecast_under_horizon_sags_and_clears() {
+        let mut seen = obs(GOOD, OUT_UP);
+        seen.input_cutoff_in_ms = Some(T.forecast_horizon_ms);
+        assert_eq!(wanted_transition(Harvesting, 0, &seen, &T), Some((Sagging, ForecastUnderHorizon)));
+        assert_eq!(wanted_transition(Sagging, 0, &seen, &T), None);
+        seen.input_cutoff_in_ms = Some(T.forecast_horizon_ms + 1);
+        assert_eq!(wanted_transition(Harvesting, 0, &seen, &T), None);
+        assert_eq!(wanted_transition(Sagging, 0, &seen, &T), Some((Harvesting, Recovered)));
+    }
+
+    #[test]
+    fn cold_start_timeout_edges() {
+        let seen = obs(GOOD, OUT_MID);
+        let timeout = u64::from(T.cold_start_timeout_ms);
+        assert_eq!(wanted_transition(ColdStart, timeout - 1, &seen, &T), None);
+        assert_eq!(wanted_transition(ColdStart, timeout, &seen, &T), Some((Stalled, ColdStartTimeout)));
+    }
+
+    #[test]
+    fn hysteresis_between_hold_and_start() {
+        // Input at 0.75 V: above hold, below start. A running converter keeps
+        // running; a stopped one stays stopped.
+        let seen = obs(750_000, OUT_UP);
+        assert_eq!(wanted_transition(Harvesting, 0, &seen, &T), None);
+        assert_eq!(wanted_transition(CutOff, 0, &obs(750_000, OUT_DOWN), &T), None);
+        // Exactly at the thresholds.
+        assert_eq!(wanted_transition(CutOff, 0, &obs(T.start_uv, OUT_DOWN), &T).map(|w| w.0), Some(ColdStart));
+        assert_eq!(wanted_transition(CutOff, 0, &obs(T.start_uv - 1, OUT_DOWN), &T), None);
+        assert_eq!(wanted_transition(Sagging, 0, &obs(T.hold_uv, OUT_UP), &T), None);
+        assert_eq!(wanted_transition(Sagging, 0, &obs(T.hold_uv - 1, OUT_UP), &T).map(|w| w.0), Some(CutOff));
+    }
+
+    fn harvesting_detector() -> CutoffDetector {
+        CutoffDetector { state: Harvesting, entered_ms: 0, pending: None }
+    }
+
+    #[test]
+    fn debounce_one_tick_short_exactly_at_and_past() {
+        let low = obs(LOW, OUT_UP);
+        let mut d = harvesting_detector();
+        let start = 1_000;
+        let debounce = u64::from(T.debounce_ms);
+        for t in start..start + debounce {
+            assert_eq!(d.update(t, &low, &T), None, "one tick short at {t}");
+        }
+        let event = d.update(start + debounce, &low, &T).expect("exactly at the debounce time");
+        assert_eq!((event.from, event.to, event.cause), (Harvesting, CutOff, InputBelowHold));
+        assert_eq!(d.state(), CutOff);
+        assert_eq!(d.entered_ms(), start + debounce);
+        // One tick past a fresh condition in another detector also switches.
+        let mut late = harvesting_detector();
+        late.update(0, &low, &T);
+        assert!(late.update(debounce + 1, &low, &T).is_some());
+    }
+
+    #[test]
+    fn a_break_in_the_condition_restarts_the_debounce() {
+        let low = obs(LOW, OUT_UP);
+        let good = obs(GOOD, OUT_UP);
+        let mut d = harvesting_detector();
+        let debounce = u64::from(T.debounce_ms);
+        d.update(0, &low, &T);
+        d.update(debounce - 1, &good, &T);
+        assert_eq!(d.update(debounce, &low, &T), None);
+        assert_eq!(d.update(2 * debounce - 1, &low, &T), None);
+        assert!(d.update(2 * debounce, &low, &T).is_some());
+    }
+
+    #[test]
+    fn a_changed_target_restarts_the_debounce() {
+        // Near hold first (-> Sagging), then below hold (-> CutOff): the CutOff
+        // debounce counts from when the input went below hold.
+        let mut d = harvesting_detector();
+        let debounce = u64::from(T.debounce_ms);
+        d.update(0, &obs(NEAR, OUT_UP), &T);
+        d.update(debounce / 2, &obs(LOW, OUT_UP), &T);
+        assert_eq!(d.update(debounce, &obs(LOW, OUT_UP), &T), None);
+        let e = d.update(debounce / 2 + debounce, &obs(LOW, OUT_UP), &T).unwrap();
+        assert_eq!(e.to, CutOff);
+    }
+}

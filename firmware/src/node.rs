@@ -1,0 +1,436 @@
+//! The `Node`: calibration, metering, state machine, forecast, aggregation and
+//! command handling behind one small surface that a board binary calls.
+
+use embedded_hal::digital::OutputPin;
+use embedded_storage::Storage;
+use gleaner_protocol::{
+    encode_frame, Command, ConfigSource, CutoffState, Decoder, DecoderStats, Downlink,
+    EnergyTotals, FirmwareVersion, Hello, NodeConfig, Outcome, Refusal, Reply, Report, Sample,
+    SampleBlock, Uplink, UplinkBody, MAX_BURST_SAMPLES, MAX_DOWNLINK_FRAME_LEN,
+    MAX_UPLINK_FRAME_LEN, PROTOCOL_VERSION, SAMPLES_PER_BLOCK,
+};
+use heapless::{Deque, Vec};
+
+use crate::calibration::{calibrate, RawSample};
+use crate::config::validate;
+use crate::config_store;
+use crate::cutoff::{CutoffDetector, Observation};
+use crate::forecast::{storage_runout_ms, InputTrend};
+use crate::interval::IntervalStats;
+use crate::load_shed::LoadShedder;
+use crate::meter::Meter;
+
+/// Messages waiting to be sent. When full, the newest message is dropped and
+/// counted; its sequence number is still used, so the host sees the loss.
+pub const OUTBOX_LEN: usize = 8;
+
+const fn parse_u8(s: &str) -> u8 {
+    let bytes = s.as_bytes();
+    let mut value: u8 = 0;
+    let mut i = 0;
+    while let Some(&byte) = bytes.split_at(i).1.first() {
+        value = value.wrapping_mul(10).wrapping_add(byte.wrapping_sub(b'0'));
+        i = i.saturating_add(1);
+    }
+    value
+}
+
+/// This crate's version, as sent in `Hello`.
+pub const FIRMWARE_VERSION: FirmwareVersion = FirmwareVersion {
+    major: parse_u8(env!("CARGO_PKG_VERSION_MAJOR")),
+    minor: parse_u8(env!("CARGO_PKG_VERSION_MINOR")),
+    patch: parse_u8(env!("CARGO_PKG_VERSION_PATCH")),
+};
+
+/// What a board hands to [`Node::new`].
+#[derive(Debug)]
+pub struct NodeParts<P, S> {
+    /// Configuration to start with (usually from [`config_store::load`]).
+    pub config: NodeConfig,
+    /// Where it came from.
+    pub config_source: ConfigSource,
+    /// A value that differs on every boot (a counter kept in flash, or random).
+    pub boot_id: u32,
+    /// Time between two samples, for `Hello` and burst blocks.
+    pub sample_period_us: u32,
+    /// Load switch, high = load on.
+    pub load_pin: P,
+    /// Non-volatile storage for accepted configurations.
+    pub storage: S,
+}
+
+/// Counters of the node's own troubles.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct NodeStats {
+    /// Messages dropped because the outbox was full.
+    pub dropped_messages: u32,
+    /// Failed conversions reported by the board.
+    pub sampler_errors: u32,
+}
+
+#[derive(Debug, Clone)]
+struct Burst {
+    next_index: u32,
+    remaining: u32,
+    block: Vec<gleaner_protocol::Sample, SAMPLES_PER_BLOCK>,
+}
+
+#[derive(Debug, Clone, Copy, Default)]
+struct IntervalStart {
+    t_us: u64,
+    drawn_nj: u64,
+    delivered_nj: u64,
+    stored_level_nj: i64,
+}
+
+/// The node. `P` drives the load switch, `S` keeps the configuration.
+#[derive(Debug)]
+pub struct Node<P, S> {
+    config: NodeConfig,
+    config_source: ConfigSource,
+    boot_id: u32,
+    sample_period_us: u32,
+    storage: S,
+    shedder: LoadShedder<P>,
+    detector: CutoffDetector,
+    meter: Meter,
+    trend: InputTrend,
+    interval: IntervalStats,
+    interval_start: Option<IntervalStart>,
+    stored_level_nj: i64,
+    boot_stored_level_nj: Option<i64>,
+    reset_baseline: EnergyTotals,
+    input_cutoff_in_ms: Option<u32>,
+    last_t_us: Option<u64>,
+    last_sample: Sample,
+    now_us: u64,
+    seq: u16,
+    outbox: Deque<Uplink, OUTBOX_LEN>,
+    rx: Decoder<Downlink, MAX_DOWNLINK_FRAME_LEN>,
+    burst: Option<Burst>,
+    stats: NodeStats,
+}
+
+/// Stored energy level `C V² / 2` in nJ (µF µV² = 1e-18 J).
+fn storage_level_nj(c_uf: u32, v_uv: u32) -> i64 {
+    let v2 = u128::from(v_uv).saturating_mul(u128::from(v_uv));
+    let nj = u128::from(c_uf).saturating_mul(v2) / 2_000_000_000;
+    i64::try_from(nj).unwrap_or(i64::MAX)
+}
+
+impl<P: OutputPin, S: Storage> Node<P, S> {
+    /// A node at boot; its `Hello` is the first message queued.
+    pub fn new(parts: NodeParts<P, S>) -> Self {
+        let mut node = Node {
+            config: parts.config,
+            config_source: parts.config_source,
+            boot_id: parts.boot_id,
+            sample_period_us: parts.sample_period_us,
+            storage: parts.storage,
+            shedder: LoadShedder::new(parts.load_pin),
+            detector: CutoffDetector::new(0),
+            meter: Meter::new(),
+            trend: InputTrend::new(),
+            interval: IntervalStats::default(),
+            interval_start: None,
+            stored_level_nj: 0,
+            boot_stored_level_nj: None,
+            reset_baseline: EnergyTotals::default(),
+            input_cutoff_in_ms: None,
+            last_t_us: None,
+            last_sample: Sample::default(),
+            now_us: 0,
+            seq: 0,
+            outbox: Deque::new(),
+            rx: Decoder::new(),
+            burst: None,
+            stats: NodeStats::default(),
+        };
+        node.enqueue_hello();
+        node
+    }
+
+    /// Processes one reading of the four channels taken at `t_us` (microseconds
+    /// since boot, from the board's timer). Queues events, reports and burst
+    /// blocks as they fall due.
+    pub fn on_sample(&mut self, t_us: u64, raw: &RawSample) {
+        let (sample, flags) = calibrate(&self.config.calibration, raw);
+        let dt_us = self.advance_clock(t_us);
+        self.meter.add(t_us, &sample);
+        self.stored_level_nj = storage_level_nj(self.config.output_storage_uf, sample.output_uv);
+        if self.boot_stored_level_nj.is_none() {
+            self.boot_stored_level_nj = Some(self.stored_level_nj);
+        }
+        self.interval.add(&sample, flags, self.detector.state(), dt_us);
+        self.last_sample = sample;
+
+        let now_ms = t_us / 1000;
+        let seen = Observation {
+            input_uv: sample.input_uv,
+            output_uv: sample.output_uv,
+            input_cutoff_in_ms: self.input_cutoff_in_ms,
+        };
+        if let Some(event) = self.detector.update(now_ms, &seen, &self.config.thresholds) {
+            if event.to == CutoffState::ColdStart {
+                self.trend.clear();
+                self.input_cutoff_in_ms = None;
+            }
+            self.enqueue(UplinkBody::Event(event));
+        }
+        let in_state = now_ms.saturating_sub(self.detector.entered_ms());
+        self.shedder
+            .update(self.detector.state(), in_state, self.config.load_restore_ms);
+        self.add_to_burst(sample);
+        self.close_interval_if_due(t_us);
+    }
+
+    /// Records a failed conversion at `t_us`: time passes, the report is flagged.
+    pub fn on_sampler_error(&mut self, t_us: u64) {
+        let dt_us = self.advance_clock(t_us);
+        self.stats.sampler_errors = self.stats.sampler_errors.saturating_add(1);
+        self.interval.add_time(self.detector.state(), dt_us);
+        self.interval.flag(gleaner_protocol::ReportFlags::SAMPLER_ERROR);
+        self.close_interval_if_due(t_us);
+    }
+
+    /// Feeds bytes received from the host; complete commands are executed and
+    /// their replies queued. Any bytes are accepted; damage is counted.
+    pub fn on_received(&mut self, bytes: &[u8]) {
+        for &byte in bytes {
+            if let Some(Ok(downlink)) = self.rx.push_byte(byte) {
+                let outcome = self.execute(downlink.command);
+                let reply = Reply { request_id: downlink.request_id, outcome };
+                self.enqueue(UplinkBody::Reply(reply));
+            }
+        }
+    }
+
+    /// Encodes the oldest queued message into `buf` and returns the frame, or
+    /// None when nothing is queued.
+    pub fn next_frame<'b>(&mut self, buf: &'b mut [u8; MAX_UPLINK_FRAME_LEN]) -> Option<&'b [u8]> {
+        let message = self.outbox.pop_front()?;
+        match encode_frame(&message, buf) {
+            Ok(frame) => Some(frame),
+            // Cannot happen with a buffer of MAX_UPLINK_FRAME_LEN; counted if it does.
+            Err(_) => {
+                self.stats.dropped_messages = self.stats.dropped_messages.saturating_add(1);
+                None
+            }
+        }
+    }
+
+    /// Writes every queued frame to `sink`; returns the bytes written.
+    pub fn write_pending<W: embedded_io::Write>(&mut self, sink: &mut W) -> Result<usize, W::Error> {
+        let mut buf = [0u8; MAX_UPLINK_FRAME_LEN];
+        let mut written = 0usize;
+        while let Some(frame) = self.next_frame(&mut buf) {
+            sink.write_all(frame)?;
+            written = written.saturating_add(frame.len());
+        }
+        sink.flush()?;
+        Ok(written)
+    }
+
+    /// Messages waiting in the outbox.
+    pub fn pending_messages(&self) -> usize {
+        self.outbox.len()
+    }
+
+    /// The present cutoff state.
+    pub fn state(&self) -> CutoffState {
+        self.detector.state()
+    }
+
+    /// The active configuration.
+    pub const fn config(&self) -> &NodeConfig {
+        &self.config
+    }
+
+    /// Energy totals since boot or the last reset.
+    pub fn totals(&self) -> EnergyTotals {
+        let base = &self.reset_baseline;
+        EnergyTotals {
+            drawn_nj: self.meter.input.total_nj().saturating_sub(base.drawn_nj),
+            delivered_nj: self.meter.output.total_nj().saturating_sub(base.delivered_nj),
+            stored_nj: self.stored_since_boot().saturating_sub(base.stored_nj),
+        }
+    }
+
+    /// True while non-essential load is shed.
+    pub fn load_shed(&self) -> bool {
+        self.shedder.is_shed()
+    }
+
+    /// The node's own counters.
+    pub const fn stats(&self) -> NodeStats {
+        self.stats
+    }
+
+    /// Counters of the downlink decoder.
+    pub const fn downlink_stats(&self) -> &DecoderStats {
+        self.rx.stats()
+    }
+
+    fn stored_since_boot(&self) -> i64 {
+        self.stored_level_nj
+            .saturating_sub(self.boot_stored_level_nj.unwrap_or(self.stored_level_nj))
+    }
+
+    /// Moves the clock to `t_us`; returns the time since the previous sample.
+    fn advance_clock(&mut self, t_us: u64) -> u64 {
+        let dt = self.last_t_us.map_or(0, |last| t_us.saturating_sub(last));
+        self.last_t_us = Some(t_us);
+        self.now_us = self.now_us.max(t_us);
+        if self.interval_start.is_none() {
+            self.interval_start = Some(self.interval_marker(t_us));
+        }
+        dt
+    }
+
+    fn interval_marker(&self, t_us: u64) -> IntervalStart {
+        IntervalStart {
+            t_us,
+            drawn_nj: self.meter.input.total_nj(),
+            delivered_nj: self.meter.output.total_nj(),
+            stored_level_nj: self.stored_level_nj,
+        }
+    }
+
+    fn close_interval_if_due(&mut self, t_us: u64) {
+        let Some(start) = self.interval_start else { return };
+        let length_us = t_us.saturating_sub(start.t_us);
+        if length_us < u64::from(self.config.report_interval_ms).saturating_mul(1000) {
+            return;
+        }
+        let summary = self.interval.summary();
+        let drawn_nj = self.meter.input.total_nj().saturating_sub(start.drawn_nj);
+        let delivered_nj = self.meter.output.total_nj().saturating_sub(start.delivered_nj);
+        let stored_nj = if self.config.output_storage_uf == 0 {
+            0
+        } else {
+            self.stored_level_nj.saturating_sub(start.stored_level_nj)
+        };
+        let state = self.detector.state();
+        self.input_cutoff_in_ms = if matches!(state, CutoffState::Harvesting | CutoffState::Sagging) {
+            self.trend.push(t_us / 1000, summary.input_uv.mean);
+            self.trend.time_to_reach(self.config.thresholds.hold_uv)
+        } else {
+            None
+        };
+        let load_nw = delivered_nj
+            .saturating_mul(1_000_000)
+            .checked_div(length_us)
+            .unwrap_or(0);
+        let storage_runout_in_ms = storage_runout_ms(
+            self.config.output_storage_uf,
+            self.last_sample.output_uv,
+            self.config.thresholds.output_down_uv,
+            load_nw,
+        );
+        let report = Report {
+            interval_ms: u32::try_from(length_us / 1000).unwrap_or(u32::MAX),
+            sample_count: summary.count,
+            input_uv: summary.input_uv,
+            input_na: summary.input_na,
+            output_uv: summary.output_uv,
+            output_na: summary.output_na,
+            drawn_nj,
+            delivered_nj,
+            stored_nj,
+            state,
+            state_ms: summary.state_ms,
+            input_cutoff_in_ms: self.input_cutoff_in_ms,
+            storage_runout_in_ms,
+            load_shed: self.shedder.is_shed(),
+            flags: summary.flags,
+        };
+        self.enqueue(UplinkBody::Report(report));
+        self.interval.restart();
+        self.interval_start = Some(self.interval_marker(t_us));
+    }
+
+    fn add_to_burst(&mut self, sample: Sample) {
+        let Some(burst) = self.burst.as_mut() else { return };
+        // The block has room: it is sent whenever it fills or the burst ends.
+        let _ = burst.block.push(sample);
+        burst.remaining = burst.remaining.saturating_sub(1);
+        if !burst.block.is_full() && burst.remaining > 0 {
+            return;
+        }
+        let samples = core::mem::take(&mut burst.block);
+        let count = u32::try_from(samples.len()).unwrap_or(0);
+        let block = SampleBlock {
+            first_index: burst.next_index,
+            remaining: burst.remaining,
+            period_us: self.sample_period_us,
+            samples,
+        };
+        burst.next_index = burst.next_index.saturating_add(count);
+        if burst.remaining == 0 {
+            self.burst = None;
+        }
+        self.enqueue(UplinkBody::Samples(block));
+    }
+
+    fn execute(&mut self, command: Command) -> Outcome {
+        match command {
+            Command::Ping => Outcome::Pong,
+            Command::GetInfo => {
+                self.enqueue_hello();
+                Outcome::Accepted
+            }
+            Command::SetConfig(config) => match self.apply_config(config) {
+                Ok(()) => Outcome::Accepted,
+                Err(reason) => Outcome::Refused(reason),
+            },
+            Command::ResetEnergy => {
+                self.reset_baseline = EnergyTotals {
+                    drawn_nj: self.meter.input.total_nj(),
+                    delivered_nj: self.meter.output.total_nj(),
+                    stored_nj: self.stored_since_boot(),
+                };
+                Outcome::Accepted
+            }
+            Command::StartBurst { samples } => {
+                if self.burst.is_some() {
+                    Outcome::Refused(Refusal::BurstInProgress)
+                } else if samples == 0 || samples > MAX_BURST_SAMPLES {
+                    Outcome::Refused(Refusal::BurstLengthOutOfRange)
+                } else {
+                    self.burst = Some(Burst { next_index: 0, remaining: samples, block: Vec::new() });
+                    Outcome::Accepted
+                }
+            }
+        }
+    }
+
+    /// Validates, persists, then applies; on any failure the old configuration stays.
+    fn apply_config(&mut self, config: NodeConfig) -> Result<(), Refusal> {
+        validate(&config)?;
+        config_store::save(&mut self.storage, &config).map_err(|_| Refusal::StorageWriteFailed)?;
+        self.config = config;
+        self.config_source = ConfigSource::Received;
+        Ok(())
+    }
+
+    fn enqueue_hello(&mut self) {
+        let hello = Hello {
+            protocol: PROTOCOL_VERSION,
+            firmware: FIRMWARE_VERSION,
+            boot_id: self.boot_id,
+            sample_period_us: self.sample_period_us,
+            config: self.config,
+            config_source: self.config_source,
+            totals: self.totals(),
+        };
+        self.enqueue(UplinkBody::Hello(hello));
+    }
+
+    fn enqueue(&mut self, body: UplinkBody) {
+        let message = Uplink { seq: self.seq, uptime_ms: self.now_us / 1000, body };
+        self.seq = self.seq.wrapping_add(1);
+        if self.outbox.push_back(message).is_err() {
+            self.stats.dropped_messages = self.stats.dropped_messages.saturating_add(1);
+        }
+    }
+}

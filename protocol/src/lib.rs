@@ -1,0 +1,88 @@
+//! The Gleaner wire protocol: everything that crosses the serial line between a
+//! node and the host.
+//!
+//! * [`Uplink`] messages go from the node to the host: [`Hello`], [`Report`],
+//!   [`Event`], [`SampleBlock`] and [`Reply`], each wrapped with a wrapping
+//!   sequence number and the node's uptime.
+//! * [`Downlink`] messages go from the host to the node: a request id and a
+//!   [`Command`].
+//!
+//! # Framing
+//!
+//! A frame is `COBS(postcard(message) ++ CRC-32) ++ 0x00`. The CRC is
+//! CRC-32/ISO-HDLC from the catalogue of parametrised CRC algorithms (check value
+//! `0xCBF43926` for `"123456789"`), sent little-endian after the postcard bytes.
+//! The largest frame of each direction is known at compile time
+//! ([`MAX_UPLINK_FRAME_LEN`], [`MAX_DOWNLINK_FRAME_LEN`]) and every buffer is
+//! sized from it.
+//!
+//! # Compatibility rule
+//!
+//! postcard encodes enum variants by index and struct fields by position, so the
+//! wire format is an API:
+//! * a change that old decoders can still read (a new enum variant appended at
+//!   the end of an enum) bumps [`PROTOCOL_VERSION`]'s minor number;
+//! * any other change (a field added, removed or reordered, a variant moved)
+//!   bumps the major number. Hosts refuse a node whose major version differs
+//!   from their own ([`ProtocolVersion::check_compatible`]).
+//!
+//! Golden-byte tests pin the encoding of every message kind.
+//!
+//! # Example
+//!
+//! ```
+//! use gleaner_protocol::{encode_frame, Decoder, Uplink, UplinkBody, Reply, Outcome,
+//!     MAX_UPLINK_FRAME_LEN};
+//!
+//! let message = Uplink { seq: 7, uptime_ms: 1_500, body: UplinkBody::Reply(Reply {
+//!     request_id: 3, outcome: Outcome::Pong }) };
+//! let mut buf = [0u8; MAX_UPLINK_FRAME_LEN];
+//! let frame = encode_frame(&message, &mut buf).unwrap();
+//!
+//! // Feed the bytes in arbitrary chunks, as a serial port delivers them.
+//! let mut decoder = Decoder::<Uplink, MAX_UPLINK_FRAME_LEN>::new();
+//! let mut received = None;
+//! for chunk in frame.chunks(3) {
+//!     decoder.feed(chunk, |result| received = Some(result));
+//! }
+//! assert_eq!(received, Some(Ok(message)));
+//! ```
+#![cfg_attr(not(test), no_std)]
+#![forbid(unsafe_code)]
+#![cfg_attr(
+    not(test),
+    deny(
+        clippy::unwrap_used,
+        clippy::expect_used,
+        clippy::panic,
+        clippy::indexing_slicing,
+        clippy::arithmetic_side_effects,
+        clippy::cast_possible_truncation
+    )
+)]
+
+mod config;
+mod decoder;
+mod downlink;
+mod error;
+mod frame;
+mod uplink;
+mod version;
+
+pub use config::{Calibration, Channel, ChannelCal, NodeConfig, Thresholds};
+pub use decoder::{Decoder, DecoderStats, FrameSplitter};
+pub use downlink::{Command, Downlink, MAX_BURST_SAMPLES};
+pub use error::{EncodeError, FrameError};
+pub use frame::{
+    decode_frame, encode_frame, frame_crc, max_frame_len, MAX_DOWNLINK_FRAME_LEN,
+    MAX_UPLINK_FRAME_LEN, MAX_UPLINK_PAYLOAD_LEN,
+};
+pub use uplink::{
+    ChannelStats, ConfigSource, CutoffState, EnergyTotals, Event, Hello, Outcome, Refusal, Reply,
+    Report, ReportFlags, Sample, SampleBlock, StateDurations, TransitionCause, Uplink, UplinkBody,
+    SAMPLES_PER_BLOCK,
+};
+pub use version::{FirmwareVersion, ProtocolVersion, VersionMismatch, PROTOCOL_VERSION};
+
+/// Re-exported so users can bound generic code by postcard's compile-time size.
+pub use postcard::experimental::max_size::MaxSize;

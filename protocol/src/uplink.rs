@@ -1,0 +1,450 @@
+//! Node-to-host messages.
+
+use heapless::Vec;
+use postcard::experimental::max_size::MaxSize;
+use serde::{Deserialize, Serialize};
+
+use crate::config::{Channel, NodeConfig};
+use crate::version::{FirmwareVersion, ProtocolVersion};
+
+/// Samples carried by one [`SampleBlock`].
+pub const SAMPLES_PER_BLOCK: usize = 8;
+
+/// Every node-to-host message: a wrapping sequence number (so the host can count
+/// lost frames), the node's uptime, and the message itself.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Uplink {
+    /// Increments by one per frame sent, wrapping; reset to 0 at boot.
+    pub seq: u16,
+    /// Milliseconds since the node booted.
+    pub uptime_ms: u64,
+    /// The message.
+    pub body: UplinkBody,
+}
+
+/// The kinds of node-to-host message. Append new variants at the end only.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum UplinkBody {
+    /// Who the node is and how it is configured; at boot and on request.
+    Hello(Hello),
+    /// One report interval's summary.
+    Report(Report),
+    /// A state transition, sent at once.
+    Event(Event),
+    /// Raw calibrated samples of a burst.
+    Samples(SampleBlock),
+    /// The answer to a host command.
+    Reply(Reply),
+}
+
+/// Where the active configuration came from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum ConfigSource {
+    /// Built-in defaults (nothing valid was stored).
+    Defaults,
+    /// Read from non-volatile storage at boot.
+    Stored,
+    /// Set by the host since boot.
+    Received,
+}
+
+/// Energy totals kept by the node since boot or the last reset.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct EnergyTotals {
+    /// Energy drawn from the harvester.
+    pub drawn_nj: u64,
+    /// Energy delivered to the load.
+    pub delivered_nj: u64,
+    /// Net energy put into output storage (negative when it discharged).
+    pub stored_nj: i64,
+}
+
+/// The node describes itself, so a recorded log is self-describing.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Hello {
+    /// Protocol spoken by the node.
+    pub protocol: ProtocolVersion,
+    /// Firmware version.
+    pub firmware: FirmwareVersion,
+    /// Random or counter value that changes on every boot.
+    pub boot_id: u32,
+    /// Time between two samples.
+    pub sample_period_us: u32,
+    /// The active configuration.
+    pub config: NodeConfig,
+    /// Where it came from.
+    pub config_source: ConfigSource,
+    /// Totals since boot or the last reset.
+    pub totals: EnergyTotals,
+}
+
+/// The cutoff state machine's states.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum CutoffState {
+    /// No usable input; the converter has not started.
+    Idle,
+    /// Input above the start threshold; output not up yet.
+    ColdStart,
+    /// Converting normally.
+    Harvesting,
+    /// Input near the hold threshold, or cutoff forecast within the horizon.
+    Sagging,
+    /// Input fell below the hold threshold: stopped for lack of input.
+    CutOff,
+    /// Input healthy but the converter is not delivering: a fault.
+    Stalled,
+}
+
+impl CutoffState {
+    /// All states in wire order.
+    pub const ALL: [CutoffState; 6] = [
+        CutoffState::Idle,
+        CutoffState::ColdStart,
+        CutoffState::Harvesting,
+        CutoffState::Sagging,
+        CutoffState::CutOff,
+        CutoffState::Stalled,
+    ];
+
+    /// A short lowercase name.
+    pub const fn name(self) -> &'static str {
+        match self {
+            CutoffState::Idle => "idle",
+            CutoffState::ColdStart => "cold-start",
+            CutoffState::Harvesting => "harvesting",
+            CutoffState::Sagging => "sagging",
+            CutoffState::CutOff => "cut-off",
+            CutoffState::Stalled => "stalled",
+        }
+    }
+
+    /// True in the states where the load is not being supplied by the converter.
+    pub const fn is_outage(self) -> bool {
+        matches!(self, CutoffState::CutOff | CutoffState::Stalled)
+    }
+}
+
+/// Why a transition happened. Append new variants at the end only.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum TransitionCause {
+    /// Input rose to the start threshold.
+    InputAboveStart,
+    /// Output reached the "up" threshold.
+    OutputUp,
+    /// Input came within the sag margin of the hold threshold.
+    InputNearHold,
+    /// The forecast put cutoff within the horizon.
+    ForecastUnderHorizon,
+    /// Input fell below the hold threshold.
+    InputBelowHold,
+    /// Output fell below the "down" threshold with healthy input.
+    OutputCollapsed,
+    /// Output did not come up within the cold-start timeout.
+    ColdStartTimeout,
+    /// Conditions returned to normal.
+    Recovered,
+}
+
+impl TransitionCause {
+    /// A short lowercase name.
+    pub const fn name(self) -> &'static str {
+        match self {
+            TransitionCause::InputAboveStart => "input-above-start",
+            TransitionCause::OutputUp => "output-up",
+            TransitionCause::InputNearHold => "input-near-hold",
+            TransitionCause::ForecastUnderHorizon => "forecast-under-horizon",
+            TransitionCause::InputBelowHold => "input-below-hold",
+            TransitionCause::OutputCollapsed => "output-collapsed",
+            TransitionCause::ColdStartTimeout => "cold-start-timeout",
+            TransitionCause::Recovered => "recovered",
+        }
+    }
+}
+
+/// A state transition, sent as soon as it happens.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Event {
+    /// State left.
+    pub from: CutoffState,
+    /// State entered.
+    pub to: CutoffState,
+    /// Why.
+    pub cause: TransitionCause,
+    /// Input voltage at the transition.
+    pub input_uv: u32,
+    /// Output voltage at the transition.
+    pub output_uv: u32,
+}
+
+/// Minimum, mean and maximum of one channel over an interval, sent as the mean
+/// and the two distances from it (small numbers, so short varints).
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct ChannelStats {
+    /// Mean over the interval, in the channel's unit.
+    pub mean: u32,
+    /// `mean - min`.
+    pub below_mean: u32,
+    /// `max - mean`.
+    pub above_mean: u32,
+}
+
+impl ChannelStats {
+    /// Builds the statistics from a minimum, mean and maximum.
+    pub const fn from_min_mean_max(min: u32, mean: u32, max: u32) -> Self {
+        ChannelStats {
+            mean,
+            below_mean: mean.saturating_sub(min),
+            above_mean: max.saturating_sub(mean),
+        }
+    }
+
+    /// Smallest value seen.
+    pub const fn min(&self) -> u32 {
+        self.mean.saturating_sub(self.below_mean)
+    }
+
+    /// Largest value seen.
+    pub const fn max(&self) -> u32 {
+        self.mean.saturating_add(self.above_mean)
+    }
+}
+
+/// Milliseconds spent in each state during an interval.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct StateDurations {
+    /// In `Idle`.
+    pub idle_ms: u32,
+    /// In `ColdStart`.
+    pub cold_start_ms: u32,
+    /// In `Harvesting`.
+    pub harvesting_ms: u32,
+    /// In `Sagging`.
+    pub sagging_ms: u32,
+    /// In `CutOff`.
+    pub cut_off_ms: u32,
+    /// In `Stalled`.
+    pub stalled_ms: u32,
+}
+
+impl StateDurations {
+    /// Time in one state.
+    pub const fn get(&self, state: CutoffState) -> u32 {
+        match state {
+            CutoffState::Idle => self.idle_ms,
+            CutoffState::ColdStart => self.cold_start_ms,
+            CutoffState::Harvesting => self.harvesting_ms,
+            CutoffState::Sagging => self.sagging_ms,
+            CutoffState::CutOff => self.cut_off_ms,
+            CutoffState::Stalled => self.stalled_ms,
+        }
+    }
+
+    /// Mutable time in one state.
+    pub fn get_mut(&mut self, state: CutoffState) -> &mut u32 {
+        match state {
+            CutoffState::Idle => &mut self.idle_ms,
+            CutoffState::ColdStart => &mut self.cold_start_ms,
+            CutoffState::Harvesting => &mut self.harvesting_ms,
+            CutoffState::Sagging => &mut self.sagging_ms,
+            CutoffState::CutOff => &mut self.cut_off_ms,
+            CutoffState::Stalled => &mut self.stalled_ms,
+        }
+    }
+}
+
+/// Bit flags of a report.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct ReportFlags(pub u8);
+
+impl ReportFlags {
+    /// Some sample hit an end of the ADC's range.
+    pub const ADC_CLIPPED: u8 = 1 << 0;
+    /// Some calibrated value fell outside what the channel can represent.
+    pub const OUT_OF_RANGE: u8 = 1 << 1;
+    /// The sampler reported an error for some sample.
+    pub const SAMPLER_ERROR: u8 = 1 << 2;
+
+    /// True when `flag` (one of the constants) is set.
+    pub const fn contains(self, flag: u8) -> bool {
+        self.0 & flag != 0
+    }
+
+    /// Sets `flag`.
+    pub fn insert(&mut self, flag: u8) {
+        self.0 |= flag;
+    }
+}
+
+/// One report interval's summary.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Report {
+    /// Length of the interval actually covered.
+    pub interval_ms: u32,
+    /// Samples taken in the interval.
+    pub sample_count: u32,
+    /// Harvester voltage.
+    pub input_uv: ChannelStats,
+    /// Harvester current.
+    pub input_na: ChannelStats,
+    /// Load voltage.
+    pub output_uv: ChannelStats,
+    /// Load current.
+    pub output_na: ChannelStats,
+    /// Energy drawn from the harvester during the interval.
+    pub drawn_nj: u64,
+    /// Energy delivered to the load during the interval.
+    pub delivered_nj: u64,
+    /// Net energy into output storage during the interval (0 without storage).
+    pub stored_nj: i64,
+    /// State at the end of the interval.
+    pub state: CutoffState,
+    /// Time in each state during the interval.
+    pub state_ms: StateDurations,
+    /// Forecast time until the input falls to the hold threshold.
+    pub input_cutoff_in_ms: Option<u32>,
+    /// Time the output storage can carry the present load down to `output_down_uv`.
+    pub storage_runout_in_ms: Option<u32>,
+    /// True while non-essential load is shed.
+    pub load_shed: bool,
+    /// Clipping and range flags.
+    pub flags: ReportFlags,
+}
+
+impl Report {
+    /// The statistics of one channel.
+    pub const fn channel(&self, channel: Channel) -> &ChannelStats {
+        match channel {
+            Channel::InputVoltage => &self.input_uv,
+            Channel::InputCurrent => &self.input_na,
+            Channel::OutputVoltage => &self.output_uv,
+            Channel::OutputCurrent => &self.output_na,
+        }
+    }
+}
+
+/// One calibrated sample of all four channels.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Sample {
+    /// Harvester voltage.
+    pub input_uv: u32,
+    /// Harvester current.
+    pub input_na: u32,
+    /// Load voltage.
+    pub output_uv: u32,
+    /// Load current.
+    pub output_na: u32,
+}
+
+/// Consecutive burst samples, taken `period_us` apart.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct SampleBlock {
+    /// Index of the first sample within the burst (0-based).
+    pub first_index: u32,
+    /// Samples left in the burst after this block.
+    pub remaining: u32,
+    /// Time between samples.
+    pub period_us: u32,
+    /// The samples, oldest first.
+    pub samples: Vec<Sample, SAMPLES_PER_BLOCK>,
+}
+
+/// Why a command was refused. Append new variants at the end only.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Refusal {
+    /// `hold_uv` must be below `start_uv`.
+    HoldNotBelowStart,
+    /// `output_down_uv` must be below `output_up_uv`.
+    OutputThresholdsInverted,
+    /// A channel's scale is zero or too large.
+    ChannelScaleOutOfRange(Channel),
+    /// The ADC resolution is not between 8 and 24 bits.
+    AdcBitsOutOfRange,
+    /// The report interval is not between 100 ms and 1 hour.
+    ReportIntervalOutOfRange,
+    /// The debounce time is longer than 60 s.
+    DebounceOutOfRange,
+    /// A timeout or horizon is zero or longer than a day.
+    TimeoutOutOfRange,
+    /// The sag margin is larger than the hold threshold or 1 V.
+    SagMarginOutOfRange,
+    /// The burst length is zero or above the maximum.
+    BurstLengthOutOfRange,
+    /// A burst is already running.
+    BurstInProgress,
+    /// The configuration could not be written to non-volatile storage.
+    StorageWriteFailed,
+    /// The storage capacitance is above 1000 F.
+    StorageCapacitanceOutOfRange,
+}
+
+impl Refusal {
+    /// A one-line explanation for people.
+    pub const fn describe(self) -> &'static str {
+        match self {
+            Refusal::HoldNotBelowStart => "hold threshold must be below the start threshold",
+            Refusal::OutputThresholdsInverted => {
+                "output-down threshold must be below the output-up threshold"
+            }
+            Refusal::ChannelScaleOutOfRange(_) => "a channel scale is zero or too large",
+            Refusal::AdcBitsOutOfRange => "ADC resolution must be 8 to 24 bits",
+            Refusal::ReportIntervalOutOfRange => "report interval must be 100 ms to 1 hour",
+            Refusal::DebounceOutOfRange => "debounce time must be at most 60 s",
+            Refusal::TimeoutOutOfRange => "timeouts and horizons must be 1 ms to 1 day",
+            Refusal::SagMarginOutOfRange => {
+                "sag margin must be at most the hold threshold and at most 1 V"
+            }
+            Refusal::BurstLengthOutOfRange => "burst length must be 1 to 1,000,000 samples",
+            Refusal::BurstInProgress => "a burst is already running",
+            Refusal::StorageWriteFailed => "the node could not store the configuration",
+            Refusal::StorageCapacitanceOutOfRange => "storage capacitance must be at most 1000 F",
+        }
+    }
+}
+
+impl core::fmt::Display for Refusal {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        match self {
+            Refusal::ChannelScaleOutOfRange(channel) => {
+                write!(f, "{} (channel {})", self.describe(), channel.name())
+            }
+            other => f.write_str(other.describe()),
+        }
+    }
+}
+
+/// The result of a command.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Outcome {
+    /// Answer to `Ping`.
+    Pong,
+    /// Done as asked.
+    Accepted,
+    /// Not done; the reason says why. The previous state stays in force.
+    Refused(Refusal),
+}
+
+/// The answer to one `Downlink`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Reply {
+    /// The request id of the command answered.
+    pub request_id: u16,
+    /// What happened.
+    pub outcome: Outcome,
+}
