@@ -63,7 +63,10 @@ pub fn voltage_divider(adc: Adc, r_top_ohm: u32, r_bottom_ohm: u32) -> Option<Ch
     let total = u128::from(r_top_ohm).checked_add(u128::from(r_bottom_ohm))?;
     let numerator = u128::from(adc.reference_uv).checked_mul(total)?;
     let units_per_count_q20 = q20_scale(numerator, u128::from(r_bottom_ohm), adc.bits)?;
-    Some(ChannelCal { units_per_count_q20, offset: 0 })
+    Some(ChannelCal {
+        units_per_count_q20,
+        offset: 0,
+    })
 }
 
 /// A current channel: a shunt of `shunt_milliohm` whose voltage is amplified by
@@ -72,7 +75,10 @@ pub fn current_shunt(adc: Adc, shunt_milliohm: u32, gain: u32) -> Option<Channel
     let numerator = u128::from(adc.reference_uv).checked_mul(1_000_000)?;
     let denominator = u128::from(shunt_milliohm).checked_mul(u128::from(gain))?;
     let units_per_count_q20 = q20_scale(numerator, denominator, adc.bits)?;
-    Some(ChannelCal { units_per_count_q20, offset: 0 })
+    Some(ChannelCal {
+        units_per_count_q20,
+        offset: 0,
+    })
 }
 
 /// A reference reading: the counts seen while a known value was applied.
@@ -92,11 +98,16 @@ pub fn two_point(low: ReferencePoint, high: ReferencePoint) -> Option<ChannelCal
     let value_span = high.value.checked_sub(low.value).filter(|&d| d > 0)?;
     let scaled = u128::from(value_span).checked_shl(SCALE_FRACTION_BITS)?;
     let count_span = u128::from(count_span);
-    let q20 = scaled.checked_add(count_span / 2)?.checked_div(count_span)?;
+    let q20 = scaled
+        .checked_add(count_span / 2)?
+        .checked_div(count_span)?;
     let q20 = u64::try_from(q20).ok()?;
     let low_scaled = i128::from(scale_counts(q20, low.counts)?);
     let offset = i32::try_from(i128::from(low.value).checked_sub(low_scaled)?).ok()?;
-    Some(ChannelCal { units_per_count_q20: q20, offset })
+    Some(ChannelCal {
+        units_per_count_q20: q20,
+        offset,
+    })
 }
 
 /// `round(counts * q20 / 2^20)`, None on overflow.
@@ -127,7 +138,11 @@ pub fn apply(cal: &ChannelCal, counts: u32) -> (u32, bool) {
 /// ADC's top code) and out-of-range results. A count of 0 is not flagged: on a
 /// unipolar front-end it is a real zero (a dark solar cell).
 pub fn calibrate(cal: &Calibration, raw: &RawSample) -> (Sample, ReportFlags) {
-    let top = Adc { bits: cal.adc_bits, reference_uv: 0 }.max_count();
+    let top = Adc {
+        bits: cal.adc_bits,
+        reference_uv: 0,
+    }
+    .max_count();
     let mut flags = ReportFlags::default();
     let mut channel = |cal: &ChannelCal, counts: u32| {
         if counts >= top {
@@ -168,7 +183,10 @@ pub fn counts_for(cal: &ChannelCal, value: u32, max_count: u32) -> u32 {
 mod tests {
     use super::*;
 
-    const ADC12: Adc = Adc { bits: 12, reference_uv: 3_300_000 };
+    const ADC12: Adc = Adc {
+        bits: 12,
+        reference_uv: 3_300_000,
+    };
 
     fn units_per_count(cal: &ChannelCal) -> f64 {
         cal.units_per_count_q20 as f64 / (1u64 << 20) as f64
@@ -180,8 +198,14 @@ mod tests {
         let direct = voltage_divider(ADC12, 0, 1).unwrap();
         assert!((units_per_count(&direct) - 805.6640625).abs() < 1e-3);
         // 16 bit at 2.048 V -> 31.25 uV exactly.
-        let adc16 = Adc { bits: 16, reference_uv: 2_048_000 };
-        assert_eq!(voltage_divider(adc16, 0, 1).unwrap().units_per_count_q20, 32_768_000); // 31.25 uV * 2^20
+        let adc16 = Adc {
+            bits: 16,
+            reference_uv: 2_048_000,
+        };
+        assert_eq!(
+            voltage_divider(adc16, 0, 1).unwrap().units_per_count_q20,
+            32_768_000
+        ); // 31.25 uV * 2^20
     }
 
     #[test]
@@ -195,7 +219,10 @@ mod tests {
         assert_eq!(counts, 2381);
         let (uv, flagged) = apply(&cal, counts);
         assert!(!flagged);
-        assert!((i64::from(uv) - 6_000_000).abs() < 2_520, "one LSB of the divided channel");
+        assert!(
+            (i64::from(uv) - 6_000_000).abs() < 2_520,
+            "one LSB of the divided channel"
+        );
     }
 
     #[test]
@@ -209,24 +236,46 @@ mod tests {
     #[test]
     fn two_point_recovers_gain_and_offset() {
         let cal = two_point(
-            ReferencePoint { counts: 100, value: 150_000 },
-            ReferencePoint { counts: 3_100, value: 2_550_000 },
+            ReferencePoint {
+                counts: 100,
+                value: 150_000,
+            },
+            ReferencePoint {
+                counts: 3_100,
+                value: 2_550_000,
+            },
         )
         .unwrap();
         // Gain 800 uV/count, offset 150000 - 80000 = 70000 uV.
         assert_eq!(cal.units_per_count_q20, 800 << 20);
         assert_eq!(cal.offset, 70_000);
         assert_eq!(apply(&cal, 1_600).0, 1_350_000);
-        assert_eq!(two_point(
-            ReferencePoint { counts: 5, value: 10 },
-            ReferencePoint { counts: 5, value: 20 }), None);
+        assert_eq!(
+            two_point(
+                ReferencePoint {
+                    counts: 5,
+                    value: 10
+                },
+                ReferencePoint {
+                    counts: 5,
+                    value: 20
+                }
+            ),
+            None
+        );
     }
 
     #[test]
     fn negative_results_read_zero_and_overflow_is_flagged() {
-        let cal = ChannelCal { units_per_count_q20: 1 << 20, offset: -50 };
+        let cal = ChannelCal {
+            units_per_count_q20: 1 << 20,
+            offset: -50,
+        };
         assert_eq!(apply(&cal, 10), (0, false));
-        let huge = ChannelCal { units_per_count_q20: u64::MAX, offset: 0 };
+        let huge = ChannelCal {
+            units_per_count_q20: u64::MAX,
+            offset: 0,
+        };
         assert_eq!(apply(&huge, 4_000), (u32::MAX, true));
     }
 
@@ -235,7 +284,10 @@ mod tests {
         let cal = crate::config::default_config().calibration;
         let (_, flags) = calibrate(&cal, &RawSample::default());
         assert!(!flags.contains(ReportFlags::ADC_CLIPPED));
-        let raw = RawSample { input_voltage: 4095, ..RawSample::default() };
+        let raw = RawSample {
+            input_voltage: 4095,
+            ..RawSample::default()
+        };
         let (_, flags) = calibrate(&cal, &raw);
         assert!(flags.contains(ReportFlags::ADC_CLIPPED));
     }

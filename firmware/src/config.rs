@@ -5,7 +5,10 @@ use gleaner_protocol::{Calibration, Channel, ChannelCal, NodeConfig, Refusal, Th
 use crate::calibration::{current_shunt, voltage_divider, Adc};
 
 /// The ADC assumed by the defaults: 12 bits, 3.3 V reference.
-pub const DEFAULT_ADC: Adc = Adc { bits: 12, reference_uv: 3_300_000 };
+pub const DEFAULT_ADC: Adc = Adc {
+    bits: 12,
+    reference_uv: 3_300_000,
+};
 
 /// Shortest accepted report interval.
 pub const MIN_REPORT_INTERVAL_MS: u32 = 100;
@@ -23,7 +26,10 @@ pub const MAX_STORAGE_UF: u32 = 1_000_000_000;
 pub const MAX_SCALE_Q20: u64 = 1_000_000_000 << 20;
 
 const fn fallback_cal() -> ChannelCal {
-    ChannelCal { units_per_count_q20: 1 << 20, offset: 0 }
+    ChannelCal {
+        units_per_count_q20: 1 << 20,
+        offset: 0,
+    }
 }
 
 /// The front-end the defaults describe: input read directly (up to 3.3 V),
@@ -52,6 +58,7 @@ pub const DEFAULT_THRESHOLDS: Thresholds = Thresholds {
     debounce_ms: 200,
     cold_start_timeout_ms: 10_000,
     forecast_horizon_ms: 60_000,
+    input_idle_na: 2_000,
 };
 
 /// The configuration a node starts with when nothing valid is stored.
@@ -90,7 +97,11 @@ pub fn validate(config: &NodeConfig) -> Result<(), Refusal> {
     if t.debounce_ms > MAX_DEBOUNCE_MS {
         return Err(Refusal::DebounceOutOfRange);
     }
-    let timeouts = [t.cold_start_timeout_ms, t.forecast_horizon_ms, config.load_restore_ms];
+    let timeouts = [
+        t.cold_start_timeout_ms,
+        t.forecast_horizon_ms,
+        config.load_restore_ms,
+    ];
     if timeouts.iter().any(|&ms| ms == 0 || ms > MAX_TIMEOUT_MS) {
         return Err(Refusal::TimeoutOutOfRange);
     }
@@ -127,19 +138,43 @@ mod tests {
                 |c| c.calibration.output_voltage.units_per_count_q20 = MAX_SCALE_Q20 + 1,
                 Refusal::ChannelScaleOutOfRange(Channel::OutputVoltage),
             ),
-            (|c| c.thresholds.hold_uv = c.thresholds.start_uv, Refusal::HoldNotBelowStart),
+            (
+                |c| c.thresholds.hold_uv = c.thresholds.start_uv,
+                Refusal::HoldNotBelowStart,
+            ),
             (
                 |c| c.thresholds.output_down_uv = c.thresholds.output_up_uv,
                 Refusal::OutputThresholdsInverted,
             ),
-            (|c| c.thresholds.sag_margin_uv = c.thresholds.hold_uv + 1, Refusal::SagMarginOutOfRange),
-            (|c| c.thresholds.debounce_ms = MAX_DEBOUNCE_MS + 1, Refusal::DebounceOutOfRange),
-            (|c| c.thresholds.cold_start_timeout_ms = 0, Refusal::TimeoutOutOfRange),
-            (|c| c.thresholds.forecast_horizon_ms = MAX_TIMEOUT_MS + 1, Refusal::TimeoutOutOfRange),
+            (
+                |c| c.thresholds.sag_margin_uv = c.thresholds.hold_uv + 1,
+                Refusal::SagMarginOutOfRange,
+            ),
+            (
+                |c| c.thresholds.debounce_ms = MAX_DEBOUNCE_MS + 1,
+                Refusal::DebounceOutOfRange,
+            ),
+            (
+                |c| c.thresholds.cold_start_timeout_ms = 0,
+                Refusal::TimeoutOutOfRange,
+            ),
+            (
+                |c| c.thresholds.forecast_horizon_ms = MAX_TIMEOUT_MS + 1,
+                Refusal::TimeoutOutOfRange,
+            ),
             (|c| c.load_restore_ms = 0, Refusal::TimeoutOutOfRange),
-            (|c| c.report_interval_ms = 99, Refusal::ReportIntervalOutOfRange),
-            (|c| c.report_interval_ms = MAX_REPORT_INTERVAL_MS + 1, Refusal::ReportIntervalOutOfRange),
-            (|c| c.output_storage_uf = MAX_STORAGE_UF + 1, Refusal::StorageCapacitanceOutOfRange),
+            (
+                |c| c.report_interval_ms = 99,
+                Refusal::ReportIntervalOutOfRange,
+            ),
+            (
+                |c| c.report_interval_ms = MAX_REPORT_INTERVAL_MS + 1,
+                Refusal::ReportIntervalOutOfRange,
+            ),
+            (
+                |c| c.output_storage_uf = MAX_STORAGE_UF + 1,
+                Refusal::StorageCapacitanceOutOfRange,
+            ),
         ];
         for (break_it, reason) in cases {
             let mut config = default_config();

@@ -78,8 +78,16 @@ pub fn load<S: ReadStorage>(storage: &mut S) -> Loaded {
         (a, b) => a.or(b),
     };
     match newest {
-        Some((sequence, config)) => Loaded { config, source: ConfigSource::Stored, sequence: Some(sequence) },
-        None => Loaded { config: default_config(), source: ConfigSource::Defaults, sequence: None },
+        Some((sequence, config)) => Loaded {
+            config,
+            source: ConfigSource::Stored,
+            sequence: Some(sequence),
+        },
+        None => Loaded {
+            config: default_config(),
+            source: ConfigSource::Defaults,
+            sequence: None,
+        },
     }
 }
 
@@ -97,7 +105,9 @@ pub fn save<S: Storage>(storage: &mut S, config: &NodeConfig) -> Result<(), Stor
     };
     let mut buf = [0u8; SLOT_LEN];
     let (header, rest) = buf.split_at_mut(HEADER_LEN);
-    let used = postcard::to_slice(config, rest).map_err(|_| StoreError::Encode)?.len();
+    let used = postcard::to_slice(config, rest)
+        .map_err(|_| StoreError::Encode)?
+        .len();
     let len = u16::try_from(used).map_err(|_| StoreError::Encode)?;
     let (magic, header) = header.split_at_mut(4);
     let (seq, len_bytes) = header.split_at_mut(4);
@@ -110,12 +120,16 @@ pub fn save<S: Storage>(storage: &mut S, config: &NodeConfig) -> Result<(), Stor
     buf.get_mut(end..record_end)
         .ok_or(StoreError::Encode)?
         .copy_from_slice(&crc.to_le_bytes());
-    let offset = target.checked_mul(SLOT_LEN).and_then(|o| u32::try_from(o).ok());
+    let offset = target
+        .checked_mul(SLOT_LEN)
+        .and_then(|o| u32::try_from(o).ok());
     let offset = offset.ok_or(StoreError::TooSmall)?;
     // Only the record itself is written, CRC last: a cut before its final byte
     // leaves a record that fails its CRC, and the other slot stays the newest.
     let record = buf.get(..record_end).ok_or(StoreError::Encode)?;
-    storage.write(offset, record).map_err(|_| StoreError::Storage)
+    storage
+        .write(offset, record)
+        .map_err(|_| StoreError::Storage)
 }
 
 impl Loaded {
@@ -146,7 +160,10 @@ pub struct PowerCut;
 impl<const N: usize> MemoryStorage<N> {
     /// Erased storage (all bytes `0xFF`).
     pub const fn new() -> Self {
-        MemoryStorage { bytes: [0xFF; N], cut_after: None }
+        MemoryStorage {
+            bytes: [0xFF; N],
+            cut_after: None,
+        }
     }
 
     /// The next writes stop (as a power cut would) after `bytes` more bytes.
@@ -185,7 +202,10 @@ impl<const N: usize> Storage for MemoryStorage<N> {
                 }
                 self.cut_after = Some(left.saturating_sub(1));
             }
-            let slot = self.bytes.get_mut(start.saturating_add(i)).ok_or(PowerCut)?;
+            let slot = self
+                .bytes
+                .get_mut(start.saturating_add(i))
+                .ok_or(PowerCut)?;
             *slot = byte;
         }
         Ok(())
@@ -199,13 +219,19 @@ mod tests {
     type Flash = MemoryStorage<STORE_LEN>;
 
     fn config_with_interval(ms: u32) -> NodeConfig {
-        NodeConfig { report_interval_ms: ms, ..default_config() }
+        NodeConfig {
+            report_interval_ms: ms,
+            ..default_config()
+        }
     }
 
     #[test]
     fn empty_storage_gives_defaults() {
         let loaded = load(&mut Flash::new());
-        assert_eq!((loaded.config, loaded.source), (default_config(), ConfigSource::Defaults));
+        assert_eq!(
+            (loaded.config, loaded.source),
+            (default_config(), ConfigSource::Defaults)
+        );
     }
 
     #[test]
@@ -251,7 +277,10 @@ mod tests {
     #[test]
     fn too_small_storage_is_an_error() {
         let mut tiny = MemoryStorage::<16>::new();
-        assert_eq!(save(&mut tiny, &default_config()), Err(StoreError::TooSmall));
+        assert_eq!(
+            save(&mut tiny, &default_config()),
+            Err(StoreError::TooSmall)
+        );
         assert_eq!(load(&mut tiny).source, ConfigSource::Defaults);
     }
 }

@@ -14,6 +14,8 @@ use gleaner_protocol::{CutoffState, Event, Thresholds, TransitionCause};
 pub struct Observation {
     /// Harvester voltage.
     pub input_uv: u32,
+    /// Harvester current.
+    pub input_na: u32,
     /// Output (load or storage) voltage.
     pub output_uv: u32,
     /// Latest forecast of time until the input falls to the hold threshold.
@@ -22,6 +24,13 @@ pub struct Observation {
 
 /// The state a sample asks for in `state`, with the reason, or None to stay.
 /// Input starvation is checked first, then a fault, then the milder conditions.
+///
+/// A converter that stops lets its input rise to the source's open-circuit
+/// voltage, which may sit between hold and start: so an idle input current
+/// with the input below start is a cutoff too. An idle input current with the
+/// input able to start the converter and the output not up is a stall.
+/// Leaving `Sagging` needs the input a full margin clear of the sagging band
+/// (`hold + 2 * margin`) and the forecast beyond twice the horizon (hysteresis).
 pub fn wanted_transition(
     state: CutoffState,
     time_in_state_ms: u64,
@@ -35,25 +44,33 @@ pub fn wanted_transition(
     let can_start = seen.input_uv >= t.start_uv;
     let output_up = seen.output_uv >= t.output_up_uv;
     let output_down = seen.output_uv < t.output_down_uv;
+    let input_clear = seen.input_uv >= t.hold_uv.saturating_add(t.sag_margin_uv.saturating_mul(2));
     let forecast_short = seen
         .input_cutoff_in_ms
         .is_some_and(|ms| ms <= t.forecast_horizon_ms);
+    let forecast_clear = seen
+        .input_cutoff_in_ms
+        .is_none_or(|ms| ms > t.forecast_horizon_ms.saturating_mul(2));
+    let idle = seen.input_na < t.input_idle_na;
     match state {
-        Idle if output_up && !input_low => Some((Harvesting, OutputUp)),
+        Idle if output_up && !input_low && !idle => Some((Harvesting, OutputUp)),
         Idle if can_start => Some((ColdStart, InputAboveStart)),
+        Idle if !idle && !input_low => Some((ColdStart, ConverterStarted)),
         ColdStart if input_low => Some((Idle, InputBelowHold)),
         ColdStart if output_up => Some((Harvesting, OutputUp)),
         ColdStart if time_in_state_ms >= u64::from(t.cold_start_timeout_ms) => {
             Some((Stalled, ColdStartTimeout))
         }
         Harvesting | Sagging if input_low => Some((CutOff, InputBelowHold)),
+        Harvesting | Sagging if idle && !can_start => Some((CutOff, ConverterIdle)),
         Harvesting | Sagging if output_down => Some((Stalled, OutputCollapsed)),
+        Harvesting | Sagging if idle && !output_up => Some((Stalled, ConverterIdle)),
         Harvesting if input_near => Some((Sagging, InputNearHold)),
         Harvesting if forecast_short => Some((Sagging, ForecastUnderHorizon)),
-        Sagging if !input_near && !forecast_short => Some((Harvesting, Recovered)),
+        Sagging if input_clear && forecast_clear => Some((Harvesting, Recovered)),
         CutOff if can_start => Some((ColdStart, InputAboveStart)),
         Stalled if input_low => Some((CutOff, InputBelowHold)),
-        Stalled if output_up => Some((Harvesting, Recovered)),
+        Stalled if output_up && !idle => Some((Harvesting, Recovered)),
         _ => None,
     }
 }
@@ -82,7 +99,11 @@ impl Default for CutoffDetector {
 impl CutoffDetector {
     /// Starts in `Idle` at `now_ms`.
     pub const fn new(now_ms: u64) -> Self {
-        CutoffDetector { state: CutoffState::Idle, entered_ms: now_ms, pending: None }
+        CutoffDetector {
+            state: CutoffState::Idle,
+            entered_ms: now_ms,
+            pending: None,
+        }
     }
 
     /// The present state.
@@ -104,7 +125,11 @@ impl CutoffDetector {
         };
         let pending = match self.pending {
             Some(p) if p.to == to => p,
-            _ => Pending { to, cause, since_ms: now_ms },
+            _ => Pending {
+                to,
+                cause,
+                since_ms: now_ms,
+            },
         };
         if now_ms.saturating_sub(pending.since_ms) < u64::from(t.debounce_ms) {
             self.pending = Some(pending);
@@ -142,18 +167,35 @@ mod tests {
     const OUT_MID: u32 = 1_800_000;
     const OUT_DOWN: u32 = 1_000_000;
 
+    const DRAWING: u32 = 500_000; // input current of a running converter
+
     fn obs(input_uv: u32, output_uv: u32) -> Observation {
-        Observation { input_uv, output_uv, input_cutoff_in_ms: None }
+        Observation {
+            input_uv,
+            input_na: DRAWING,
+            output_uv,
+            input_cutoff_in_ms: None,
+        }
+    }
+
+    fn idle(input_uv: u32, output_uv: u32) -> Observation {
+        Observation {
+            input_na: 0,
+            ..obs(input_uv, output_uv)
+        }
     }
 
     /// The full table: every state against every input class.
     #[test]
     fn transition_table() {
         let o = |i, out| obs(i, out);
-        type Row = (CutoffState, Observation, Option<(CutoffState, TransitionCause)>);
+        type Row = (
+            CutoffState,
+            Observation,
+            Option<(CutoffState, TransitionCause)>,
+        );
         let cases: &[Row] = &[
             (Idle, o(DEAD, OUT_DOWN), None),
-            (Idle, o(MID, OUT_DOWN), None),
             (Idle, o(GOOD, OUT_DOWN), Some((ColdStart, InputAboveStart))),
             (Idle, o(GOOD, OUT_UP), Some((Harvesting, OutputUp))),
             (Idle, o(LOW, OUT_UP), None),
@@ -165,21 +207,47 @@ mod tests {
             (Harvesting, o(MID, OUT_MID), None),
             (Harvesting, o(NEAR, OUT_UP), Some((Sagging, InputNearHold))),
             (Harvesting, o(LOW, OUT_UP), Some((CutOff, InputBelowHold))),
-            (Harvesting, o(GOOD, OUT_DOWN), Some((Stalled, OutputCollapsed))),
+            (
+                Harvesting,
+                o(GOOD, OUT_DOWN),
+                Some((Stalled, OutputCollapsed)),
+            ),
             (Harvesting, o(LOW, OUT_DOWN), Some((CutOff, InputBelowHold))),
             (Sagging, o(NEAR, OUT_UP), None),
-            (Sagging, o(MID, OUT_UP), Some((Harvesting, Recovered))),
+            (Sagging, o(MID, OUT_UP), None),
+            (Sagging, o(GOOD, OUT_UP), Some((Harvesting, Recovered))),
             (Sagging, o(LOW, OUT_UP), Some((CutOff, InputBelowHold))),
             (Sagging, o(NEAR, OUT_DOWN), Some((Stalled, OutputCollapsed))),
             (CutOff, o(LOW, OUT_DOWN), None),
             (CutOff, o(MID, OUT_UP), None),
-            (CutOff, o(GOOD, OUT_DOWN), Some((ColdStart, InputAboveStart))),
+            (
+                CutOff,
+                o(GOOD, OUT_DOWN),
+                Some((ColdStart, InputAboveStart)),
+            ),
             (Stalled, o(GOOD, OUT_DOWN), None),
             (Stalled, o(GOOD, OUT_UP), Some((Harvesting, Recovered))),
             (Stalled, o(LOW, OUT_DOWN), Some((CutOff, InputBelowHold))),
+            // Idle input current: the converter is not drawing.
+            (Idle, idle(GOOD, OUT_UP), Some((ColdStart, InputAboveStart))),
+            (Idle, idle(MID, OUT_DOWN), None),
+            (Idle, o(MID, OUT_DOWN), Some((ColdStart, ConverterStarted))),
+            (Harvesting, idle(MID, OUT_UP), Some((CutOff, ConverterIdle))),
+            (Sagging, idle(NEAR, OUT_MID), Some((CutOff, ConverterIdle))),
+            (
+                Harvesting,
+                idle(GOOD, OUT_MID),
+                Some((Stalled, ConverterIdle)),
+            ),
+            (Harvesting, idle(GOOD, OUT_UP), None), // output in regulation: a pause
+            (Stalled, idle(GOOD, OUT_UP), None),
         ];
         for (state, seen, expected) in cases {
-            assert_eq!(wanted_transition(*state, 0, seen, &T), *expected, "{state:?} {seen:?}");
+            assert_eq!(
+                wanted_transition(*state, 0, seen, &T),
+                *expected,
+                "{state:?} {seen:?}"
+            );
         }
     }
 
@@ -187,11 +255,20 @@ mod tests {
     fn forecast_under_horizon_sags_and_clears() {
         let mut seen = obs(GOOD, OUT_UP);
         seen.input_cutoff_in_ms = Some(T.forecast_horizon_ms);
-        assert_eq!(wanted_transition(Harvesting, 0, &seen, &T), Some((Sagging, ForecastUnderHorizon)));
+        assert_eq!(
+            wanted_transition(Harvesting, 0, &seen, &T),
+            Some((Sagging, ForecastUnderHorizon))
+        );
         assert_eq!(wanted_transition(Sagging, 0, &seen, &T), None);
         seen.input_cutoff_in_ms = Some(T.forecast_horizon_ms + 1);
         assert_eq!(wanted_transition(Harvesting, 0, &seen, &T), None);
-        assert_eq!(wanted_transition(Sagging, 0, &seen, &T), Some((Harvesting, Recovered)));
+        // Hysteresis: recovery needs the forecast beyond twice the horizon.
+        assert_eq!(wanted_transition(Sagging, 0, &seen, &T), None);
+        seen.input_cutoff_in_ms = Some(2 * T.forecast_horizon_ms + 1);
+        assert_eq!(
+            wanted_transition(Sagging, 0, &seen, &T),
+            Some((Harvesting, Recovered))
+        );
     }
 
     #[test]
@@ -199,7 +276,10 @@ mod tests {
         let seen = obs(GOOD, OUT_MID);
         let timeout = u64::from(T.cold_start_timeout_ms);
         assert_eq!(wanted_transition(ColdStart, timeout - 1, &seen, &T), None);
-        assert_eq!(wanted_transition(ColdStart, timeout, &seen, &T), Some((Stalled, ColdStartTimeout)));
+        assert_eq!(
+            wanted_transition(ColdStart, timeout, &seen, &T),
+            Some((Stalled, ColdStartTimeout))
+        );
     }
 
     #[test]
@@ -208,16 +288,44 @@ mod tests {
         // running; a stopped one stays stopped.
         let seen = obs(750_000, OUT_UP);
         assert_eq!(wanted_transition(Harvesting, 0, &seen, &T), None);
-        assert_eq!(wanted_transition(CutOff, 0, &obs(750_000, OUT_DOWN), &T), None);
+        assert_eq!(
+            wanted_transition(CutOff, 0, &obs(750_000, OUT_DOWN), &T),
+            None
+        );
         // Exactly at the thresholds.
-        assert_eq!(wanted_transition(CutOff, 0, &obs(T.start_uv, OUT_DOWN), &T).map(|w| w.0), Some(ColdStart));
-        assert_eq!(wanted_transition(CutOff, 0, &obs(T.start_uv - 1, OUT_DOWN), &T), None);
-        assert_eq!(wanted_transition(Sagging, 0, &obs(T.hold_uv, OUT_UP), &T), None);
-        assert_eq!(wanted_transition(Sagging, 0, &obs(T.hold_uv - 1, OUT_UP), &T).map(|w| w.0), Some(CutOff));
+        assert_eq!(
+            wanted_transition(CutOff, 0, &obs(T.start_uv, OUT_DOWN), &T).map(|w| w.0),
+            Some(ColdStart)
+        );
+        assert_eq!(
+            wanted_transition(CutOff, 0, &obs(T.start_uv - 1, OUT_DOWN), &T),
+            None
+        );
+        assert_eq!(
+            wanted_transition(Sagging, 0, &obs(T.hold_uv, OUT_UP), &T),
+            None
+        );
+        let clear = T.hold_uv + 2 * T.sag_margin_uv;
+        assert_eq!(
+            wanted_transition(Sagging, 0, &obs(clear - 1, OUT_UP), &T),
+            None
+        );
+        assert_eq!(
+            wanted_transition(Sagging, 0, &obs(clear, OUT_UP), &T).map(|w| w.0),
+            Some(Harvesting)
+        );
+        assert_eq!(
+            wanted_transition(Sagging, 0, &obs(T.hold_uv - 1, OUT_UP), &T).map(|w| w.0),
+            Some(CutOff)
+        );
     }
 
     fn harvesting_detector() -> CutoffDetector {
-        CutoffDetector { state: Harvesting, entered_ms: 0, pending: None }
+        CutoffDetector {
+            state: Harvesting,
+            entered_ms: 0,
+            pending: None,
+        }
     }
 
     #[test]
@@ -229,8 +337,13 @@ mod tests {
         for t in start..start + debounce {
             assert_eq!(d.update(t, &low, &T), None, "one tick short at {t}");
         }
-        let event = d.update(start + debounce, &low, &T).expect("exactly at the debounce time");
-        assert_eq!((event.from, event.to, event.cause), (Harvesting, CutOff, InputBelowHold));
+        let event = d
+            .update(start + debounce, &low, &T)
+            .expect("exactly at the debounce time");
+        assert_eq!(
+            (event.from, event.to, event.cause),
+            (Harvesting, CutOff, InputBelowHold)
+        );
         assert_eq!(d.state(), CutOff);
         assert_eq!(d.entered_ms(), start + debounce);
         // One tick past a fresh condition in another detector also switches.
@@ -261,7 +374,9 @@ mod tests {
         d.update(0, &obs(NEAR, OUT_UP), &T);
         d.update(debounce / 2, &obs(LOW, OUT_UP), &T);
         assert_eq!(d.update(debounce, &obs(LOW, OUT_UP), &T), None);
-        let e = d.update(debounce / 2 + debounce, &obs(LOW, OUT_UP), &T).unwrap();
+        let e = d
+            .update(debounce / 2 + debounce, &obs(LOW, OUT_UP), &T)
+            .unwrap();
         assert_eq!(e.to, CutOff);
     }
 }

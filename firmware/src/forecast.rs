@@ -29,7 +29,9 @@ impl Default for InputTrend {
 impl InputTrend {
     /// An empty window.
     pub const fn new() -> Self {
-        InputTrend { points: HistoryBuf::new() }
+        InputTrend {
+            points: HistoryBuf::new(),
+        }
     }
 
     /// Adds the mean input voltage of an interval that ended at `t_ms`.
@@ -153,7 +155,10 @@ mod tests {
     fn storage_runout_worked_example() {
         // Any physics text: 10 F from 2.7 V to 0.9 V at 10 mW constant power:
         // t = C (V1² - V2²) / (2 P) = 10 * (7.29 - 0.81) / 0.02 = 3240 s.
-        assert_eq!(storage_runout_ms(10_000_000, 2_700_000, 900_000, 10_000_000), Some(3_240_000));
+        assert_eq!(
+            storage_runout_ms(10_000_000, 2_700_000, 900_000, 10_000_000),
+            Some(3_240_000)
+        );
         assert_eq!(storage_runout_ms(0, 2_700_000, 900_000, 10), None);
         assert_eq!(storage_runout_ms(10, 900_000, 2_700_000, 10), Some(0));
     }

@@ -12,7 +12,11 @@ pub struct Running {
 
 impl Default for Running {
     fn default() -> Self {
-        Running { min: u32::MAX, max: 0, sum: 0 }
+        Running {
+            min: u32::MAX,
+            max: 0,
+            sum: 0,
+        }
     }
 }
 
@@ -109,7 +113,10 @@ impl IntervalStats {
     /// Starts a new interval, keeping the sub-millisecond time carry.
     pub fn restart(&mut self) {
         let carry = self.state_us_carry;
-        *self = IntervalStats { state_us_carry: carry, ..IntervalStats::default() };
+        *self = IntervalStats {
+            state_us_carry: carry,
+            ..IntervalStats::default()
+        };
     }
 }
 
@@ -121,13 +128,25 @@ mod tests {
     fn min_mean_max_and_state_time() {
         let mut s = IntervalStats::default();
         for (i, v) in [100u32, 300, 200].into_iter().enumerate() {
-            let sample = Sample { input_uv: v, input_na: 10, output_uv: v * 2, output_na: 0 };
-            let state = if i == 2 { CutoffState::Sagging } else { CutoffState::Harvesting };
+            let sample = Sample {
+                input_uv: v,
+                input_na: 10,
+                output_uv: v * 2,
+                output_na: 0,
+            };
+            let state = if i == 2 {
+                CutoffState::Sagging
+            } else {
+                CutoffState::Harvesting
+            };
             s.add(&sample, ReportFlags::default(), state, 333_400);
         }
         let sum = s.summary();
         assert_eq!(sum.count, 3);
-        assert_eq!((sum.input_uv.min(), sum.input_uv.mean, sum.input_uv.max()), (100, 200, 300));
+        assert_eq!(
+            (sum.input_uv.min(), sum.input_uv.mean, sum.input_uv.max()),
+            (100, 200, 300)
+        );
         assert_eq!(sum.output_uv.mean, 400);
         // 333.4 ms per sample: 666 ms (carry 0.8) then 333 + 1 from the carry.
         assert_eq!(sum.state_ms.harvesting_ms, 666);
@@ -136,6 +155,9 @@ mod tests {
 
     #[test]
     fn empty_interval_is_all_zero() {
-        assert_eq!(IntervalStats::default().summary().input_uv, ChannelStats::default());
+        assert_eq!(
+            IntervalStats::default().summary().input_uv,
+            ChannelStats::default()
+        );
     }
 }

@@ -23,7 +23,10 @@ impl OutputPin for NoPin {
 
 /// True in the states where non-essential load is shed.
 pub const fn sheds_in(state: CutoffState) -> bool {
-    matches!(state, CutoffState::Sagging | CutoffState::CutOff | CutoffState::Stalled)
+    matches!(
+        state,
+        CutoffState::Sagging | CutoffState::CutOff | CutoffState::Stalled
+    )
 }
 
 /// Drives the load switch: high = load on. Sheds on entering a risky state;
@@ -38,7 +41,11 @@ pub struct LoadShedder<P> {
 impl<P: OutputPin> LoadShedder<P> {
     /// Takes the pin and switches the load on.
     pub fn new(pin: P) -> Self {
-        let mut shedder = LoadShedder { pin, shed: true, pin_errors: 0 };
+        let mut shedder = LoadShedder {
+            pin,
+            shed: true,
+            pin_errors: 0,
+        };
         shedder.set(false);
         shedder
     }
@@ -66,7 +73,11 @@ impl<P: OutputPin> LoadShedder<P> {
         if shed == self.shed {
             return;
         }
-        let result = if shed { self.pin.set_low() } else { self.pin.set_high() };
+        let result = if shed {
+            self.pin.set_low()
+        } else {
+            self.pin.set_high()
+        };
         match result {
             Ok(()) => self.shed = shed,
             Err(_) => self.pin_errors = self.pin_errors.saturating_add(1),

@@ -31,7 +31,11 @@ pub struct EnergyIntegrator {
 impl EnergyIntegrator {
     /// A zero total with no previous point.
     pub const fn new() -> Self {
-        EnergyIntegrator { total_nj: 0, carry: 0, last: None }
+        EnergyIntegrator {
+            total_nj: 0,
+            carry: 0,
+            last: None,
+        }
     }
 
     /// Adds the point `(t_us, power_fw)`: the trapezoid back to the previous point
@@ -102,7 +106,9 @@ pub fn efficiency_ppm(drawn_nj: u64, delivered_nj: u64, stored_nj: i64) -> Optio
     if drawn_nj < EFFICIENCY_FLOOR_NJ {
         return None;
     }
-    let out = i128::from(delivered_nj).saturating_add(i128::from(stored_nj)).max(0);
+    let out = i128::from(delivered_nj)
+        .saturating_add(i128::from(stored_nj))
+        .max(0);
     let ppm = out
         .saturating_mul(1_000_000)
         .checked_div(i128::from(drawn_nj))?;
@@ -121,13 +127,18 @@ pub struct Meter {
 impl Meter {
     /// A meter at zero.
     pub const fn new() -> Self {
-        Meter { input: EnergyIntegrator::new(), output: EnergyIntegrator::new() }
+        Meter {
+            input: EnergyIntegrator::new(),
+            output: EnergyIntegrator::new(),
+        }
     }
 
     /// Adds one calibrated sample taken at `t_us`.
     pub fn add(&mut self, t_us: u64, sample: &gleaner_protocol::Sample) {
-        self.input.add(t_us, power_fw(sample.input_uv, sample.input_na));
-        self.output.add(t_us, power_fw(sample.output_uv, sample.output_na));
+        self.input
+            .add(t_us, power_fw(sample.input_uv, sample.input_na));
+        self.output
+            .add(t_us, power_fw(sample.output_uv, sample.output_na));
     }
 }
 
@@ -178,7 +189,10 @@ mod tests {
         }
         let exact_nj = 1.234_567e-6 * 86_400.0 * 1e9;
         let got = e.total_nj() as f64;
-        assert!((got - exact_nj).abs() / exact_nj < 1e-6, "{got} vs {exact_nj}");
+        assert!(
+            (got - exact_nj).abs() / exact_nj < 1e-6,
+            "{got} vs {exact_nj}"
+        );
         // and it is the exact integer sum, carry included
         assert_eq!(e.total_nj_exact().0, 106_666_588);
     }
@@ -209,10 +223,19 @@ mod tests {
     #[test]
     fn capacitor_energy_worked_examples() {
         // Any physics text: 10 F at 2.7 V holds 36.45 J; 2.7 -> 0.9 V frees 32.4 J.
-        assert_eq!(capacitor_energy_change_nj(10_000_000, 0, 2_700_000), 36_450_000_000);
-        assert_eq!(capacitor_energy_change_nj(10_000_000, 2_700_000, 900_000), -32_400_000_000);
+        assert_eq!(
+            capacitor_energy_change_nj(10_000_000, 0, 2_700_000),
+            36_450_000_000
+        );
+        assert_eq!(
+            capacitor_energy_change_nj(10_000_000, 2_700_000, 900_000),
+            -32_400_000_000
+        );
         // 100 uF from 3.3 to 1.8 V: 0.3825 mJ.
-        assert_eq!(capacitor_energy_change_nj(100, 3_300_000, 1_800_000), -382_500);
+        assert_eq!(
+            capacitor_energy_change_nj(100, 3_300_000, 1_800_000),
+            -382_500
+        );
     }
 
     #[test]

@@ -9,7 +9,7 @@ use gleaner_protocol::{
     SampleBlock, Uplink, UplinkBody, MAX_BURST_SAMPLES, MAX_DOWNLINK_FRAME_LEN,
     MAX_UPLINK_FRAME_LEN, PROTOCOL_VERSION, SAMPLES_PER_BLOCK,
 };
-use heapless::{Deque, Vec};
+use heapless::{Deque, HistoryBuf, Vec};
 
 use crate::calibration::{calibrate, RawSample};
 use crate::config::validate;
@@ -19,6 +19,11 @@ use crate::forecast::{storage_runout_ms, InputTrend};
 use crate::interval::IntervalStats;
 use crate::load_shed::LoadShedder;
 use crate::meter::Meter;
+
+/// Samples averaged for the storage voltage: a single sample's noise would
+/// swing the storage energy of a large capacitor by more than an interval's
+/// harvest.
+pub const STORAGE_SMOOTHING: usize = 8;
 
 /// Messages waiting to be sent. When full, the newest message is dropped and
 /// counted; its sequence number is still used, so the host sees the loss.
@@ -98,6 +103,7 @@ pub struct Node<P, S> {
     interval: IntervalStats,
     interval_start: Option<IntervalStart>,
     stored_level_nj: i64,
+    recent_output_uv: HistoryBuf<u32, STORAGE_SMOOTHING>,
     boot_stored_level_nj: Option<i64>,
     reset_baseline: EnergyTotals,
     input_cutoff_in_ms: Option<u32>,
@@ -134,6 +140,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             interval: IntervalStats::default(),
             interval_start: None,
             stored_level_nj: 0,
+            recent_output_uv: HistoryBuf::new(),
             boot_stored_level_nj: None,
             reset_baseline: EnergyTotals::default(),
             input_cutoff_in_ms: None,
@@ -155,18 +162,28 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
     /// blocks as they fall due.
     pub fn on_sample(&mut self, t_us: u64, raw: &RawSample) {
         let (sample, flags) = calibrate(&self.config.calibration, raw);
-        let dt_us = self.advance_clock(t_us);
-        self.meter.add(t_us, &sample);
-        self.stored_level_nj = storage_level_nj(self.config.output_storage_uf, sample.output_uv);
+        // Storage level first: a new interval starts from this sample's level.
+        self.recent_output_uv.write(sample.output_uv);
+        let count = u64::try_from(self.recent_output_uv.len()).unwrap_or(1);
+        let sum = self
+            .recent_output_uv
+            .iter()
+            .fold(0u64, |acc, &v| acc.saturating_add(u64::from(v)));
+        let smoothed = u32::try_from(sum.checked_div(count).unwrap_or(0)).unwrap_or(u32::MAX);
+        self.stored_level_nj = storage_level_nj(self.config.output_storage_uf, smoothed);
         if self.boot_stored_level_nj.is_none() {
             self.boot_stored_level_nj = Some(self.stored_level_nj);
         }
-        self.interval.add(&sample, flags, self.detector.state(), dt_us);
+        let dt_us = self.advance_clock(t_us);
+        self.meter.add(t_us, &sample);
+        self.interval
+            .add(&sample, flags, self.detector.state(), dt_us);
         self.last_sample = sample;
 
         let now_ms = t_us / 1000;
         let seen = Observation {
             input_uv: sample.input_uv,
+            input_na: sample.input_na,
             output_uv: sample.output_uv,
             input_cutoff_in_ms: self.input_cutoff_in_ms,
         };
@@ -189,7 +206,8 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
         let dt_us = self.advance_clock(t_us);
         self.stats.sampler_errors = self.stats.sampler_errors.saturating_add(1);
         self.interval.add_time(self.detector.state(), dt_us);
-        self.interval.flag(gleaner_protocol::ReportFlags::SAMPLER_ERROR);
+        self.interval
+            .flag(gleaner_protocol::ReportFlags::SAMPLER_ERROR);
         self.close_interval_if_due(t_us);
     }
 
@@ -199,7 +217,10 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
         for &byte in bytes {
             if let Some(Ok(downlink)) = self.rx.push_byte(byte) {
                 let outcome = self.execute(downlink.command);
-                let reply = Reply { request_id: downlink.request_id, outcome };
+                let reply = Reply {
+                    request_id: downlink.request_id,
+                    outcome,
+                };
                 self.enqueue(UplinkBody::Reply(reply));
             }
         }
@@ -220,7 +241,10 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
     }
 
     /// Writes every queued frame to `sink`; returns the bytes written.
-    pub fn write_pending<W: embedded_io::Write>(&mut self, sink: &mut W) -> Result<usize, W::Error> {
+    pub fn write_pending<W: embedded_io::Write>(
+        &mut self,
+        sink: &mut W,
+    ) -> Result<usize, W::Error> {
         let mut buf = [0u8; MAX_UPLINK_FRAME_LEN];
         let mut written = 0usize;
         while let Some(frame) = self.next_frame(&mut buf) {
@@ -251,7 +275,11 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
         let base = &self.reset_baseline;
         EnergyTotals {
             drawn_nj: self.meter.input.total_nj().saturating_sub(base.drawn_nj),
-            delivered_nj: self.meter.output.total_nj().saturating_sub(base.delivered_nj),
+            delivered_nj: self
+                .meter
+                .output
+                .total_nj()
+                .saturating_sub(base.delivered_nj),
             stored_nj: self.stored_since_boot().saturating_sub(base.stored_nj),
         }
     }
@@ -297,21 +325,28 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
     }
 
     fn close_interval_if_due(&mut self, t_us: u64) {
-        let Some(start) = self.interval_start else { return };
+        let Some(start) = self.interval_start else {
+            return;
+        };
         let length_us = t_us.saturating_sub(start.t_us);
         if length_us < u64::from(self.config.report_interval_ms).saturating_mul(1000) {
             return;
         }
         let summary = self.interval.summary();
         let drawn_nj = self.meter.input.total_nj().saturating_sub(start.drawn_nj);
-        let delivered_nj = self.meter.output.total_nj().saturating_sub(start.delivered_nj);
+        let delivered_nj = self
+            .meter
+            .output
+            .total_nj()
+            .saturating_sub(start.delivered_nj);
         let stored_nj = if self.config.output_storage_uf == 0 {
             0
         } else {
             self.stored_level_nj.saturating_sub(start.stored_level_nj)
         };
         let state = self.detector.state();
-        self.input_cutoff_in_ms = if matches!(state, CutoffState::Harvesting | CutoffState::Sagging) {
+        self.input_cutoff_in_ms = if matches!(state, CutoffState::Harvesting | CutoffState::Sagging)
+        {
             self.trend.push(t_us / 1000, summary.input_uv.mean);
             self.trend.time_to_reach(self.config.thresholds.hold_uv)
         } else {
@@ -350,7 +385,9 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
     }
 
     fn add_to_burst(&mut self, sample: Sample) {
-        let Some(burst) = self.burst.as_mut() else { return };
+        let Some(burst) = self.burst.as_mut() else {
+            return;
+        };
         // The block has room: it is sent whenever it fills or the burst ends.
         let _ = burst.block.push(sample);
         burst.remaining = burst.remaining.saturating_sub(1);
@@ -397,7 +434,11 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
                 } else if samples == 0 || samples > MAX_BURST_SAMPLES {
                     Outcome::Refused(Refusal::BurstLengthOutOfRange)
                 } else {
-                    self.burst = Some(Burst { next_index: 0, remaining: samples, block: Vec::new() });
+                    self.burst = Some(Burst {
+                        next_index: 0,
+                        remaining: samples,
+                        block: Vec::new(),
+                    });
                     Outcome::Accepted
                 }
             }
@@ -427,7 +468,11 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
     }
 
     fn enqueue(&mut self, body: UplinkBody) {
-        let message = Uplink { seq: self.seq, uptime_ms: self.now_us / 1000, body };
+        let message = Uplink {
+            seq: self.seq,
+            uptime_ms: self.now_us / 1000,
+            body,
+        };
         self.seq = self.seq.wrapping_add(1);
         if self.outbox.push_back(message).is_err() {
             self.stats.dropped_messages = self.stats.dropped_messages.saturating_add(1);

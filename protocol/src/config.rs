@@ -100,6 +100,9 @@ pub struct Thresholds {
     pub cold_start_timeout_ms: u32,
     /// Sagging when the forecast says cutoff within this time.
     pub forecast_horizon_ms: u32,
+    /// Input current below this means the converter is not drawing: stopped
+    /// (input below start) or stalled (input healthy, output not up).
+    pub input_idle_na: u32,
 }
 
 /// Everything a node can be told to change, validated on the node.

@@ -28,7 +28,11 @@ impl<const N: usize> Default for FrameSplitter<N> {
 impl<const N: usize> FrameSplitter<N> {
     /// An empty splitter.
     pub const fn new() -> Self {
-        FrameSplitter { buf: [0; N], len: 0, overflowed: false }
+        FrameSplitter {
+            buf: [0; N],
+            len: 0,
+            overflowed: false,
+        }
     }
 
     /// Takes one byte. At a delimiter that closes a non-empty frame, returns the
@@ -144,7 +148,11 @@ impl<T: DeserializeOwned, const N: usize> Default for Decoder<T, N> {
 impl<T: DeserializeOwned, const N: usize> Decoder<T, N> {
     /// A decoder in its initial state.
     pub const fn new() -> Self {
-        Decoder { splitter: FrameSplitter::new(), stats: zero_stats(), _message: PhantomData }
+        Decoder {
+            splitter: FrameSplitter::new(),
+            stats: zero_stats(),
+            _message: PhantomData,
+        }
     }
 
     /// Takes one byte; returns a result when it closes a frame.

@@ -150,6 +150,10 @@ pub enum TransitionCause {
     ColdStartTimeout,
     /// Conditions returned to normal.
     Recovered,
+    /// The converter stopped drawing input current.
+    ConverterIdle,
+    /// The converter started drawing input current.
+    ConverterStarted,
 }
 
 impl TransitionCause {
@@ -164,6 +168,8 @@ impl TransitionCause {
             TransitionCause::OutputCollapsed => "output-collapsed",
             TransitionCause::ColdStartTimeout => "cold-start-timeout",
             TransitionCause::Recovered => "recovered",
+            TransitionCause::ConverterIdle => "converter-idle",
+            TransitionCause::ConverterStarted => "converter-started",
         }
     }
 }

@@ -32,7 +32,10 @@ impl ProtocolVersion {
         if theirs.major == PROTOCOL_VERSION.major {
             Ok(())
         } else {
-            Err(VersionMismatch { ours: PROTOCOL_VERSION, theirs })
+            Err(VersionMismatch {
+                ours: PROTOCOL_VERSION,
+                theirs,
+            })
         }
     }
 }

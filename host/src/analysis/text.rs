@@ -1,0 +1,242 @@
+//! The report as readable text for the terminal.
+
+use std::fmt::Write;
+
+use super::{OutageCause, RunReport};
+
+/// Formats seconds as `1d 02:03:04`, `02:03:04` or `12.3 s`.
+pub fn duration(seconds: f64) -> String {
+    if !seconds.is_finite() {
+        return "-".into();
+    }
+    if seconds < 60.0 {
+        return format!("{seconds:.1} s");
+    }
+    let total = seconds.round() as u64;
+    let (d, h, m, s) = (
+        total / 86_400,
+        total / 3600 % 24,
+        total / 60 % 60,
+        total % 60,
+    );
+    if d > 0 {
+        format!("{d}d {h:02}:{m:02}:{s:02}")
+    } else {
+        format!("{h:02}:{m:02}:{s:02}")
+    }
+}
+
+/// Formats joules with a fitting prefix.
+pub fn energy(joules: f64) -> String {
+    let a = joules.abs();
+    if a >= 1.0 {
+        format!("{joules:.3} J")
+    } else if a >= 1e-3 {
+        format!("{:.3} mJ", joules * 1e3)
+    } else {
+        format!("{:.3} µJ", joules * 1e6)
+    }
+}
+
+/// Formats watts with a fitting prefix.
+pub fn power(watts: f64) -> String {
+    let a = watts.abs();
+    if a >= 1.0 {
+        format!("{watts:.3} W")
+    } else if a >= 1e-3 {
+        format!("{:.3} mW", watts * 1e3)
+    } else {
+        format!("{:.2} µW", watts * 1e6)
+    }
+}
+
+fn percent(x: Option<f64>) -> String {
+    x.map_or("-".into(), |v| format!("{:.1} %", v * 100.0))
+}
+
+/// Renders the whole report.
+pub fn render(report: &RunReport) -> String {
+    let mut o = String::new();
+    let _ = write_report(&mut o, report);
+    o
+}
+
+fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
+    writeln!(o, "RUN")?;
+    if let Some(h) = &r.header {
+        writeln!(
+            o,
+            "  recorded     {} on {} from {}",
+            h.started, h.host, h.source
+        )?;
+    }
+    for b in &r.boots {
+        writeln!(
+            o,
+            "  boot {}       id {:08x}, firmware {}, protocol {}, config {} (start {:.3} V, hold {:.3} V, storage {} F)",
+            b.index, b.boot_id, b.firmware, b.protocol, b.config_source, b.start_v, b.hold_v, b.storage_f
+        )?;
+    }
+    writeln!(o, "  duration     {}", duration(r.duration_s))?;
+    writeln!(
+        o,
+        "  coverage     {:.1} % ({} with data, {} recording gaps)",
+        r.coverage * 100.0,
+        duration(r.covered_s),
+        r.recording_gaps
+    )?;
+    writeln!(o, "  reboots      {}", r.link.reboots)?;
+    writeln!(o)?;
+    writeln!(o, "ENERGY")?;
+    writeln!(o, "  drawn from harvester   {}", energy(r.energy.drawn_j))?;
+    writeln!(
+        o,
+        "  delivered to load      {}",
+        energy(r.energy.delivered_j)
+    )?;
+    writeln!(o, "  change in storage      {}", energy(r.energy.stored_j))?;
+    writeln!(
+        o,
+        "  efficiency             {}   (energy ratio: (delivered + stored) / drawn)",
+        percent(r.energy.efficiency)
+    )?;
+    writeln!(o)?;
+    writeln!(o, "STATES")?;
+    for s in r.states.iter().filter(|s| s.seconds > 0.0) {
+        writeln!(
+            o,
+            "  {:<12} {:>14} {:>7.1} %",
+            s.state,
+            duration(s.seconds),
+            s.share * 100.0
+        )?;
+    }
+    writeln!(o)?;
+    writeln!(o, "OUTAGES ({})", r.outages.len())?;
+    if r.outages.is_empty() {
+        writeln!(o, "  none: the load was supplied throughout")?;
+    }
+    for (i, out) in r.outages.iter().enumerate().take(50) {
+        let cause = match out.cause {
+            OutageCause::StarvedOfInput => "starved of input",
+            OutageCause::ConverterFault => "converter fault",
+        };
+        writeln!(
+            o,
+            "  {:>2}. at {:>11} for {:>11}  {:<17} ({}); input {:.3} V, storage {:.3} V before{}",
+            i + 1,
+            duration(out.start_s),
+            duration(out.duration_s),
+            cause,
+            out.node_cause,
+            out.input_v_before,
+            out.storage_v_before,
+            if out.ongoing {
+                ", ongoing at end of log"
+            } else {
+                ""
+            }
+        )?;
+    }
+    if r.outages.len() > 50 {
+        writeln!(o, "  ... and {} more (see --json)", r.outages.len() - 50)?;
+    }
+    writeln!(o)?;
+    writeln!(o, "EFFICIENCY BY INPUT VOLTAGE")?;
+    for b in r.efficiency_by_input.iter().filter(|b| b.drawn_j > 0.0) {
+        let bar = b
+            .efficiency
+            .map_or(0, |e| (e.clamp(0.0, 1.0) * 40.0).round() as usize);
+        writeln!(
+            o,
+            "  {:.2}-{:.2} V {:>10} {:>8}  {}",
+            b.input_v_low,
+            b.input_v_high,
+            duration(b.seconds),
+            percent(b.efficiency),
+            "#".repeat(bar)
+        )?;
+    }
+    writeln!(o)?;
+    writeln!(o, "DAILY BUDGET (24 h blocks from the first report)")?;
+    for d in &r.days {
+        writeln!(
+            o,
+            "  day {:<3} harvested {:>11}  consumed {:>11}  storage {:>11}  outage {:>10}  {}",
+            d.day,
+            energy(d.harvested_j),
+            energy(d.consumed_j),
+            energy(d.stored_j),
+            duration(d.outage_s),
+            if d.energy_neutral {
+                "energy-neutral"
+            } else {
+                "not energy-neutral"
+            }
+        )?;
+    }
+    if let Some(s) = &r.sizing {
+        writeln!(o)?;
+        writeln!(o, "STORAGE AND DUTY CYCLE")?;
+        if s.outage_s > 0.0 {
+            writeln!(o, "  longest outage        {}", duration(s.outage_s))?;
+            writeln!(o, "  load while supplied   {}", power(s.load_w))?;
+            writeln!(o, "  energy to bridge it   {}", energy(s.energy_needed_j))?;
+            match s.capacitance_f {
+                Some(c) => writeln!(
+                    o,
+                    "  storage needed        {:.3} F between {:.2} V and {:.2} V (C = 2E / (Vmax² - Vmin²) = {:.3} F, times a {:.0} % margin)",
+                    c,
+                    s.v_max,
+                    s.v_min,
+                    s.capacitance_exact_f.unwrap_or(0.0),
+                    (s.margin - 1.0) * 100.0
+                )?,
+                None => writeln!(o, "  storage needed        - (the highest storage voltage seen is not above the lowest usable one)")?,
+            }
+        } else {
+            writeln!(o, "  no outage: the present storage was enough")?;
+        }
+        writeln!(o, "  mean harvest          {}", power(s.harvest_w))?;
+        writeln!(
+            o,
+            "  load asleep / active  {} / {}",
+            power(s.sleep_w),
+            power(s.active_w)
+        )?;
+        writeln!(
+            o,
+            "  largest duty cycle    {}",
+            s.max_duty_cycle.map_or(
+                "- (the harvest does not cover even the sleep power)".into(),
+                |d| format!("{:.2} %", d * 100.0)
+            )
+        )?;
+    }
+    writeln!(o)?;
+    writeln!(o, "LINK")?;
+    let l = &r.link;
+    writeln!(o, "  frames {}, lost {}, CRC errors {}, framing errors {}, undecodable {}, duplicates {}, reboots {}", l.frames, l.lost_frames, l.crc_errors, l.framing_errors, l.decode_errors, l.duplicates, l.reboots)?;
+    for w in &r.warnings {
+        writeln!(o, "  warning: {w}")?;
+    }
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn durations_read_naturally() {
+        assert_eq!(duration(12.34), "12.3 s");
+        assert_eq!(duration(3_723.0), "01:02:03");
+        assert_eq!(duration(90_061.0), "1d 01:01:01");
+    }
+
+    #[test]
+    fn units_get_prefixes() {
+        assert_eq!(energy(0.0123), "12.300 mJ");
+        assert_eq!(power(2.5e-5), "25.00 µW");
+    }
+}

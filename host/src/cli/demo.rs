@@ -1,0 +1,149 @@
+//! `gleaner demo`: the whole path with no hardware.
+
+use std::io::IsTerminal;
+use std::path::PathBuf;
+use std::sync::atomic::Ordering;
+use std::time::Duration;
+
+use anyhow::Result;
+use clap::Args;
+
+use crate::analysis::{analyze_file, html, text};
+use crate::link::DEFAULT_BAUD;
+use crate::recorder::{run_port, Recorder};
+use crate::sim::port::VirtualPort;
+use crate::sim::scenario::DEFAULT_SCENARIO;
+use crate::sim::{Scenario, VirtualNode};
+use crate::view::observer::{Display, LiveObserver};
+
+/// Run a scenario on a virtual node, record it through a pseudo-terminal
+/// exactly as from a real port, show it live, and report on the recording.
+#[derive(Debug, Args)]
+pub struct Cmd {
+    /// Built-in scenario (see `gleaner sim list`) or a scenario TOML file.
+    #[arg(long, default_value = DEFAULT_SCENARIO)]
+    pub scenario: String,
+    /// Simulated time runs this many times faster than real time
+    /// (default: the whole scenario in about 20 seconds).
+    #[arg(long)]
+    pub speed: Option<f64>,
+    /// Folder for the log and the HTML report.
+    #[arg(long, default_value = "gleaner-runs")]
+    pub out: PathBuf,
+    /// Plain progress lines even on a terminal.
+    #[arg(long)]
+    pub plain: bool,
+}
+
+impl Cmd {
+    /// Runs the demo.
+    pub fn run(self) -> Result<()> {
+        let scenario = Scenario::load(&self.scenario)?;
+        let speed = self.speed.unwrap_or(scenario.duration_s() / 20.0).max(1.0);
+        println!(
+            "Gleaner demo: scenario '{}' ({:.1} h simulated, {speed:.0}x real time)",
+            scenario.name, scenario.duration_h
+        );
+        println!("  {}", scenario.description);
+        let name = scenario.name.clone();
+        let boot_id = std::time::SystemTime::now()
+            .duration_since(std::time::UNIX_EPOCH)
+            .map(|d| d.subsec_nanos())
+            .unwrap_or(1);
+        let node = VirtualNode::new(scenario, boot_id)?;
+        let port = VirtualPort::spawn(node, Some(speed))?;
+        let log_path = super::new_log_path(&self.out, &name);
+        let mut recorder = Recorder::create(
+            &log_path,
+            &format!("virtual node '{name}' on {}", port.path()),
+        )?;
+        println!(
+            "  virtual node on {}; recording to {}",
+            port.path(),
+            log_path.display()
+        );
+
+        let stop = super::stop_flag()?;
+        let screen = !self.plain && std::io::stdout().is_terminal();
+        let display = if screen {
+            Display::Screen(ratatui::init())
+        } else {
+            Display::Plain {
+                every: Some(Duration::from_secs(2)),
+            }
+        };
+        let port_ref = &port;
+        let mut observer = LiveObserver::new(
+            display,
+            &format!("virtual node: {name}"),
+            Box::new(std::io::stdout()),
+            Box::new(move |_, idle| port_ref.finished() && idle > Duration::from_millis(500)),
+        );
+        let result = run_port(
+            &mut recorder,
+            port.path(),
+            DEFAULT_BAUD,
+            &stop,
+            &mut observer,
+        );
+        observer.close();
+        let quit = observer.quit || stop.load(Ordering::Relaxed);
+        drop(observer);
+        recorder.finish()?;
+        result?;
+        let progress = port.progress();
+        let truth = port.stop()?;
+        if quit {
+            println!(
+                "stopped early at {:.1} of {:.1} simulated hours",
+                progress.simulated_s / 3600.0,
+                progress.total_s / 3600.0
+            );
+        }
+
+        let report = analyze_file(&log_path)?;
+        println!();
+        print!("{}", text::render(&report));
+        let html_path = log_path.with_extension("html");
+        match html::render(&report) {
+            Ok(page) => std::fs::write(&html_path, page)?,
+            Err(e) => eprintln!("warning: the HTML report could not be drawn: {e}"),
+        }
+        println!();
+        println!("SIMULATOR GROUND TRUTH (what really happened)");
+        println!(
+            "  drawn {}, delivered {}, storage change {}, efficiency {}",
+            text::energy(truth.drawn_j),
+            text::energy(truth.delivered_j),
+            text::energy(truth.storage_now_j - truth.storage_start_j),
+            truth
+                .efficiency()
+                .map_or("-".into(), |e| format!("{:.1} %", e * 100.0))
+        );
+        if truth.drawn_j > 0.0 {
+            println!(
+                "  the node's drawn energy is within {:.2} % of the truth, delivered within {:.2} %",
+                (report.energy.drawn_j - truth.drawn_j).abs() / truth.drawn_j * 100.0,
+                (report.energy.delivered_j - truth.delivered_j).abs() / truth.delivered_j.max(1e-12) * 100.0
+            );
+        }
+        println!();
+        println!("Log:  {}", log_path.display());
+        println!(
+            "Page: {} (open it in a browser; it needs no network)",
+            html_path.display()
+        );
+        println!(
+            "Next: gleaner report {}       (the same report again, or --json)",
+            log_path.display()
+        );
+        println!(
+            "      gleaner watch --replay {}   (watch it again)",
+            log_path.display()
+        );
+        println!(
+            "      gleaner demo --scenario crate-beacon   (other scenarios: gleaner sim list)"
+        );
+        Ok(())
+    }
+}

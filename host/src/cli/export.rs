@@ -1,0 +1,37 @@
+//! `gleaner export`: recorded runs as CSV.
+
+use std::path::PathBuf;
+
+use anyhow::Result;
+use clap::Args;
+
+use crate::export::export_csv;
+
+/// Export a recorded run as CSV: one row per report (units in the column
+/// names) and the state transitions in a second file.
+#[derive(Debug, Args)]
+pub struct Cmd {
+    /// The log.
+    pub log: PathBuf,
+    /// Prefix of the files written (default: the log's path without extension).
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+}
+
+impl Cmd {
+    /// Runs the command.
+    pub fn run(self) -> Result<()> {
+        let prefix = self
+            .out
+            .clone()
+            .unwrap_or_else(|| self.log.with_extension(""));
+        let done = export_csv(&self.log, &prefix)?;
+        println!(
+            "{} reports to {}",
+            done.reports,
+            done.reports_path.display()
+        );
+        println!("{} events to {}", done.events, done.events_path.display());
+        Ok(())
+    }
+}

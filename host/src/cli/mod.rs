@@ -1,0 +1,99 @@
+//! The command-line interface: one module per command, each with `run(self)`.
+
+pub mod demo;
+pub mod export;
+pub mod node;
+pub mod plan;
+pub mod ports;
+pub mod record;
+pub mod report;
+pub mod sim;
+pub mod watch;
+
+use clap::{Parser, Subcommand};
+
+/// Gleaner: how much energy your harvester delivers, how well the step-up
+/// stage converts it, and when and why your node loses power.
+#[derive(Debug, Parser)]
+#[command(name = "gleaner", version, about, long_about = None)]
+pub struct Cli {
+    /// What to do.
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// The commands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Run a virtual node through the whole path: simulate, record, watch, report.
+    Demo(demo::Cmd),
+    /// List serial ports, to find the node.
+    Ports(ports::Cmd),
+    /// Watch a node live (or replay a recording), optionally recording it.
+    Watch(watch::Cmd),
+    /// Record a node to a log file, headless, for long runs.
+    Record(record::Cmd),
+    /// Talk to a node: ping, info, configuration, counters, bursts.
+    Node(node::Cmd),
+    /// Report on recorded runs: energy, efficiency, outages, sizing advice.
+    Report(report::Cmd),
+    /// Export recorded runs as CSV.
+    Export(export::Cmd),
+    /// Size storage and duty cycle from numbers, before any deployment.
+    Plan(plan::Cmd),
+    /// Virtual-node tools: scenarios and source I-V curves.
+    Sim(sim::Cmd),
+}
+
+impl Cli {
+    /// Runs the chosen command.
+    pub fn run(self) -> anyhow::Result<()> {
+        match self.command {
+            Command::Demo(c) => c.run(),
+            Command::Ports(c) => c.run(),
+            Command::Watch(c) => c.run(),
+            Command::Record(c) => c.run(),
+            Command::Node(c) => c.run(),
+            Command::Report(c) => c.run(),
+            Command::Export(c) => c.run(),
+            Command::Plan(c) => c.run(),
+            Command::Sim(c) => c.run(),
+        }
+    }
+}
+
+/// A stop flag set by Ctrl-C or SIGTERM.
+pub fn stop_flag() -> anyhow::Result<std::sync::Arc<std::sync::atomic::AtomicBool>> {
+    let flag = std::sync::Arc::new(std::sync::atomic::AtomicBool::new(false));
+    for signal in [signal_hook::consts::SIGINT, signal_hook::consts::SIGTERM] {
+        signal_hook::flag::register(signal, flag.clone())?;
+    }
+    Ok(flag)
+}
+
+/// A fresh log path `DIR/NAME-YYYYMMDD-HHMMSS.glog`.
+pub fn new_log_path(dir: &std::path::Path, name: &str) -> std::path::PathBuf {
+    let stamp = humantime::format_rfc3339_seconds(std::time::SystemTime::now()).to_string();
+    let stamp: String = stamp
+        .chars()
+        .filter(|c| c.is_ascii_digit())
+        .take(14)
+        .collect();
+    let safe: String = name
+        .chars()
+        .map(|c| {
+            if c.is_ascii_alphanumeric() || c == '-' {
+                c
+            } else {
+                '_'
+            }
+        })
+        .collect();
+    let mut path = dir.join(format!("{safe}-{stamp}.glog"));
+    let mut n = 1;
+    while path.exists() {
+        path = dir.join(format!("{safe}-{stamp}-{n}.glog"));
+        n += 1;
+    }
+    path
+}

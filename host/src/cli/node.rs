@@ -1,0 +1,322 @@
+//! `gleaner node`: commands to a node, each answered by request id.
+
+use std::io::{Read, Write};
+use std::path::PathBuf;
+use std::time::{Duration, Instant};
+
+use anyhow::{bail, Context, Result};
+use clap::{Args, Subcommand};
+use gleaner_protocol::{
+    encode_frame, Command, Downlink, FrameSplitter, Hello, Outcome, Sample, UplinkBody,
+    MAX_DOWNLINK_FRAME_LEN, MAX_UPLINK_FRAME_LEN,
+};
+use serialport::SerialPort;
+
+use crate::link::{open_port, LinkTracker, DEFAULT_BAUD};
+use crate::settings::NodeSettings;
+
+/// Talk to a node.
+#[derive(Debug, Args)]
+pub struct Cmd {
+    /// Serial port of the node (see `gleaner ports`).
+    #[arg(long, short)]
+    pub port: String,
+    /// Line rate.
+    #[arg(long, default_value_t = DEFAULT_BAUD)]
+    pub baud: u32,
+    /// Seconds to wait for the node's answer.
+    #[arg(long, default_value_t = 3.0)]
+    pub timeout: f64,
+    /// What to ask.
+    #[command(subcommand)]
+    pub action: Action,
+}
+
+/// What to ask the node.
+#[derive(Debug, Subcommand)]
+pub enum Action {
+    /// Check that the node answers, and how fast.
+    Ping,
+    /// Show the node's versions, boot id and configuration.
+    Info,
+    /// Change the configuration; the node checks it and refuses a bad one with a reason.
+    SetConfig(SetConfig),
+    /// Zero the node's energy totals.
+    ResetEnergy,
+    /// Record a burst of samples at the full sampling rate to CSV.
+    Burst {
+        /// Number of samples.
+        samples: u32,
+        /// CSV file to write.
+        #[arg(long, default_value = "burst.csv")]
+        out: PathBuf,
+    },
+}
+
+/// New settings: from a TOML file, from flags, or both (flags win).
+#[derive(Debug, Args)]
+pub struct SetConfig {
+    /// TOML file of settings (same keys as the flags, with underscores).
+    #[arg(long)]
+    pub file: Option<PathBuf>,
+    /// Report interval, ms.
+    #[arg(long)]
+    pub report_interval_ms: Option<u32>,
+    /// Start threshold, V.
+    #[arg(long)]
+    pub start_v: Option<f64>,
+    /// Hold threshold, V.
+    #[arg(long)]
+    pub hold_v: Option<f64>,
+    /// Sag margin above hold, V.
+    #[arg(long)]
+    pub sag_margin_v: Option<f64>,
+    /// Output-up threshold, V.
+    #[arg(long)]
+    pub output_up_v: Option<f64>,
+    /// Output-down threshold, V.
+    #[arg(long)]
+    pub output_down_v: Option<f64>,
+    /// Debounce, ms.
+    #[arg(long)]
+    pub debounce_ms: Option<u32>,
+    /// Output storage, µF (0: none).
+    #[arg(long)]
+    pub output_storage_uf: Option<u32>,
+}
+
+impl SetConfig {
+    fn settings(&self) -> Result<NodeSettings> {
+        let mut s = match &self.file {
+            Some(path) => NodeSettings::from_toml(
+                &std::fs::read_to_string(path)
+                    .with_context(|| format!("cannot read {}", path.display()))?,
+            )
+            .with_context(|| format!("in {}", path.display()))?,
+            None => NodeSettings::default(),
+        };
+        macro_rules! take {
+            ($($f:ident),*) => { $( if self.$f.is_some() { s.$f = self.$f; } )* };
+        }
+        take!(
+            report_interval_ms,
+            start_v,
+            hold_v,
+            sag_margin_v,
+            output_up_v,
+            output_down_v,
+            debounce_ms,
+            output_storage_uf
+        );
+        Ok(s)
+    }
+}
+
+/// A command session on an open port.
+pub struct Session {
+    port: Box<dyn SerialPort>,
+    splitter: FrameSplitter<MAX_UPLINK_FRAME_LEN>,
+    tracker: LinkTracker,
+    next_id: u16,
+    timeout: Duration,
+    /// The last `Hello` received.
+    pub hello: Option<Hello>,
+    /// Burst samples received, by index.
+    pub samples: Vec<(u32, Sample, u32)>,
+}
+
+impl Session {
+    /// Opens `port`.
+    pub fn open(port: &str, baud: u32, timeout: Duration) -> Result<Self> {
+        let port = open_port(port, baud)?;
+        Ok(Session {
+            port,
+            splitter: FrameSplitter::new(),
+            tracker: LinkTracker::new(),
+            next_id: 1,
+            timeout,
+            hello: None,
+            samples: Vec::new(),
+        })
+    }
+
+    /// Sends `command` and waits for its reply; collects `Hello`s and samples meanwhile.
+    /// `extra` extends the wait (bursts take time).
+    pub fn request(&mut self, command: Command, extra: Duration) -> Result<Outcome> {
+        let request_id = self.next_id;
+        self.next_id = self.next_id.wrapping_add(1).max(1);
+        let mut buf = [0u8; MAX_DOWNLINK_FRAME_LEN];
+        let frame = encode_frame(
+            &Downlink {
+                request_id,
+                command,
+            },
+            &mut buf,
+        )
+        .context("encoding the command")?;
+        self.port.write_all(frame).context("writing to the port")?;
+        self.port.flush().ok();
+        let deadline = Instant::now() + self.timeout + extra;
+        let mut outcome = None;
+        let mut rx = [0u8; 1024];
+        while Instant::now() < deadline {
+            let n = match self.port.read(&mut rx) {
+                Ok(n) => n,
+                Err(e)
+                    if matches!(
+                        e.kind(),
+                        std::io::ErrorKind::TimedOut | std::io::ErrorKind::WouldBlock
+                    ) =>
+                {
+                    0
+                }
+                Err(e) => return Err(e).context("reading from the port"),
+            };
+            for &byte in &rx[..n] {
+                let Some(Ok(frame)) = self.splitter.push(byte) else {
+                    continue;
+                };
+                let Ok(Some(tracked)) = self.tracker.accept_encoded(frame) else {
+                    continue;
+                };
+                match tracked.message.body {
+                    UplinkBody::Hello(h) => self.hello = Some(h),
+                    UplinkBody::Samples(block) => {
+                        for (i, s) in block.samples.iter().enumerate() {
+                            self.samples
+                                .push((block.first_index + i as u32, *s, block.period_us));
+                        }
+                        if block.remaining == 0 && outcome.is_some() {
+                            return Ok(outcome.unwrap_or(Outcome::Accepted));
+                        }
+                    }
+                    UplinkBody::Reply(r) if r.request_id == request_id => {
+                        outcome = Some(r.outcome);
+                    }
+                    _ => {}
+                }
+            }
+            if let Some(o) = outcome {
+                if extra.is_zero() {
+                    return Ok(o);
+                }
+            }
+        }
+        match outcome {
+            Some(o) => Ok(o),
+            None => bail!(
+                "the node did not answer within {:.1} s: check the port, the baud rate, and that the node runs Gleaner firmware ({} frames heard, {} damaged)",
+                (self.timeout + extra).as_secs_f64(),
+                self.tracker.stats().frames,
+                self.tracker.stats().damaged()
+            ),
+        }
+    }
+}
+
+fn explain(outcome: Outcome) -> Result<()> {
+    match outcome {
+        Outcome::Refused(reason) => {
+            bail!("the node refused: {reason}; its previous settings stay in force")
+        }
+        Outcome::Pong | Outcome::Accepted => Ok(()),
+    }
+}
+
+impl Cmd {
+    /// Runs the command.
+    pub fn run(self) -> Result<()> {
+        let mut session =
+            Session::open(&self.port, self.baud, Duration::from_secs_f64(self.timeout))?;
+        match self.action {
+            Action::Ping => {
+                let started = Instant::now();
+                explain(session.request(Command::Ping, Duration::ZERO)?)?;
+                println!("pong in {:.1} ms", started.elapsed().as_secs_f64() * 1e3);
+            }
+            Action::Info => {
+                explain(session.request(Command::GetInfo, Duration::ZERO)?)?;
+                let hello = session
+                    .hello
+                    .context("the node accepted but sent no Hello")?;
+                print_hello(&hello);
+            }
+            Action::SetConfig(set) => {
+                let settings = set.settings()?;
+                explain(session.request(Command::GetInfo, Duration::ZERO)?)?;
+                let current = session
+                    .hello
+                    .as_ref()
+                    .context("the node sent no Hello")?
+                    .config;
+                let config = settings.apply(&current)?;
+                explain(session.request(Command::SetConfig(config), Duration::ZERO)?)?;
+                println!("configuration accepted and stored");
+            }
+            Action::ResetEnergy => {
+                explain(session.request(Command::ResetEnergy, Duration::ZERO)?)?;
+                println!("energy totals reset");
+            }
+            Action::Burst { samples, out } => {
+                let period_s = session
+                    .hello
+                    .as_ref()
+                    .map_or(0.01, |h| f64::from(h.sample_period_us) / 1e6);
+                let extra =
+                    Duration::from_secs_f64(f64::from(samples) * period_s.max(0.001) * 2.0 + 1.0);
+                explain(session.request(Command::StartBurst { samples }, extra)?)?;
+                let mut file = std::fs::File::create(&out)
+                    .with_context(|| format!("cannot create {}", out.display()))?;
+                writeln!(file, "index,time_us,input_uv,input_na,output_uv,output_na")?;
+                for (i, s, period) in &session.samples {
+                    writeln!(
+                        file,
+                        "{i},{},{},{},{},{}",
+                        u64::from(*i) * u64::from(*period),
+                        s.input_uv,
+                        s.input_na,
+                        s.output_uv,
+                        s.output_na
+                    )?;
+                }
+                println!(
+                    "{} of {samples} samples written to {}",
+                    session.samples.len(),
+                    out.display()
+                );
+            }
+        }
+        Ok(())
+    }
+}
+
+/// Prints a `Hello` for people.
+pub fn print_hello(h: &Hello) {
+    let t = &h.config.thresholds;
+    println!(
+        "firmware {}  protocol {}  boot id {:08x}  sample period {} µs",
+        h.firmware, h.protocol, h.boot_id, h.sample_period_us
+    );
+    println!("configuration from {:?}", h.config_source);
+    println!("  report interval   {} ms", h.config.report_interval_ms);
+    println!(
+        "  start / hold      {:.3} V / {:.3} V (sag margin {:.3} V)",
+        f64::from(t.start_uv) / 1e6,
+        f64::from(t.hold_uv) / 1e6,
+        f64::from(t.sag_margin_uv) / 1e6
+    );
+    println!(
+        "  output up / down  {:.3} V / {:.3} V",
+        f64::from(t.output_up_uv) / 1e6,
+        f64::from(t.output_down_uv) / 1e6
+    );
+    println!("  debounce {} ms, cold-start timeout {} ms, forecast horizon {} ms, input idle below {} nA", t.debounce_ms, t.cold_start_timeout_ms, t.forecast_horizon_ms, t.input_idle_na);
+    println!(
+        "  output storage    {} µF, load restored after {} ms",
+        h.config.output_storage_uf, h.config.load_restore_ms
+    );
+    println!(
+        "totals since reset: drawn {} nJ, delivered {} nJ, stored {} nJ",
+        h.totals.drawn_nj, h.totals.delivered_nj, h.totals.stored_nj
+    );
+}

@@ -1,0 +1,54 @@
+//! `gleaner ports`: list serial ports.
+
+use anyhow::Result;
+use clap::Args;
+
+use crate::link::list_ports;
+
+/// List every serial port with its type and, for USB, vendor and product ids
+/// and serial number, so you can tell which one is the node.
+#[derive(Debug, Args)]
+pub struct Cmd {
+    /// Print JSON instead of a table.
+    #[arg(long)]
+    pub json: bool,
+}
+
+impl Cmd {
+    /// Runs the command.
+    pub fn run(self) -> Result<()> {
+        let ports = list_ports()?;
+        if self.json {
+            println!("{}", serde_json::to_string_pretty(&ports)?);
+            return Ok(());
+        }
+        if ports.is_empty() {
+            println!("no serial ports found: plug the node in (and check `dmesg` on Linux), or try `gleaner demo` to run a virtual node");
+            return Ok(());
+        }
+        println!(
+            "{:<24} {:<9} {:<9} {:<20} description",
+            "port", "type", "vid:pid", "serial"
+        );
+        for p in ports {
+            let ids = match (&p.vid, &p.pid) {
+                (Some(v), Some(d)) => format!("{v}:{d}"),
+                _ => "-".into(),
+            };
+            let desc = [p.manufacturer.as_deref(), p.product.as_deref()]
+                .into_iter()
+                .flatten()
+                .collect::<Vec<_>>()
+                .join(" ");
+            println!(
+                "{:<24} {:<9} {:<9} {:<20} {}",
+                p.name,
+                p.kind,
+                ids,
+                p.serial_number.as_deref().unwrap_or("-"),
+                desc
+            );
+        }
+        Ok(())
+    }
+}

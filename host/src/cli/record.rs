@@ -1,0 +1,101 @@
+//! `gleaner record`: headless recording for long runs.
+
+use std::io::Write;
+use std::path::PathBuf;
+use std::time::{Duration, Instant};
+
+use anyhow::Result;
+use clap::Args;
+
+use crate::analysis::text::duration;
+use crate::link::{LinkStats, DEFAULT_BAUD};
+use crate::recorder::{run_port, Recorder};
+use crate::view::observer::{Display, LiveObserver};
+
+/// Record a node to a log file: reconnects when the port disappears and comes
+/// back (the gap is marked in the log), prints a status line now and then,
+/// and stops cleanly on Ctrl-C or SIGTERM with everything flushed.
+#[derive(Debug, Args)]
+pub struct Cmd {
+    /// Serial port of the node (see `gleaner ports`).
+    pub port: String,
+    /// Line rate.
+    #[arg(long, default_value_t = DEFAULT_BAUD)]
+    pub baud: u32,
+    /// Log file to create (default: a new file in --dir).
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// Folder for the new log when --out is not given.
+    #[arg(long, default_value = "gleaner-runs")]
+    pub dir: PathBuf,
+    /// Seconds between status lines on stderr (0: none).
+    #[arg(long, default_value_t = 60)]
+    pub status_every: u64,
+    /// Stop after this many seconds (default: until Ctrl-C or SIGTERM).
+    #[arg(long)]
+    pub duration: Option<f64>,
+}
+
+impl Cmd {
+    /// Runs the command.
+    pub fn run(self) -> Result<()> {
+        let path = self.out.clone().unwrap_or_else(|| {
+            let name = std::path::Path::new(&self.port)
+                .file_name()
+                .map_or("node".into(), |n| n.to_string_lossy().into_owned());
+            super::new_log_path(&self.dir, &name)
+        });
+        let mut recorder = Recorder::create(&path, &self.port)?;
+        eprintln!(
+            "recording {} to {} (Ctrl-C stops)",
+            self.port,
+            path.display()
+        );
+        let stop = super::stop_flag()?;
+        let started = Instant::now();
+        let status_every = Duration::from_secs(self.status_every);
+        let mut last_status = Instant::now();
+        let limit = self.duration.map(Duration::from_secs_f64);
+        let done = move |stats: &LinkStats, _idle: Duration| {
+            if self.status_every > 0 && last_status.elapsed() >= status_every {
+                last_status = Instant::now();
+                eprintln!(
+                    "[{}] frames {} lost {} crc {} framing {} reboots {}{}",
+                    duration(started.elapsed().as_secs_f64()),
+                    stats.frames,
+                    stats.lost_frames,
+                    stats.crc_errors,
+                    stats.framing_errors,
+                    stats.reboots,
+                    if stats.likely_wrong_baud() {
+                        " - mostly errors: is the baud rate right?"
+                    } else {
+                        ""
+                    }
+                );
+            }
+            limit.is_some_and(|l| started.elapsed() >= l)
+        };
+        let mut observer = LiveObserver::new(
+            Display::Silent,
+            &self.port,
+            Box::new(std::io::sink()),
+            Box::new(done),
+        );
+        let result = run_port(&mut recorder, &self.port, self.baud, &stop, &mut observer);
+        let finished = recorder.finish();
+        let stats = *recorder.stats();
+        result?;
+        finished?;
+        let _ = std::io::stderr().flush();
+        eprintln!(
+            "stopped: {} frames, {} lost, {} damaged, {} reboots; log {}",
+            stats.frames,
+            stats.lost_frames,
+            stats.damaged(),
+            stats.reboots,
+            path.display()
+        );
+        Ok(())
+    }
+}

@@ -1,0 +1,97 @@
+//! `gleaner report`: what happened in recorded runs.
+
+use std::path::PathBuf;
+
+use anyhow::{Context, Result};
+use clap::Args;
+
+use crate::analysis::{analyze_file, html, text, RunReport};
+
+/// Report on one or more recorded runs: duration and coverage, time in each
+/// state, every outage with its cause, energy and efficiency (overall and by
+/// input voltage), daily budgets, storage and duty-cycle advice, link quality.
+#[derive(Debug, Args)]
+pub struct Cmd {
+    /// Log files (one per node for a fleet).
+    #[arg(required = true)]
+    pub logs: Vec<PathBuf>,
+    /// Print JSON (schema `gleaner.report.v1`, see docs/report-json.md).
+    #[arg(long)]
+    pub json: bool,
+    /// Also write an HTML page with plots here (one log only).
+    #[arg(long)]
+    pub html: Option<PathBuf>,
+}
+
+impl Cmd {
+    /// Runs the command.
+    pub fn run(self) -> Result<()> {
+        let mut reports: Vec<(PathBuf, RunReport)> = Vec::new();
+        for log in &self.logs {
+            reports.push((log.clone(), analyze_file(log)?));
+        }
+        if let Some(path) = &self.html {
+            let (_, first) = reports.first().context("no log given")?;
+            let page =
+                html::render(first).map_err(|e| anyhow::anyhow!("cannot draw the plots: {e}"))?;
+            std::fs::write(path, page)
+                .with_context(|| format!("cannot write {}", path.display()))?;
+            eprintln!("wrote {}", path.display());
+        }
+        if self.json {
+            if reports.len() == 1 {
+                println!("{}", serde_json::to_string_pretty(&reports[0].1)?);
+            } else {
+                let all: Vec<&RunReport> = reports.iter().map(|(_, r)| r).collect();
+                println!("{}", serde_json::to_string_pretty(&all)?);
+            }
+            return Ok(());
+        }
+        if reports.len() == 1 {
+            print!("{}", text::render(&reports[0].1));
+            return Ok(());
+        }
+        println!(
+            "{:<40} {:>12} {:>12} {:>12} {:>9} {:>8} {:>6}",
+            "log", "duration", "drawn", "delivered", "eff.", "outages", "lost"
+        );
+        let (mut drawn, mut delivered, mut stored, mut outages, mut lost) =
+            (0.0, 0.0, 0.0, 0usize, 0u64);
+        for (path, r) in &reports {
+            println!(
+                "{:<40} {:>12} {:>12} {:>12} {:>9} {:>8} {:>6}",
+                path.file_name()
+                    .map_or("?".into(), |n| n.to_string_lossy().into_owned()),
+                text::duration(r.duration_s),
+                text::energy(r.energy.drawn_j),
+                text::energy(r.energy.delivered_j),
+                r.energy
+                    .efficiency
+                    .map_or("-".into(), |e| format!("{:.1} %", e * 100.0)),
+                r.outages.len(),
+                r.link.lost_frames
+            );
+            drawn += r.energy.drawn_j;
+            delivered += r.energy.delivered_j;
+            stored += r.energy.stored_j;
+            outages += r.outages.len();
+            lost += r.link.lost_frames;
+        }
+        let eff = if drawn > 0.0 {
+            format!("{:.1} %", (delivered + stored) / drawn * 100.0)
+        } else {
+            "-".into()
+        };
+        println!(
+            "{:<40} {:>12} {:>12} {:>12} {:>9} {:>8} {:>6}",
+            "FLEET",
+            "",
+            text::energy(drawn),
+            text::energy(delivered),
+            eff,
+            outages,
+            lost
+        );
+        Ok(())
+    }
+}

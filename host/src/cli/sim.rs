@@ -1,0 +1,183 @@
+//! `gleaner sim`: scenarios and source curves of the virtual node.
+
+use std::path::PathBuf;
+
+use anyhow::{bail, Result};
+use clap::{Args, Subcommand};
+
+use crate::log::{LogWriter, MarkerKind};
+use crate::recorder::header_for;
+use crate::sim::numeric::golden_max;
+use crate::sim::scenario::BUILTIN;
+use crate::sim::source::{Source, SourceParams};
+use crate::sim::{Scenario, VirtualNode};
+
+/// Virtual-node tools.
+#[derive(Debug, Args)]
+pub struct Cmd {
+    /// What to do.
+    #[command(subcommand)]
+    pub action: Action,
+}
+
+/// Virtual-node actions.
+#[derive(Debug, Subcommand)]
+pub enum Action {
+    /// List the built-in scenarios.
+    List,
+    /// Print a scenario's TOML (a starting point for your own).
+    Show {
+        /// Built-in name or file.
+        scenario: String,
+    },
+    /// Print a source's I-V curve and maximum-power point as CSV, to compare
+    /// the model with measurements of your own cell.
+    Curve(Curve),
+    /// Simulate a scenario straight into a log file, as fast as possible
+    /// (no pseudo-terminal; host times are simulated).
+    Run {
+        /// Built-in name or file.
+        scenario: String,
+        /// Log file to create.
+        #[arg(long)]
+        out: PathBuf,
+    },
+}
+
+/// Conditions for a curve.
+#[derive(Debug, Args)]
+pub struct Curve {
+    /// The scenario whose source to use (built-in name or file).
+    #[arg(long, default_value = crate::sim::scenario::DEFAULT_SCENARIO)]
+    pub scenario: String,
+    /// Irradiance for a solar source, W/m².
+    #[arg(long)]
+    pub irradiance: Option<f64>,
+    /// Cell temperature for a solar source, °C.
+    #[arg(long)]
+    pub celsius: Option<f64>,
+    /// Depth of discharge for a cell (0 fresh, 1 spent).
+    #[arg(long)]
+    pub depth: Option<f64>,
+    /// Capacitor voltage for a supercapacitor, V.
+    #[arg(long)]
+    pub volts: Option<f64>,
+    /// Temperature difference for a thermoelectric generator, K.
+    #[arg(long)]
+    pub delta_k: Option<f64>,
+    /// Points on the curve.
+    #[arg(long, default_value_t = 50)]
+    pub points: usize,
+}
+
+impl Curve {
+    fn source(&self) -> Result<Source> {
+        let scenario = Scenario::load(&self.scenario)?;
+        let mut params = scenario.source.clone();
+        match &mut params {
+            SourceParams::Solar {
+                daylight,
+                cell_celsius,
+                ..
+            } => {
+                let g = self.irradiance.unwrap_or(daylight.peak_w_m2);
+                if !(0.0..=1500.0).contains(&g) {
+                    bail!("--irradiance must be 0 to 1500 W/m², got {g}");
+                }
+                daylight.peak_w_m2 = g;
+                daylight.night_w_m2 = g;
+                daylight.clouds_per_hour = 0.0;
+                if let Some(c) = self.celsius {
+                    *cell_celsius = c;
+                }
+            }
+            SourceParams::Cell { cell } => {
+                let d = self.depth.unwrap_or(cell.initial_depth);
+                if !(0.0..=1.2).contains(&d) {
+                    bail!("--depth must be 0 to 1.2, got {d}");
+                }
+                cell.initial_depth = d;
+            }
+            SourceParams::Supercap { cap } => cap.initial_v = self.volts.unwrap_or(cap.initial_v),
+            SourceParams::Thermoelectric { pipe, .. } => {
+                let dk = self.delta_k.unwrap_or(pipe.running_delta_k);
+                pipe.running_delta_k = dk;
+                pipe.idle_delta_k = dk;
+            }
+        }
+        let mut source = Source::new(&params, 12.0, 1.0, 1);
+        if let SourceParams::Thermoelectric { .. } = params {
+            // Let the pipe settle at the requested difference.
+            for _ in 0..100 {
+                source.set_conditions(0.0, 1e6);
+            }
+        }
+        Ok(source)
+    }
+}
+
+impl Cmd {
+    /// Runs the command.
+    pub fn run(self) -> Result<()> {
+        match self.action {
+            Action::List => {
+                for (name, _) in BUILTIN {
+                    let s = Scenario::builtin(name)?;
+                    println!("{name:<20} {:>5.1} h  {}", s.duration_h, s.description);
+                }
+            }
+            Action::Show { scenario } => match BUILTIN.iter().find(|(n, _)| *n == scenario) {
+                Some((_, text)) => print!("{text}"),
+                None => print!("{}", toml::to_string(&Scenario::load(&scenario)?)?),
+            },
+            Action::Curve(c) => {
+                if c.points < 2 || c.points > 100_000 {
+                    bail!("--points must be 2 to 100000");
+                }
+                let source = c.source()?;
+                let voc = source.open_circuit_voltage();
+                println!("# open-circuit voltage {voc:.6} V");
+                let (v_mp, p_mp) = golden_max(0.0, voc.max(0.0), |v| v * source.current_at(v));
+                println!(
+                    "# maximum power {p_mp:.6e} W at {v_mp:.6} V, {:.6e} A",
+                    source.current_at(v_mp)
+                );
+                println!("voltage_v,current_a,power_w");
+                for i in 0..c.points {
+                    let v = voc * i as f64 / (c.points - 1) as f64;
+                    let a = source.current_at(v);
+                    println!("{v:.6},{a:.6e},{:.6e}", v * a);
+                }
+            }
+            Action::Run { scenario, out } => {
+                let scenario = Scenario::load(&scenario)?;
+                let name = scenario.name.clone();
+                let mut writer = LogWriter::create(
+                    &out,
+                    &header_for(&format!("virtual node '{name}' (simulated host times)")),
+                )?;
+                let start_us = crate::log::now_us();
+                writer.append_marker(start_us, MarkerKind::PortOpened, "simulated")?;
+                let mut node = VirtualNode::new(scenario, 1)?;
+                let mut bytes = Vec::new();
+                while !node.finished() {
+                    node.step();
+                    node.drain_frames(&mut bytes);
+                    let t = start_us + node.now_us();
+                    for frame in bytes.split(|&b| b == 0).filter(|f| !f.is_empty()) {
+                        writer.append_frame(t, frame)?;
+                    }
+                    bytes.clear();
+                }
+                writer.append_marker(
+                    start_us + node.now_us(),
+                    MarkerKind::Stopped,
+                    "end of scenario",
+                )?;
+                writer.sync()?;
+                println!("{} records to {}", writer.records_written(), out.display());
+            }
+        }
+        Ok(())
+    }
+}

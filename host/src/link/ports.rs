@@ -1,0 +1,136 @@
+//! Serial ports: listing and opening, with clear errors.
+
+use std::time::Duration;
+
+use anyhow::{anyhow, Result};
+use serde::Serialize;
+use serialport::{SerialPort, SerialPortType};
+
+/// The node's default line rate.
+pub const DEFAULT_BAUD: u32 = 115_200;
+
+/// One serial port as the operating system reports it.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub struct PortInfo {
+    /// Path or name to open.
+    pub name: String,
+    /// "usb", "pci", "bluetooth" or "unknown".
+    pub kind: String,
+    /// USB vendor id, hex.
+    pub vid: Option<String>,
+    /// USB product id, hex.
+    pub pid: Option<String>,
+    /// USB serial number.
+    pub serial_number: Option<String>,
+    /// USB manufacturer.
+    pub manufacturer: Option<String>,
+    /// USB product name.
+    pub product: Option<String>,
+}
+
+/// Every serial port the operating system knows.
+pub fn list_ports() -> Result<Vec<PortInfo>> {
+    let ports =
+        serialport::available_ports().map_err(|e| anyhow!("cannot list serial ports: {e}"))?;
+    Ok(ports
+        .into_iter()
+        .map(|p| {
+            let mut info = PortInfo {
+                name: p.port_name,
+                kind: "unknown".into(),
+                vid: None,
+                pid: None,
+                serial_number: None,
+                manufacturer: None,
+                product: None,
+            };
+            match p.port_type {
+                SerialPortType::UsbPort(usb) => {
+                    info.kind = "usb".into();
+                    info.vid = Some(format!("{:04x}", usb.vid));
+                    info.pid = Some(format!("{:04x}", usb.pid));
+                    info.serial_number = usb.serial_number;
+                    info.manufacturer = usb.manufacturer;
+                    info.product = usb.product;
+                }
+                SerialPortType::PciPort => info.kind = "pci".into(),
+                SerialPortType::BluetoothPort => info.kind = "bluetooth".into(),
+                SerialPortType::Unknown => {}
+            }
+            info
+        })
+        .collect())
+}
+
+/// Turns an open failure into a message that says what to do.
+pub fn explain_open_error(port: &str, err: &serialport::Error) -> anyhow::Error {
+    use serialport::ErrorKind;
+    let text = err.to_string();
+    let lower = text.to_lowercase();
+    match err.kind() {
+        ErrorKind::NoDevice => anyhow!(
+            "serial port {port} does not exist or went away ({text}); run `gleaner ports` to see the ports present, and check the cable"
+        ),
+        ErrorKind::Io(std::io::ErrorKind::NotFound) => anyhow!(
+            "serial port {port} not found; run `gleaner ports` to see the ports present"
+        ),
+        ErrorKind::Io(std::io::ErrorKind::PermissionDenied) => anyhow!(permission_hint(port)),
+        _ if lower.contains("permission denied") => anyhow!(permission_hint(port)),
+        _ if lower.contains("busy") || lower.contains("resource temporarily unavailable") => anyhow!(
+            "serial port {port} is in use by another program (a serial monitor, another gleaner, a modem manager); close it and try again"
+        ),
+        _ => anyhow!("cannot open serial port {port}: {text}"),
+    }
+}
+
+fn permission_hint(port: &str) -> String {
+    if cfg!(target_os = "linux") {
+        format!(
+            "permission denied opening {port}: on Linux, add yourself to the group that owns it (usually `dialout`: `sudo usermod -aG dialout $USER`), then log out and in again"
+        )
+    } else {
+        format!("permission denied opening {port}: check that your user may use serial devices")
+    }
+}
+
+/// Opens `port` at `baud` (8N1, no flow control) with a short read timeout.
+pub fn open_port(port: &str, baud: u32) -> Result<Box<dyn SerialPort>> {
+    serialport::new(port, baud)
+        .timeout(Duration::from_millis(50))
+        .open()
+        .map_err(|e| explain_open_error(port, &e))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_missing_port_says_how_to_find_the_right_one() {
+        let err = open_port("/dev/gleaner-no-such-port", DEFAULT_BAUD)
+            .err()
+            .unwrap()
+            .to_string();
+        assert!(err.contains("gleaner ports"), "{err}");
+    }
+
+    #[test]
+    fn permission_errors_name_the_group() {
+        let err = serialport::Error::new(
+            serialport::ErrorKind::Io(std::io::ErrorKind::PermissionDenied),
+            "Permission denied",
+        );
+        let msg = explain_open_error("/dev/ttyACM0", &err).to_string();
+        if cfg!(target_os = "linux") {
+            assert!(msg.contains("dialout"), "{msg}");
+        }
+    }
+
+    #[test]
+    fn busy_ports_are_named_as_busy() {
+        let err = serialport::Error::new(serialport::ErrorKind::Unknown, "Device or resource busy");
+        assert!(explain_open_error("/dev/ttyUSB0", &err)
+            .to_string()
+            .contains("in use"));
+    }
+}

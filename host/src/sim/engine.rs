@@ -1,0 +1,180 @@
+//! The virtual node: the physics models produce raw counts, and the unmodified
+//! firmware [`Node`] turns them into frames.
+
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
+
+use anyhow::Result;
+use embedded_hal::digital::{ErrorType, OutputPin};
+use gleaner_firmware::config_store::MemoryStorage;
+use gleaner_firmware::{Node, NodeParts};
+use gleaner_protocol::{ConfigSource, MAX_UPLINK_FRAME_LEN};
+use rand::SeedableRng;
+use rand_pcg::Pcg64Mcg;
+
+use super::converter::{Converter, StepOutcome};
+use super::scenario::Scenario;
+use super::source::Source;
+use super::truth::GroundTruth;
+
+/// The load-shed pin of the virtual node: low sheds the simulated load's
+/// non-essential part.
+#[derive(Debug, Clone, Default)]
+pub struct SimPin(Arc<AtomicBool>);
+
+impl SimPin {
+    /// True while the load is shed (pin low).
+    pub fn is_shed(&self) -> bool {
+        !self.0.load(Ordering::Relaxed)
+    }
+}
+
+impl ErrorType for SimPin {
+    type Error = core::convert::Infallible;
+}
+
+impl OutputPin for SimPin {
+    fn set_low(&mut self) -> Result<(), Self::Error> {
+        self.0.store(false, Ordering::Relaxed);
+        Ok(())
+    }
+    fn set_high(&mut self) -> Result<(), Self::Error> {
+        self.0.store(true, Ordering::Relaxed);
+        Ok(())
+    }
+}
+
+/// Bytes of simulated configuration flash.
+pub const SIM_FLASH_LEN: usize = gleaner_firmware::config_store::STORE_LEN;
+
+/// The node type the simulator runs.
+pub type SimNode = Node<SimPin, MemoryStorage<SIM_FLASH_LEN>>;
+
+/// A simulated node with its physical surroundings.
+pub struct VirtualNode {
+    scenario: Scenario,
+    source: Source,
+    converter: Converter,
+    pin: SimPin,
+    node: SimNode,
+    rng: Pcg64Mcg,
+    step_index: u64,
+    truth: GroundTruth,
+    last: Option<StepOutcome>,
+    load_powered: bool,
+}
+
+impl VirtualNode {
+    /// Builds the models and boots the node with the scenario's configuration.
+    pub fn new(scenario: Scenario, boot_id: u32) -> Result<Self> {
+        let config = scenario.node_config()?;
+        let pin = SimPin::default();
+        let node = Node::new(NodeParts {
+            config,
+            config_source: ConfigSource::Stored,
+            boot_id,
+            sample_period_us: scenario.sample_period_ms.saturating_mul(1000),
+            load_pin: pin.clone(),
+            storage: MemoryStorage::new(),
+        });
+        let source = Source::new(
+            &scenario.source,
+            scenario.start_hour,
+            scenario.duration_s(),
+            scenario.seed,
+        );
+        Ok(VirtualNode {
+            converter: Converter::new(scenario.converter),
+            source,
+            pin,
+            node,
+            rng: Pcg64Mcg::seed_from_u64(scenario.seed ^ 0x5eed_ad0c),
+            step_index: 0,
+            truth: GroundTruth::default(),
+            last: None,
+            load_powered: false,
+            scenario,
+        })
+    }
+
+    /// The scenario.
+    pub fn scenario(&self) -> &Scenario {
+        &self.scenario
+    }
+
+    /// Simulated time of the next sample, µs.
+    pub fn now_us(&self) -> u64 {
+        self.step_index * u64::from(self.scenario.sample_period_ms) * 1000
+    }
+
+    /// True once the scenario's duration has been simulated.
+    pub fn finished(&self) -> bool {
+        self.now_us() as f64 > self.scenario.duration_s() * 1e6
+    }
+
+    /// Simulates one sample period and gives the counts to the node.
+    pub fn step(&mut self) {
+        let dt = f64::from(self.scenario.sample_period_ms) / 1000.0;
+        let t_us = self.now_us();
+        let t = t_us as f64 / 1e6;
+        self.source.set_conditions(t, dt);
+        let outcome = self.converter.step(
+            t - dt,
+            dt,
+            &self.source,
+            &self.scenario.load,
+            self.pin.is_shed(),
+            self.load_powered,
+        );
+        self.load_powered = self
+            .scenario
+            .load
+            .powered_at(outcome.output_v, self.load_powered);
+        self.source.advance(dt, outcome.input_a);
+        self.truth
+            .add(t, &outcome, self.scenario.converter.output_capacitance_f);
+        let raw = self.scenario.front_end.sample(
+            outcome.input_v,
+            outcome.input_a,
+            outcome.output_v,
+            outcome.load_a,
+            &mut self.rng,
+        );
+        self.node.on_sample(t_us, &raw);
+        self.last = Some(outcome);
+        self.step_index += 1;
+    }
+
+    /// Feeds bytes from the host to the node.
+    pub fn receive(&mut self, bytes: &[u8]) {
+        self.node.on_received(bytes);
+    }
+
+    /// Appends every frame the node has queued to `out`.
+    pub fn drain_frames(&mut self, out: &mut Vec<u8>) {
+        let mut buf = [0u8; MAX_UPLINK_FRAME_LEN];
+        while let Some(frame) = self.node.next_frame(&mut buf) {
+            out.extend_from_slice(frame);
+        }
+    }
+
+    /// What really happened so far.
+    pub fn truth(&self) -> &GroundTruth {
+        &self.truth
+    }
+
+    /// The last step's true values.
+    pub fn last_step(&self) -> Option<&StepOutcome> {
+        self.last.as_ref()
+    }
+
+    /// The firmware node.
+    pub fn node(&self) -> &SimNode {
+        &self.node
+    }
+
+    /// The source (for its condition).
+    pub fn source(&self) -> &Source {
+        &self.source
+    }
+}

@@ -1,0 +1,340 @@
+//! Scenarios: a source, a converter, a load and a front-end over a stretch of
+//! time, written in TOML. The built-in ones live in `host/scenarios/` and are
+//! invented for settings of our own; they double as examples of the format.
+
+use anyhow::{bail, Context, Result};
+use serde::{Deserialize, Serialize};
+
+use super::adc::FrontEndParams;
+use super::converter::{ConverterParams, InputMode};
+use super::load::LoadParams;
+use super::source::SourceParams;
+use crate::settings::NodeSettings;
+
+/// A complete simulated run.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Scenario {
+    /// Short name.
+    pub name: String,
+    /// What it shows; say that it is invented.
+    pub description: String,
+    /// Simulated length, hours.
+    pub duration_h: f64,
+    /// Hour of day at the start (0-24).
+    #[serde(default)]
+    pub start_hour: f64,
+    /// Time between samples, ms.
+    pub sample_period_ms: u32,
+    /// Seed of every random process (clouds, noise).
+    #[serde(default = "default_seed")]
+    pub seed: u64,
+    /// The harvester.
+    pub source: SourceParams,
+    /// The step-up stage.
+    pub converter: ConverterParams,
+    /// What it feeds.
+    pub load: LoadParams,
+    /// The measuring front-end.
+    #[serde(default = "FrontEndParams::default_board")]
+    pub front_end: FrontEndParams,
+    /// Overrides of the node's default configuration.
+    #[serde(default)]
+    pub node: NodeSettings,
+}
+
+fn default_seed() -> u64 {
+    1
+}
+
+/// The built-in scenarios: name and TOML text.
+pub const BUILTIN: &[(&str, &str)] = &[
+    (
+        "greenhouse-day",
+        include_str!("../../scenarios/greenhouse-day.toml"),
+    ),
+    (
+        "crate-beacon",
+        include_str!("../../scenarios/crate-beacon.toml"),
+    ),
+    (
+        "orchard-night",
+        include_str!("../../scenarios/orchard-night.toml"),
+    ),
+    (
+        "boiler-pipe",
+        include_str!("../../scenarios/boiler-pipe.toml"),
+    ),
+    (
+        "stalled-converter",
+        include_str!("../../scenarios/stalled-converter.toml"),
+    ),
+];
+
+/// The scenario the demo runs when none is named.
+pub const DEFAULT_SCENARIO: &str = "greenhouse-day";
+
+fn positive(field: &str, value: f64) -> Result<()> {
+    if !(value.is_finite() && value > 0.0) {
+        bail!("{field} must be a positive number, got {value}");
+    }
+    Ok(())
+}
+
+fn within(field: &str, value: f64, lo: f64, hi: f64) -> Result<()> {
+    if !(value.is_finite() && (lo..=hi).contains(&value)) {
+        bail!("{field} must be between {lo} and {hi}, got {value}");
+    }
+    Ok(())
+}
+
+impl Scenario {
+    /// A built-in scenario by name.
+    pub fn builtin(name: &str) -> Result<Self> {
+        let Some((_, text)) = BUILTIN.iter().find(|(n, _)| *n == name) else {
+            let names: Vec<&str> = BUILTIN.iter().map(|(n, _)| *n).collect();
+            bail!(
+                "no built-in scenario named '{name}'; choose one of: {}",
+                names.join(", ")
+            );
+        };
+        Self::from_toml(text).with_context(|| format!("built-in scenario '{name}'"))
+    }
+
+    /// Reads a built-in name, or a path to a TOML file.
+    pub fn load(name_or_path: &str) -> Result<Self> {
+        if BUILTIN.iter().any(|(n, _)| *n == name_or_path) {
+            return Self::builtin(name_or_path);
+        }
+        let path = std::path::Path::new(name_or_path);
+        if !path.exists() {
+            return Self::builtin(name_or_path);
+        }
+        let text = std::fs::read_to_string(path)
+            .with_context(|| format!("cannot read scenario file {}", path.display()))?;
+        Self::from_toml(&text).with_context(|| format!("scenario file {}", path.display()))
+    }
+
+    /// Parses and validates TOML text; errors name the field.
+    pub fn from_toml(text: &str) -> Result<Self> {
+        let scenario: Scenario = toml::from_str(text).context("invalid scenario")?;
+        scenario.validate()?;
+        Ok(scenario)
+    }
+
+    /// Checks every number for sense; the error names the field.
+    pub fn validate(&self) -> Result<()> {
+        positive("duration_h", self.duration_h)?;
+        within("duration_h", self.duration_h, 0.0, 24.0 * 366.0)?;
+        within("start_hour", self.start_hour, 0.0, 24.0)?;
+        within(
+            "sample_period_ms",
+            f64::from(self.sample_period_ms),
+            1.0,
+            60_000.0,
+        )?;
+        match &self.source {
+            SourceParams::Cell { cell } => {
+                positive("source.capacity_mah", cell.capacity_mah)?;
+                positive("source.fresh_resistance_ohm", cell.fresh_resistance_ohm)?;
+                within("source.initial_depth", cell.initial_depth, 0.0, 1.2)?;
+            }
+            SourceParams::Solar {
+                cell,
+                daylight,
+                cell_celsius,
+            } => {
+                positive("source.cell.photocurrent_ref_a", cell.photocurrent_ref_a)?;
+                positive(
+                    "source.cell.saturation_current_ref_a",
+                    cell.saturation_current_ref_a,
+                )?;
+                within("source.cell.series_ohm", cell.series_ohm, 0.0, 1e6)?;
+                positive("source.cell.shunt_ref_ohm", cell.shunt_ref_ohm)?;
+                positive("source.cell.n_ns_vth_ref", cell.n_ns_vth_ref)?;
+                within("source.cell_celsius", *cell_celsius, -60.0, 120.0)?;
+                within(
+                    "source.daylight.sunrise_hour",
+                    daylight.sunrise_hour,
+                    0.0,
+                    24.0,
+                )?;
+                within(
+                    "source.daylight.sunset_hour",
+                    daylight.sunset_hour,
+                    daylight.sunrise_hour,
+                    24.0,
+                )?;
+                within("source.daylight.peak_w_m2", daylight.peak_w_m2, 0.0, 1500.0)?;
+                within(
+                    "source.daylight.night_w_m2",
+                    daylight.night_w_m2,
+                    0.0,
+                    1500.0,
+                )?;
+                within(
+                    "source.daylight.clouds_per_hour",
+                    daylight.clouds_per_hour,
+                    0.0,
+                    60.0,
+                )?;
+                positive("source.daylight.cloud_minutes", daylight.cloud_minutes)?;
+                within(
+                    "source.daylight.cloud_transmission",
+                    daylight.cloud_transmission,
+                    0.0,
+                    1.0,
+                )?;
+            }
+            SourceParams::Supercap { cap } => {
+                positive("source.capacitance_f", cap.capacitance_f)?;
+                positive("source.series_ohm", cap.series_ohm)?;
+                positive("source.leakage_ohm", cap.leakage_ohm)?;
+                within("source.initial_v", cap.initial_v, 0.0, 100.0)?;
+            }
+            SourceParams::Thermoelectric { generator, pipe } => {
+                positive(
+                    "source.generator.seebeck_v_per_k",
+                    generator.seebeck_v_per_k,
+                )?;
+                positive("source.generator.internal_ohm", generator.internal_ohm)?;
+                within(
+                    "source.pipe.running_delta_k",
+                    pipe.running_delta_k,
+                    0.0,
+                    500.0,
+                )?;
+                within("source.pipe.idle_delta_k", pipe.idle_delta_k, 0.0, 500.0)?;
+                positive("source.pipe.cycle_minutes", pipe.cycle_minutes)?;
+                within("source.pipe.duty", pipe.duty, 0.0, 1.0)?;
+                positive(
+                    "source.pipe.time_constant_minutes",
+                    pipe.time_constant_minutes,
+                )?;
+            }
+        }
+        let c = &self.converter;
+        positive("converter.start_v", c.start_v)?;
+        positive("converter.hold_v", c.hold_v)?;
+        if c.hold_v >= c.start_v {
+            bail!(
+                "converter.hold_v ({}) must be below converter.start_v ({})",
+                c.hold_v,
+                c.start_v
+            );
+        }
+        match c.input {
+            InputMode::Resistive { ohms } => positive("converter.input.ohms", ohms)?,
+            InputMode::FractionalVoc { fraction } => {
+                within("converter.input.fraction", fraction, 0.05, 0.99)?
+            }
+        }
+        within("converter.peak_efficiency", c.peak_efficiency, 0.0, 1.0)?;
+        within(
+            "converter.efficiency_floor_v",
+            c.efficiency_floor_v,
+            0.0,
+            100.0,
+        )?;
+        positive("converter.efficiency_knee_v", c.efficiency_knee_v)?;
+        within("converter.quiescent_w", c.quiescent_w, 0.0, 10.0)?;
+        positive("converter.output_capacitance_f", c.output_capacitance_f)?;
+        within("converter.initial_output_v", c.initial_output_v, 0.0, 100.0)?;
+        if let Some(v) = c.regulation_v {
+            positive("converter.regulation_v", v)?;
+        }
+        if let Some(v) = c.fault_at_s {
+            within("converter.fault_at_s", v, 0.0, 1e9)?;
+        }
+        if let Some(v) = c.fault_for_s {
+            positive("converter.fault_for_s", v)?;
+        }
+        match self.load {
+            LoadParams::SensorNode {
+                sleep_a,
+                active_a,
+                period_s,
+                active_s,
+                min_v,
+                sheddable_a,
+            } => {
+                within("load.sleep_a", sleep_a, 0.0, 10.0)?;
+                within("load.active_a", active_a, 0.0, 10.0)?;
+                positive("load.period_s", period_s)?;
+                within("load.active_s", active_s, 0.0, period_s)?;
+                within("load.min_v", min_v, 0.0, 100.0)?;
+                within("load.sheddable_a", sheddable_a, 0.0, 10.0)?;
+            }
+            LoadParams::Led { saturation_a, n_vt } => {
+                positive("load.saturation_a", saturation_a)?;
+                positive("load.n_vt", n_vt)?;
+            }
+        }
+        within(
+            "front_end.adc_bits",
+            f64::from(self.front_end.adc_bits),
+            8.0,
+            24.0,
+        )?;
+        positive("front_end.reference_v", self.front_end.reference_v)?;
+        within("front_end.noise_lsb", self.front_end.noise_lsb, 0.0, 1000.0)?;
+        if self.front_end.calibration().is_none() {
+            bail!("front_end: a divider, shunt or gain is zero or the scale overflows");
+        }
+        self.node_config()?;
+        Ok(())
+    }
+
+    /// The configuration this scenario gives its node, checked by the node's own rules.
+    pub fn node_config(&self) -> Result<gleaner_protocol::NodeConfig> {
+        let mut base = gleaner_firmware::config::default_config();
+        base.calibration = self.front_end.calibration().context("front_end")?;
+        let config = self.node.apply(&base).context("[node] settings")?;
+        gleaner_firmware::config::validate(&config).map_err(|reason| {
+            anyhow::anyhow!("[node] settings are refused by the node: {reason}")
+        })?;
+        Ok(config)
+    }
+
+    /// Simulated length in seconds.
+    pub fn duration_s(&self) -> f64 {
+        self.duration_h * 3600.0
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn every_builtin_parses_and_validates() {
+        for (name, _) in BUILTIN {
+            let s = Scenario::builtin(name).unwrap();
+            assert_eq!(&s.name, name);
+            assert!(
+                s.description.to_lowercase().contains("invented"),
+                "{name} must say it is invented"
+            );
+        }
+    }
+
+    #[test]
+    fn errors_name_the_bad_field() {
+        let text = BUILTIN[0].1.replacen("hold_v = 0.7", "hold_v = 0.99", 1);
+        let err = Scenario::from_toml(&text).unwrap_err();
+        assert!(format!("{err:#}").contains("converter.hold_v"), "{err:#}");
+        let text = BUILTIN[0].1.replace("start_v = 0.9\n", "start_v = 0.6\n");
+        let err = Scenario::from_toml(&text).unwrap_err();
+        assert!(
+            format!("{err:#}").contains("[node] settings are refused by the node: hold threshold"),
+            "{err:#}"
+        );
+        let text = format!("{}\nbogus = 1\n", BUILTIN[0].1);
+        let err = Scenario::from_toml(&text).unwrap_err();
+        assert!(format!("{err:#}").contains("bogus"), "{err:#}");
+        assert!(Scenario::builtin("nope")
+            .unwrap_err()
+            .to_string()
+            .contains("greenhouse-day"));
+    }
+}

@@ -1,0 +1,135 @@
+//! Connects the recorder's port loop to the live view.
+
+use std::io::Write;
+use std::time::{Duration, Instant};
+
+use ratatui::DefaultTerminal;
+
+use super::plain::{event_line, report_line};
+use super::{tui, LiveState};
+use crate::link::{LinkStats, Tracked};
+use crate::recorder::PortObserver;
+
+/// How the live view is shown.
+pub enum Display {
+    /// One line per report (or per `every`, when set), events as they come.
+    Plain {
+        /// Print a report line at most this often (None: every report).
+        every: Option<Duration>,
+    },
+    /// Full screen.
+    Screen(DefaultTerminal),
+    /// Nothing (tests, headless recording with its own status).
+    Silent,
+}
+
+/// Decides from the link counters and the time without data whether to stop.
+pub type DoneFn<'a> = Box<dyn FnMut(&LinkStats, Duration) -> bool + 'a>;
+
+/// A port observer that keeps a [`LiveState`] and shows it.
+pub struct LiveObserver<'a> {
+    /// The live model.
+    pub state: LiveState,
+    display: Display,
+    title: String,
+    last_line: Option<Instant>,
+    last_draw: Instant,
+    out: Box<dyn Write + 'a>,
+    done: DoneFn<'a>,
+    /// Set when the user quit from the full screen.
+    pub quit: bool,
+}
+
+impl<'a> LiveObserver<'a> {
+    /// An observer printing to `out`; `done` decides when to stop.
+    pub fn new(display: Display, title: &str, out: Box<dyn Write + 'a>, done: DoneFn<'a>) -> Self {
+        LiveObserver {
+            state: LiveState::default(),
+            display,
+            title: title.into(),
+            last_line: None,
+            last_draw: Instant::now() - Duration::from_secs(1),
+            out,
+            done,
+            quit: false,
+        }
+    }
+
+    /// Restores the terminal if the full screen was used.
+    pub fn close(&mut self) {
+        if matches!(self.display, Display::Screen(_)) {
+            ratatui::restore();
+            self.display = Display::Silent;
+        }
+    }
+}
+
+impl Drop for LiveObserver<'_> {
+    fn drop(&mut self) {
+        self.close();
+    }
+}
+
+impl PortObserver for LiveObserver<'_> {
+    fn message(&mut self, tracked: &Tracked, stats: &LinkStats) {
+        self.state.update(tracked, stats);
+        if let Display::Plain { every } = self.display {
+            match &tracked.message.body {
+                gleaner_protocol::UplinkBody::Event(e) => {
+                    let _ = writeln!(self.out, "{}", event_line(tracked.message.uptime_ms, e));
+                }
+                gleaner_protocol::UplinkBody::Report(_) => {
+                    let due = match (every, self.last_line) {
+                        (None, _) | (_, None) => true,
+                        (Some(every), Some(last)) => last.elapsed() >= every,
+                    };
+                    if due {
+                        if let Some(line) = report_line(&self.state) {
+                            let _ = writeln!(self.out, "{line}");
+                        }
+                        self.last_line = Some(Instant::now());
+                    }
+                }
+                gleaner_protocol::UplinkBody::Hello(h) => {
+                    let _ = writeln!(
+                        self.out,
+                        "node boot {:08x}: firmware {}, protocol {}, report every {} ms",
+                        h.boot_id, h.firmware, h.protocol, h.config.report_interval_ms
+                    );
+                }
+                _ => {}
+            }
+            let _ = self.out.flush();
+        }
+    }
+
+    fn tick(&mut self, stats: &LinkStats, idle_for: Duration) -> bool {
+        self.state.link = *stats;
+        if let Display::Screen(terminal) = &mut self.display {
+            if self.last_draw.elapsed() >= Duration::from_millis(100) {
+                let (state, title) = (&self.state, &self.title);
+                let _ = terminal.draw(|f| tui::draw(f, state, title));
+                self.last_draw = Instant::now();
+            }
+            if tui::quit_requested(Duration::ZERO) {
+                self.quit = true;
+                return true;
+            }
+        }
+        (self.done)(stats, idle_for)
+    }
+
+    fn link_changed(&mut self, connected: bool, detail: &str) {
+        if !matches!(self.display, Display::Screen(_) | Display::Silent) {
+            let _ = writeln!(
+                self.out,
+                "{} {detail}",
+                if connected {
+                    "port back:"
+                } else {
+                    "port lost, waiting for it to return:"
+                }
+            );
+        }
+    }
+}
