@@ -28,7 +28,8 @@ pub struct Observation {
 /// A converter that stops lets its input rise to the source's open-circuit
 /// voltage, which may sit between hold and start: so an idle input current
 /// with the input below start is a cutoff too. An idle input current with the
-/// input able to start the converter and the output not up is a stall.
+/// input able to start the converter and the output not up is a stall, which
+/// ends once the converter draws again with the output not collapsed.
 /// Leaving `Sagging` needs the input a full margin clear of the sagging band
 /// (`hold + 2 * margin`) and the forecast beyond twice the horizon (hysteresis).
 pub fn wanted_transition(
@@ -70,7 +71,7 @@ pub fn wanted_transition(
         Sagging if input_clear && forecast_clear => Some((Harvesting, Recovered)),
         CutOff if can_start => Some((ColdStart, InputAboveStart)),
         Stalled if input_low => Some((CutOff, InputBelowHold)),
-        Stalled if output_up && !idle => Some((Harvesting, Recovered)),
+        Stalled if !idle && !output_down => Some((Harvesting, Recovered)),
         _ => None,
     }
 }
@@ -241,6 +242,7 @@ mod tests {
             ),
             (Harvesting, idle(GOOD, OUT_UP), None), // output in regulation: a pause
             (Stalled, idle(GOOD, OUT_UP), None),
+            (Stalled, o(GOOD, OUT_MID), Some((Harvesting, Recovered))), // drawing again
         ];
         for (state, seen, expected) in cases {
             assert_eq!(

@@ -2,10 +2,8 @@
 
 use core::marker::PhantomData;
 
-use serde::de::DeserializeOwned;
-
 use crate::error::FrameError;
-use crate::frame::decode_frame;
+use crate::frame::{decode_frame, Message};
 
 /// Splits a byte stream at `0x00` delimiters into encoded frames of at most `N`
 /// bytes (`N` is the largest frame, delimiter included, so `N - 1` bytes of body).
@@ -139,13 +137,13 @@ pub struct Decoder<T, const N: usize> {
     _message: PhantomData<fn() -> T>,
 }
 
-impl<T: DeserializeOwned, const N: usize> Default for Decoder<T, N> {
+impl<T: Message, const N: usize> Default for Decoder<T, N> {
     fn default() -> Self {
         Self::new()
     }
 }
 
-impl<T: DeserializeOwned, const N: usize> Decoder<T, N> {
+impl<T: Message, const N: usize> Decoder<T, N> {
     /// A decoder in its initial state.
     pub const fn new() -> Self {
         Decoder {

@@ -45,9 +45,53 @@ pub fn encode_frame<'a, T: Serialize>(
     Ok(used)
 }
 
+/// A message type that can say whether undecodable bytes name a kind of
+/// message it does not know (a newer protocol's appended variant).
+pub trait Message: DeserializeOwned {
+    /// Varints before the kind index in the postcard bytes.
+    const FIELDS_BEFORE_KIND: usize;
+    /// Number of kinds this side knows.
+    const KNOWN_KINDS: u64;
+
+    /// True when `body` names a kind index beyond [`Self::KNOWN_KINDS`].
+    fn names_unknown_kind(body: &[u8]) -> bool {
+        let mut rest = body;
+        for _ in 0..Self::FIELDS_BEFORE_KIND {
+            match read_varint(rest) {
+                Some((_, used)) => rest = rest.get(used..).unwrap_or(&[]),
+                None => return false,
+            }
+        }
+        read_varint(rest).is_some_and(|(kind, _)| kind >= Self::KNOWN_KINDS)
+    }
+}
+
+impl Message for Uplink {
+    const FIELDS_BEFORE_KIND: usize = 2; // seq, uptime_ms
+    const KNOWN_KINDS: u64 = 5;
+}
+
+impl Message for Downlink {
+    const FIELDS_BEFORE_KIND: usize = 1; // request_id
+    const KNOWN_KINDS: u64 = 5;
+}
+
+/// Reads one LEB128 varint of at most 10 bytes: `(value, bytes used)`.
+fn read_varint(bytes: &[u8]) -> Option<(u64, usize)> {
+    let mut value = 0u64;
+    for (i, &byte) in bytes.iter().take(10).enumerate() {
+        let shift = u32::try_from(i).ok()?.checked_mul(7)?;
+        value |= u64::from(byte & 0x7F).checked_shl(shift)?;
+        if byte & 0x80 == 0 {
+            return Some((value, i.checked_add(1)?));
+        }
+    }
+    None
+}
+
 /// Decodes one frame given the bytes between two delimiters (without the
 /// delimiter). COBS is undone in place, so `encoded` is overwritten.
-pub fn decode_frame<T: DeserializeOwned>(encoded: &mut [u8]) -> Result<T, FrameError> {
+pub fn decode_frame<T: Message>(encoded: &mut [u8]) -> Result<T, FrameError> {
     let len = cobs::decode_in_place(encoded).map_err(|_| FrameError::Cobs)?;
     let decoded = encoded.get(..len).ok_or(FrameError::Cobs)?;
     let body_len = len.checked_sub(CRC_LEN).ok_or(FrameError::TooShort)?;
@@ -63,7 +107,7 @@ pub fn decode_frame<T: DeserializeOwned>(encoded: &mut [u8]) -> Result<T, FrameE
     match postcard::take_from_bytes::<T>(body) {
         Ok((message, [])) => Ok(message),
         Ok(_) => Err(FrameError::TrailingBytes),
-        Err(postcard::Error::DeserializeBadEnum) => Err(FrameError::UnknownVariant),
+        Err(_) if T::names_unknown_kind(body) => Err(FrameError::UnknownVariant),
         Err(_) => Err(FrameError::Malformed),
     }
 }

@@ -74,7 +74,7 @@ pub use decoder::{Decoder, DecoderStats, FrameSplitter};
 pub use downlink::{Command, Downlink, MAX_BURST_SAMPLES};
 pub use error::{EncodeError, FrameError};
 pub use frame::{
-    decode_frame, encode_frame, frame_crc, max_frame_len, MAX_DOWNLINK_FRAME_LEN,
+    decode_frame, encode_frame, frame_crc, max_frame_len, Message, MAX_DOWNLINK_FRAME_LEN,
     MAX_UPLINK_FRAME_LEN, MAX_UPLINK_PAYLOAD_LEN,
 };
 pub use uplink::{

@@ -1,1 +1,84 @@
+//! Helpers shared by the end-to-end tests: running scenarios, pseudo-terminal
+//! pairs, and scripted writers that behave like a node.
 
+use std::path::{Path, PathBuf};
+use std::sync::atomic::AtomicBool;
+use std::time::Duration;
+
+use anyhow::Result;
+use gleaner::analysis::{analyze_file, RunReport};
+use gleaner::link::{LinkStats, Tracked};
+use gleaner::recorder::{run_port, PortObserver, Recorder};
+use gleaner::sim::port::VirtualPort;
+use gleaner::sim::{GroundTruth, Scenario, VirtualNode};
+
+/// A scenario, shortened to `hours` when given.
+pub fn scenario(name: &str, hours: Option<f64>) -> Scenario {
+    let mut s = Scenario::builtin(name).expect("built-in scenario");
+    if let Some(h) = hours {
+        s.duration_h = h;
+    }
+    s
+}
+
+/// Observes a port loop: collects messages, stops when `stop_when` says so.
+pub struct Collect<F: FnMut(&LinkStats, Duration) -> bool> {
+    /// Messages seen.
+    pub messages: Vec<Tracked>,
+    /// Link changes seen (connected?, detail).
+    pub changes: Vec<(bool, String)>,
+    stop_when: F,
+}
+
+impl<F: FnMut(&LinkStats, Duration) -> bool> Collect<F> {
+    /// A collector that stops when `stop_when` returns true.
+    pub fn new(stop_when: F) -> Self {
+        Collect {
+            messages: Vec::new(),
+            changes: Vec::new(),
+            stop_when,
+        }
+    }
+}
+
+impl<F: FnMut(&LinkStats, Duration) -> bool> PortObserver for Collect<F> {
+    fn message(&mut self, tracked: &Tracked, _stats: &LinkStats) {
+        self.messages.push(tracked.clone());
+    }
+    fn tick(&mut self, stats: &LinkStats, idle_for: Duration) -> bool {
+        (self.stop_when)(stats, idle_for)
+    }
+    fn link_changed(&mut self, connected: bool, detail: &str) {
+        self.changes.push((connected, detail.to_string()));
+    }
+}
+
+/// Runs `scenario` on a virtual node behind a pseudo-terminal, records it
+/// through the serial path into `dir`, and returns the log, its report and the
+/// ground truth.
+pub fn record_virtual_run(
+    scenario: Scenario,
+    dir: &Path,
+) -> Result<(PathBuf, RunReport, GroundTruth, Vec<Tracked>)> {
+    let node = VirtualNode::new(scenario, 0x5EED)?;
+    let port = VirtualPort::spawn(node, None)?;
+    let log = dir.join("run.glog");
+    let mut recorder = Recorder::create(&log, port.path())?;
+    let stop = AtomicBool::new(false);
+    let messages = {
+        let port_ref = &port;
+        let mut observer =
+            Collect::new(move |_, idle| port_ref.finished() && idle > Duration::from_millis(300));
+        run_port(&mut recorder, port.path(), 115_200, &stop, &mut observer)?;
+        observer.messages
+    };
+    recorder.finish()?;
+    let truth = port.stop()?;
+    let report = analyze_file(&log)?;
+    Ok((log, report, truth, messages))
+}
+
+/// Relative difference of `a` from `b`.
+pub fn rel(a: f64, b: f64) -> f64 {
+    (a - b).abs() / b.abs().max(1e-12)
+}
