@@ -15,9 +15,9 @@ use super::format::{
     LogHeader, MarkerKind, KIND_FRAME, KIND_HEADER, KIND_MARKER, MAGIC, MAX_BODY_LEN,
 };
 
-/// An open log being appended to.
-pub struct LogWriter {
-    file: BufWriter<File>,
+/// An open log being appended to (a file, or any writer for tests and tools).
+pub struct LogWriter<W: Write = File> {
+    file: BufWriter<W>,
     path: PathBuf,
     scratch: Vec<u8>,
     bytes: u64,
@@ -35,7 +35,7 @@ fn explain(err: std::io::Error, path: &Path) -> anyhow::Error {
     }
 }
 
-impl LogWriter {
+impl LogWriter<File> {
     /// Creates a new log (never overwrites an existing file) and writes its header.
     pub fn create(path: &Path, header: &LogHeader) -> Result<Self> {
         if let Some(dir) = path.parent().filter(|d| !d.as_os_str().is_empty()) {
@@ -52,8 +52,25 @@ impl LogWriter {
                     path.display()
                 )
             })?;
+        LogWriter::to_writer(file, path, header)
+    }
+
+    /// Flushes and forces the data to the disk.
+    pub fn sync(&mut self) -> Result<()> {
+        self.flush()?;
+        let path = self.path.clone();
+        self.file
+            .get_ref()
+            .sync_data()
+            .map_err(|e| explain(e, &path))
+    }
+}
+
+impl<W: Write> LogWriter<W> {
+    /// Starts a log on any writer; `path` only names it in messages.
+    pub fn to_writer(out: W, path: &Path, header: &LogHeader) -> Result<Self> {
         let mut writer = LogWriter {
-            file: BufWriter::new(file),
+            file: BufWriter::new(out),
             path: path.to_path_buf(),
             scratch: Vec::new(),
             bytes: 0,
@@ -65,6 +82,13 @@ impl LogWriter {
         writer.append(KIND_HEADER, super::now_us(), &[&json])?;
         writer.flush()?;
         Ok(writer)
+    }
+
+    /// The underlying writer, flushed.
+    pub fn into_inner(self) -> Result<W> {
+        self.file
+            .into_inner()
+            .map_err(|e| anyhow::anyhow!("cannot flush the log: {}", e.error()))
     }
 
     fn append(&mut self, kind: u8, host_time_us: u64, parts: &[&[u8]]) -> Result<()> {
@@ -117,17 +141,7 @@ impl LogWriter {
         self.file.flush().map_err(|e| explain(e, &path))
     }
 
-    /// Flushes and forces the data to the disk.
-    pub fn sync(&mut self) -> Result<()> {
-        self.flush()?;
-        let path = self.path.clone();
-        self.file
-            .get_ref()
-            .sync_data()
-            .map_err(|e| explain(e, &path))
-    }
-
-    /// The file's path.
+    /// The log's path (or name).
     pub fn path(&self) -> &Path {
         &self.path
     }

@@ -130,6 +130,7 @@ impl VirtualNode {
             .scenario
             .load
             .powered_at(outcome.output_v, self.load_powered);
+        self.truth.note_load(t, dt, self.load_powered);
         self.source.advance(dt, outcome.input_a);
         self.truth
             .add(t, &outcome, self.scenario.converter.output_capacitance_f);

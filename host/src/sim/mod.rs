@@ -16,6 +16,7 @@ pub mod scenario;
 pub mod solar;
 pub mod source;
 pub mod supercap;
+pub mod synthetic;
 pub mod teg;
 pub mod truth;
 

@@ -35,11 +35,35 @@ pub struct GroundTruth {
     pub samples: u64,
     /// Simulated time so far, s.
     pub elapsed_s: f64,
+    /// When the load first had power, s.
+    pub load_first_powered_s: Option<f64>,
+    /// Times the load lost power after it first had it (brown-outs).
+    pub load_brownouts: u32,
+    /// Time without power after it first had it, s.
+    pub load_unpowered_s: f64,
+    #[serde(skip)]
+    load_powered: bool,
     #[serde(skip)]
     last: Option<(f64, f64, f64, f64)>,
 }
 
 impl GroundTruth {
+    /// Notes whether the load had power at `t_s`, `dt_s` after the last step.
+    pub fn note_load(&mut self, t_s: f64, dt_s: f64, powered: bool) {
+        if powered && self.load_first_powered_s.is_none() {
+            self.load_first_powered_s = Some(t_s);
+        }
+        if self.load_first_powered_s.is_some() {
+            if self.load_powered && !powered {
+                self.load_brownouts += 1;
+            }
+            if !powered {
+                self.load_unpowered_s += dt_s;
+            }
+        }
+        self.load_powered = powered;
+    }
+
     /// Adds one step ending at `t_s` (trapezoidal rule on the true powers).
     pub fn add(&mut self, t_s: f64, step: &StepOutcome, output_capacitance_f: f64) {
         let p_in = step.input_v * step.input_a;

@@ -1,0 +1,242 @@
+//! A fast generator of long, deterministic logs of real frames (no physics):
+//! a node on a daily harvest cycle reporting once per `interval_s`, with a
+//! cutoff every night. For memory and speed tests of the analysis, and for
+//! benchmarks.
+
+use std::io::Read;
+
+use gleaner_protocol::{
+    encode_frame, ChannelStats, ConfigSource, CutoffState, EnergyTotals, Event, Hello, Report,
+    ReportFlags, StateDurations, TransitionCause, Uplink, UplinkBody, MAX_UPLINK_FRAME_LEN,
+    PROTOCOL_VERSION,
+};
+
+use crate::log::{LogHeader, LogWriter, FORMAT_VERSION};
+
+/// The message of second `t` of the run, and an event when the state changes then.
+fn messages_at(t: u64, interval_s: u64, seq: &mut u16) -> Vec<Uplink> {
+    let mut out = Vec::new();
+    let mut push = |body: UplinkBody, uptime_ms: u64, seq: &mut u16| {
+        out.push(Uplink {
+            seq: *seq,
+            uptime_ms,
+            body,
+        });
+        *seq = seq.wrapping_add(1);
+    };
+    let hour = (t % 86_400) as f64 / 3_600.0;
+    let day = (6.0..19.0).contains(&hour);
+    let state = if day {
+        CutoffState::Harvesting
+    } else {
+        CutoffState::CutOff
+    };
+    let was_day = {
+        let h = (t.saturating_sub(interval_s) % 86_400) as f64 / 3_600.0;
+        (6.0..19.0).contains(&h)
+    };
+    if t > 0 && day != was_day {
+        let (from, to, cause) = if day {
+            (
+                CutoffState::CutOff,
+                CutoffState::Harvesting,
+                TransitionCause::Recovered,
+            )
+        } else {
+            (
+                CutoffState::Harvesting,
+                CutoffState::CutOff,
+                TransitionCause::InputBelowHold,
+            )
+        };
+        push(
+            UplinkBody::Event(Event {
+                from,
+                to,
+                cause,
+                input_uv: 700_000,
+                output_uv: 3_000_000,
+            }),
+            t * 1000,
+            seq,
+        );
+    }
+    let light = if day {
+        ((hour - 6.0) / 13.0 * std::f64::consts::PI).sin()
+    } else {
+        0.0
+    };
+    let input_uv = if day {
+        800_000 + (light * 600_000.0) as u32
+    } else {
+        100_000
+    };
+    let input_na = (light * 5_000_000.0) as u32;
+    let drawn_nj =
+        u64::from(input_uv) * u64::from(input_na) / 1_000_000_000 * interval_s * 1000 / 1000;
+    let ms = (interval_s * 1000) as u32;
+    let mut state_ms = StateDurations::default();
+    *state_ms.get_mut(state) = ms;
+    let report = Report {
+        interval_ms: ms,
+        sample_count: (interval_s * 100) as u32,
+        input_uv: ChannelStats::from_min_mean_max(
+            input_uv.saturating_sub(5_000),
+            input_uv,
+            input_uv + 5_000,
+        ),
+        input_na: ChannelStats::from_min_mean_max(input_na / 2, input_na, input_na + input_na / 4),
+        output_uv: ChannelStats::from_min_mean_max(3_250_000, 3_300_000, 3_300_000),
+        output_na: ChannelStats::from_min_mean_max(8_000, 60_000, 4_000_000),
+        drawn_nj,
+        delivered_nj: if day { 198_000 * interval_s } else { 0 },
+        stored_nj: 0,
+        state,
+        state_ms,
+        input_cutoff_in_ms: None,
+        storage_runout_in_ms: None,
+        load_shed: !day,
+        flags: ReportFlags::default(),
+    };
+    push(UplinkBody::Report(report), t * 1000 + 1000, seq);
+    out
+}
+
+/// Streams a synthetic log of `seconds` of reports as bytes, generated on demand.
+pub struct SyntheticLog {
+    seconds: u64,
+    interval_s: u64,
+    next_t: u64,
+    seq: u16,
+    buf: Vec<u8>,
+    pos: usize,
+    writer: Option<LogWriter<Vec<u8>>>,
+    start_us: u64,
+}
+
+impl SyntheticLog {
+    /// A log of `seconds` of reports every `interval_s` seconds.
+    pub fn new(seconds: u64, interval_s: u64) -> Self {
+        let header = LogHeader {
+            format_version: FORMAT_VERSION,
+            writer: "gleaner synthetic".into(),
+            host: "synthetic".into(),
+            started: "2026-01-01T00:00:00Z".into(),
+            source: "synthetic node (invented daily cycle)".into(),
+        };
+        let writer =
+            LogWriter::to_writer(Vec::new(), std::path::Path::new("synthetic"), &header).ok();
+        let mut log = SyntheticLog {
+            seconds,
+            interval_s: interval_s.max(1),
+            next_t: 0,
+            seq: 0,
+            buf: Vec::new(),
+            pos: 0,
+            writer,
+            start_us: 1_767_225_600_000_000,
+        };
+        log.emit_hello();
+        log
+    }
+
+    fn emit_hello(&mut self) {
+        let hello = Uplink {
+            seq: 0,
+            uptime_ms: 0,
+            body: UplinkBody::Hello(Hello {
+                protocol: PROTOCOL_VERSION,
+                firmware: gleaner_firmware::FIRMWARE_VERSION,
+                boot_id: 0x5157_0001,
+                sample_period_us: 10_000,
+                config: gleaner_firmware::config::default_config(),
+                config_source: ConfigSource::Defaults,
+                totals: EnergyTotals::default(),
+            }),
+        };
+        self.seq = 1;
+        self.write_message(&hello, self.start_us);
+    }
+
+    fn write_message(&mut self, message: &Uplink, host_time_us: u64) {
+        let mut frame = [0u8; MAX_UPLINK_FRAME_LEN];
+        if let (Ok(bytes), Some(w)) = (encode_frame(message, &mut frame), self.writer.as_mut()) {
+            let _ = w.append_frame(host_time_us, &bytes[..bytes.len() - 1]);
+        }
+    }
+
+    fn refill(&mut self) -> bool {
+        self.buf.clear();
+        self.pos = 0;
+        if let Some(w) = self.writer.take() {
+            if let Ok(bytes) = w.into_inner() {
+                self.buf = bytes;
+            }
+        }
+        if self.next_t >= self.seconds {
+            return !self.buf.is_empty();
+        }
+        // Generate about a thousand reports per refill.
+        let mut out = Vec::with_capacity(96 * 1024);
+        std::mem::swap(&mut out, &mut self.buf);
+        let mut frame = [0u8; MAX_UPLINK_FRAME_LEN];
+        for _ in 0..1000 {
+            if self.next_t >= self.seconds {
+                break;
+            }
+            let t = self.next_t;
+            for m in messages_at(t, self.interval_s, &mut self.seq) {
+                if let Ok(bytes) = encode_frame(&m, &mut frame) {
+                    let body = &bytes[..bytes.len() - 1];
+                    let host = self.start_us + m.uptime_ms * 1000;
+                    append_record(&mut out, host, body);
+                }
+            }
+            self.next_t += self.interval_s;
+        }
+        self.buf = out;
+        !self.buf.is_empty()
+    }
+}
+
+/// Appends one frame record in the log layout.
+fn append_record(out: &mut Vec<u8>, host_time_us: u64, frame: &[u8]) {
+    let mut body = Vec::with_capacity(9 + frame.len());
+    body.push(2u8);
+    body.extend_from_slice(&host_time_us.to_le_bytes());
+    body.extend_from_slice(frame);
+    out.extend_from_slice(&(body.len() as u32).to_le_bytes());
+    out.extend_from_slice(&gleaner_protocol::frame_crc(&body).to_le_bytes());
+    out.extend_from_slice(&body);
+}
+
+impl Read for SyntheticLog {
+    fn read(&mut self, dest: &mut [u8]) -> std::io::Result<usize> {
+        if self.pos >= self.buf.len() && !self.refill() {
+            return Ok(0);
+        }
+        let n = dest.len().min(self.buf.len() - self.pos);
+        dest[..n].copy_from_slice(&self.buf[self.pos..self.pos + n]);
+        self.pos += n;
+        Ok(n)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::log::{LogReader, RecordBody};
+
+    #[test]
+    fn a_day_of_synthetic_log_reads_back() {
+        let mut reader = LogReader::new(SyntheticLog::new(86_400, 60));
+        let records: Vec<_> = reader.by_ref().collect();
+        assert!(reader.warnings().is_empty(), "{:?}", reader.warnings());
+        let frames = records
+            .iter()
+            .filter(|r| matches!(r.body, RecordBody::Frame(_)))
+            .count();
+        // 1 Hello + 1440 reports + 2 events (dawn and dusk).
+        assert_eq!(frames, 1 + 1440 + 2);
+    }
+}

@@ -1,0 +1,424 @@
+//! The live side against something that behaves like a device: pseudo-terminal
+//! pairs fed by a scripted writer or a virtual node.
+
+use std::io::Write;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
+use std::time::{Duration, Instant};
+
+use gleaner::analysis::analyze_file;
+use gleaner::cli::node::Session;
+use gleaner::log::{LogReader, MarkerKind, RecordBody};
+use gleaner::recorder::{run_port, Recorder};
+use gleaner::sim::port::VirtualPort;
+use gleaner::sim::VirtualNode;
+use gleaner::view::observer::{Display, LiveObserver};
+use gleaner_protocol::*;
+use gleaner_tests::{scenario, Collect};
+use serialport::{SerialPort, TTYPort};
+
+fn frame(message: &Uplink) -> Vec<u8> {
+    let mut buf = [0u8; MAX_UPLINK_FRAME_LEN];
+    encode_frame(message, &mut buf).unwrap().to_vec()
+}
+
+fn hello(boot_id: u32, uptime_ms: u64) -> Uplink {
+    Uplink {
+        seq: 0,
+        uptime_ms,
+        body: UplinkBody::Hello(Hello {
+            protocol: PROTOCOL_VERSION,
+            firmware: gleaner_firmware::FIRMWARE_VERSION,
+            boot_id,
+            sample_period_us: 10_000,
+            config: gleaner_firmware::config::default_config(),
+            config_source: ConfigSource::Defaults,
+            totals: EnergyTotals::default(),
+        }),
+    }
+}
+
+fn report(seq: u16, uptime_ms: u64, input_uv: u32, state: CutoffState) -> Uplink {
+    Uplink {
+        seq,
+        uptime_ms,
+        body: UplinkBody::Report(Report {
+            interval_ms: 1_000,
+            sample_count: 100,
+            input_uv: ChannelStats::from_min_mean_max(input_uv, input_uv, input_uv),
+            input_na: ChannelStats::from_min_mean_max(2_000_000, 2_000_000, 2_000_000),
+            output_uv: ChannelStats::from_min_mean_max(3_300_000, 3_300_000, 3_300_000),
+            output_na: ChannelStats::from_min_mean_max(1_000_000, 1_000_000, 1_000_000),
+            drawn_nj: 2_000_000,
+            delivered_nj: 1_500_000,
+            stored_nj: 0,
+            state,
+            state_ms: StateDurations {
+                harvesting_ms: 1_000,
+                ..Default::default()
+            },
+            input_cutoff_in_ms: Some(42_000),
+            storage_runout_in_ms: None,
+            load_shed: false,
+            flags: ReportFlags::default(),
+        }),
+    }
+}
+
+/// A scripted node: a pseudo-terminal pair whose master end we write.
+fn scripted() -> (TTYPort, TTYPort, String) {
+    let (master, slave) = TTYPort::pair().unwrap();
+    let path = slave.name().unwrap();
+    (master, slave, path)
+}
+
+#[test]
+fn plain_watch_shows_the_values_sent() {
+    let (mut master, _slave, path) = scripted();
+    let stream: Vec<u8> = [
+        hello(1, 5),
+        report(1, 1_000, 1_000_000, CutoffState::Harvesting),
+    ]
+    .iter()
+    .flat_map(frame)
+    .collect();
+    master.write_all(&stream).unwrap();
+    let mut out = Vec::new();
+    {
+        let stop = AtomicBool::new(false);
+        let started = Instant::now();
+        let mut observer = LiveObserver::new(
+            Display::Plain { every: None },
+            "test",
+            Box::new(&mut out),
+            Box::new(move |stats, _| {
+                stats.frames >= 2 || started.elapsed() > Duration::from_secs(5)
+            }),
+        );
+        let mut recorder = Recorder::new(None);
+        run_port(&mut recorder, &path, 115_200, &stop, &mut observer).unwrap();
+    }
+    let text = String::from_utf8(out).unwrap();
+    assert!(text.contains("node boot 00000001"), "{text}");
+    let line = text
+        .lines()
+        .find(|l| l.contains("harvesting"))
+        .expect("a report line");
+    assert!(line.contains("in 1.000 V"), "{line}");
+    assert!(line.contains("2.000 mA"), "{line}");
+    assert!(line.contains("eff  75.0%"), "{line}");
+    assert!(line.contains("cutoff in    42.0 s"), "{line}");
+}
+
+#[test]
+fn record_then_read_back_gives_every_frame_sent() {
+    let (mut master, _slave, path) = scripted();
+    let dir = tempfile::tempdir().unwrap();
+    let log = dir.path().join("r.glog");
+    let sent: Vec<Vec<u8>> = (0..200u16)
+        .map(|i| {
+            frame(&report(
+                i,
+                u64::from(i) * 1_000,
+                900_000 + u32::from(i),
+                CutoffState::Harvesting,
+            ))
+        })
+        .collect();
+    let writer = std::thread::spawn(move || {
+        for chunk in sent.chunks(7) {
+            for f in chunk {
+                master.write_all(f).unwrap();
+            }
+            std::thread::sleep(Duration::from_millis(2));
+        }
+        (master, sent)
+    });
+    let mut recorder = Recorder::create(&log, &path).unwrap();
+    let stop = AtomicBool::new(false);
+    let started = Instant::now();
+    let mut observer = Collect::new(move |stats, _| {
+        stats.frames >= 200 || started.elapsed() > Duration::from_secs(10)
+    });
+    run_port(&mut recorder, &path, 115_200, &stop, &mut observer).unwrap();
+    recorder.finish().unwrap();
+    let (_master, sent) = writer.join().unwrap();
+    let logged: Vec<Vec<u8>> = LogReader::new(std::fs::File::open(&log).unwrap())
+        .filter_map(|r| match r.body {
+            RecordBody::Frame(f) => Some(f),
+            _ => None,
+        })
+        .collect();
+    let sent_bodies: Vec<Vec<u8>> = sent.iter().map(|f| f[..f.len() - 1].to_vec()).collect();
+    assert_eq!(logged, sent_bodies);
+    assert_eq!(observer.messages.len(), 200);
+}
+
+#[test]
+fn a_reboot_is_detected_and_logged() {
+    let (mut master, _slave, path) = scripted();
+    let mut stream = Vec::new();
+    for m in [
+        hello(7, 3),
+        report(1, 1_000, 1_000_000, CutoffState::Harvesting),
+        report(2, 2_000, 1_000_000, CutoffState::Harvesting),
+    ] {
+        stream.extend(frame(&m));
+    }
+    // Second boot: new boot id, uptime from zero.
+    for m in [
+        hello(8, 4),
+        report(1, 1_000, 1_000_000, CutoffState::Harvesting),
+    ] {
+        stream.extend(frame(&m));
+    }
+    master.write_all(&stream).unwrap();
+    let dir = tempfile::tempdir().unwrap();
+    let log = dir.path().join("reboot.glog");
+    let mut recorder = Recorder::create(&log, &path).unwrap();
+    let stop = AtomicBool::new(false);
+    let started = Instant::now();
+    let mut observer = Collect::new(move |stats, _| {
+        stats.frames >= 5 || started.elapsed() > Duration::from_secs(5)
+    });
+    run_port(&mut recorder, &path, 115_200, &stop, &mut observer).unwrap();
+    recorder.finish().unwrap();
+    assert_eq!(recorder.stats().reboots, 1);
+    assert!(observer.messages[3].reboot);
+    assert_eq!(observer.messages[3].boot_index, 1);
+    let report = analyze_file(&log).unwrap();
+    assert_eq!(report.link.reboots, 1);
+    assert_eq!(report.boots.len(), 2);
+    assert_eq!(report.link.lost_frames, 0);
+    // Energy continues across the boots: three reports of 2 mJ.
+    assert!((report.energy.drawn_j - 0.006).abs() < 1e-12);
+}
+
+#[test]
+fn unplug_and_replug_reconnects_and_marks_the_gap() {
+    let dir = tempfile::tempdir().unwrap();
+    let link = dir.path().join("node");
+    let log = dir.path().join("unplug.glog");
+    let (mut master, slave, first_path) = scripted();
+    std::os::unix::fs::symlink(&first_path, &link).unwrap();
+    let stop = Arc::new(AtomicBool::new(false));
+    let link_name = link.to_string_lossy().into_owned();
+    let recorder_thread = {
+        let (stop, log, link_name) = (stop.clone(), log.clone(), link_name.clone());
+        std::thread::spawn(move || {
+            let mut recorder = Recorder::create(&log, &link_name).unwrap();
+            let mut observer = Collect::new(|_, _| false);
+            run_port(&mut recorder, &link_name, 115_200, &stop, &mut observer).unwrap();
+            recorder.finish().unwrap();
+            observer
+        })
+    };
+    std::thread::sleep(Duration::from_millis(300));
+    let first: Vec<u8> = (0..5u16)
+        .flat_map(|i| {
+            frame(&report(
+                i,
+                u64::from(i) * 1_000,
+                1_000_000,
+                CutoffState::Harvesting,
+            ))
+        })
+        .collect();
+    master.write_all(&first).unwrap();
+    std::thread::sleep(Duration::from_millis(300));
+    // Unplug: the device disappears.
+    drop(master);
+    drop(slave);
+    std::fs::remove_file(&link).unwrap();
+    std::thread::sleep(Duration::from_millis(600));
+    // Replug: a new device node appears under the same name.
+    let (mut master, _slave, second_path) = scripted();
+    std::os::unix::fs::symlink(&second_path, &link).unwrap();
+    std::thread::sleep(Duration::from_millis(800));
+    let second: Vec<u8> = (8..12u16)
+        .flat_map(|i| {
+            frame(&report(
+                i,
+                u64::from(i) * 1_000,
+                1_000_000,
+                CutoffState::Harvesting,
+            ))
+        })
+        .collect();
+    master.write_all(&second).unwrap();
+    std::thread::sleep(Duration::from_millis(400));
+    stop.store(true, Ordering::Relaxed);
+    let observer = recorder_thread.join().unwrap();
+    let seqs: Vec<u16> = observer.messages.iter().map(|t| t.message.seq).collect();
+    assert_eq!(
+        seqs,
+        vec![0, 1, 2, 3, 4, 8, 9, 10, 11],
+        "nothing outside the gap is lost"
+    );
+    assert_eq!(
+        observer.changes.iter().map(|c| c.0).collect::<Vec<_>>(),
+        vec![false, true]
+    );
+    let markers: Vec<MarkerKind> = LogReader::new(std::fs::File::open(&log).unwrap())
+        .filter_map(|r| match r.body {
+            RecordBody::Marker { kind, .. } => Some(kind),
+            _ => None,
+        })
+        .collect();
+    assert_eq!(
+        markers,
+        vec![
+            MarkerKind::PortOpened,
+            MarkerKind::PortLost,
+            MarkerKind::PortOpened,
+            MarkerKind::Stopped
+        ]
+    );
+    let report = analyze_file(&log).unwrap();
+    assert_eq!(report.recording_gaps, 1);
+    assert_eq!(
+        report.link.lost_frames, 3,
+        "frames 5, 6 and 7 fell into the gap"
+    );
+}
+
+#[test]
+fn device_commands_work_and_a_refusal_shows_the_reason() {
+    let node = VirtualNode::new(scenario("stalled-converter", Some(0.5)), 3).unwrap();
+    let port = VirtualPort::spawn(node, Some(50.0)).unwrap();
+    let mut session = Session::open(port.path(), 115_200, Duration::from_secs(3)).unwrap();
+    assert_eq!(
+        session.request(Command::Ping, Duration::ZERO).unwrap(),
+        Outcome::Pong
+    );
+    assert_eq!(
+        session.request(Command::GetInfo, Duration::ZERO).unwrap(),
+        Outcome::Accepted
+    );
+    let mut config = session
+        .hello
+        .as_ref()
+        .expect("GetInfo brings a Hello")
+        .config;
+    let good = config;
+    config.thresholds.hold_uv = config.thresholds.start_uv;
+    assert_eq!(
+        session
+            .request(Command::SetConfig(config), Duration::ZERO)
+            .unwrap(),
+        Outcome::Refused(Refusal::HoldNotBelowStart)
+    );
+    assert_eq!(
+        Refusal::HoldNotBelowStart.to_string(),
+        "hold threshold must be below the start threshold"
+    );
+    let mut better = good;
+    better.report_interval_ms = 3_000;
+    assert_eq!(
+        session
+            .request(Command::SetConfig(better), Duration::ZERO)
+            .unwrap(),
+        Outcome::Accepted
+    );
+    session.request(Command::GetInfo, Duration::ZERO).unwrap();
+    assert_eq!(
+        session.hello.as_ref().unwrap().config.report_interval_ms,
+        3_000
+    );
+    assert_eq!(
+        session.hello.as_ref().unwrap().config_source,
+        ConfigSource::Received
+    );
+    // A burst of 40 samples arrives complete.
+    assert_eq!(
+        session
+            .request(Command::StartBurst { samples: 40 }, Duration::from_secs(5))
+            .unwrap(),
+        Outcome::Accepted
+    );
+    let indices: Vec<u32> = session.samples.iter().map(|s| s.0).collect();
+    assert_eq!(indices, (0..40).collect::<Vec<u32>>());
+    port.stop().unwrap();
+}
+
+#[test]
+fn a_node_that_never_answers_times_out_with_a_clear_message() {
+    let (_master, _slave, path) = scripted();
+    let mut session = Session::open(&path, 115_200, Duration::from_millis(300)).unwrap();
+    let err = session
+        .request(Command::Ping, Duration::ZERO)
+        .unwrap_err()
+        .to_string();
+    assert!(err.contains("did not answer within 0.3 s"), "{err}");
+    assert!(err.contains("baud rate"), "{err}");
+}
+
+#[test]
+fn a_wrong_baud_rate_shows_as_errors_and_is_named() {
+    // At a wrong rate the bytes arrive mangled: model it by flipping bits.
+    let (mut master, _slave, path) = scripted();
+    let mut garbage = Vec::new();
+    for i in 0..40u16 {
+        let mut f = frame(&report(
+            i,
+            u64::from(i) * 1_000,
+            1_000_000,
+            CutoffState::Harvesting,
+        ));
+        for b in f.iter_mut().filter(|b| **b != 0) {
+            *b ^= 0x55;
+            if *b == 0 {
+                *b = 0x11;
+            }
+        }
+        garbage.extend(f);
+    }
+    master.write_all(&garbage).unwrap();
+    let mut recorder = Recorder::new(None);
+    let stop = AtomicBool::new(false);
+    let started = Instant::now();
+    let mut observer = Collect::new(move |stats, _| {
+        stats.damaged() >= 40 || started.elapsed() > Duration::from_secs(5)
+    });
+    run_port(&mut recorder, &path, 115_200, &stop, &mut observer).unwrap();
+    assert_eq!(recorder.stats().frames, 0);
+    assert!(recorder.stats().likely_wrong_baud());
+}
+
+#[test]
+fn a_protocol_major_mismatch_stops_with_both_versions() {
+    let (mut master, _slave, path) = scripted();
+    let mut h = hello(1, 1);
+    if let UplinkBody::Hello(hello) = &mut h.body {
+        hello.protocol = ProtocolVersion { major: 9, minor: 1 };
+    }
+    master.write_all(&frame(&h)).unwrap();
+    let dir = tempfile::tempdir().unwrap();
+    let mut recorder = Recorder::create(&dir.path().join("v.glog"), &path).unwrap();
+    let stop = AtomicBool::new(false);
+    let started = Instant::now();
+    let mut observer = Collect::new(move |_, _| started.elapsed() > Duration::from_secs(5));
+    let err = run_port(&mut recorder, &path, 115_200, &stop, &mut observer)
+        .unwrap_err()
+        .to_string();
+    assert!(err.contains("9.1") && err.contains("1.0"), "{err}");
+}
+
+#[test]
+fn opening_a_missing_port_says_what_to_do() {
+    let err = Session::open("/dev/ttyGLEANER-none", 115_200, Duration::from_secs(1))
+        .err()
+        .unwrap()
+        .to_string();
+    assert!(err.contains("gleaner ports"), "{err}");
+}
+
+#[test]
+fn ports_are_listed_without_error() {
+    // The list may be empty on a CI machine; it must not fail.
+    let ports = gleaner::link::list_ports().unwrap();
+    for p in ports {
+        assert!(!p.name.is_empty());
+        assert!(["usb", "pci", "bluetooth", "unknown"].contains(&p.kind.as_str()));
+    }
+}

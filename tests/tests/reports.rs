@@ -1,0 +1,185 @@
+//! The analysis side: JSON stability, the HTML page and its plots, CSV
+//! exports that reproduce the totals, and sizing advice that works.
+
+use std::collections::BTreeSet;
+
+use gleaner::analysis::{analyze_file, html, sizing, RunReport};
+use gleaner::export::export_csv;
+use gleaner::sim::{Scenario, VirtualNode};
+use gleaner_tests::scenario;
+
+/// Simulates `s` straight into a log (no pseudo-terminal) and reports on it.
+fn simulated(
+    s: Scenario,
+    dir: &std::path::Path,
+) -> (std::path::PathBuf, RunReport, gleaner::sim::GroundTruth) {
+    let log = dir.join("sim.glog");
+    let header = gleaner::recorder::header_for("test");
+    let mut writer = gleaner::log::LogWriter::create(&log, &header).unwrap();
+    let mut node = VirtualNode::new(s, 11).unwrap();
+    let mut bytes = Vec::new();
+    while !node.finished() {
+        node.step();
+        node.drain_frames(&mut bytes);
+        for f in bytes.split(|&b| b == 0).filter(|f| !f.is_empty()) {
+            writer
+                .append_frame(1_700_000_000_000_000 + node.now_us(), f)
+                .unwrap();
+        }
+        bytes.clear();
+    }
+    writer.sync().unwrap();
+    let report = analyze_file(&log).unwrap();
+    (log, report, node.truth().clone())
+}
+
+/// Every key path of a JSON value with its type; arrays contribute their
+/// first element's shape.
+fn shape(value: &serde_json::Value, path: String, out: &mut BTreeSet<String>) {
+    use serde_json::Value::*;
+    match value {
+        Object(map) => {
+            out.insert(format!("{path}: object"));
+            for (k, v) in map {
+                shape(v, format!("{path}.{k}"), out);
+            }
+        }
+        Array(items) => {
+            out.insert(format!("{path}: array"));
+            if let Some(first) = items.first() {
+                shape(first, format!("{path}[]"), out);
+            }
+        }
+        String(_) => drop(out.insert(format!("{path}: string"))),
+        Number(_) => drop(out.insert(format!("{path}: number"))),
+        Bool(_) => drop(out.insert(format!("{path}: bool"))),
+        Null => drop(out.insert(format!("{path}: null"))),
+    }
+}
+
+#[test]
+fn json_schema_is_stable() {
+    // Pinned in tests/data/report-shape.txt; a change there is a schema change
+    // (bump REPORT_SCHEMA and update docs/report-json.md).
+    let dir = tempfile::tempdir().unwrap();
+    let (_, report, _) = simulated(scenario("stalled-converter", None), dir.path());
+    let value = serde_json::to_value(&report).unwrap();
+    assert_eq!(value["schema"], "gleaner.report.v1");
+    let mut paths = BTreeSet::new();
+    shape(&value, String::new(), &mut paths);
+    let got: Vec<String> = paths.into_iter().collect();
+    let pinned = include_str!("../data/report-shape.txt");
+    let expected: Vec<String> = pinned.lines().map(str::to_string).collect();
+    if got != expected {
+        std::fs::write(
+            std::env::temp_dir().join("report-shape.txt"),
+            got.join("\n") + "\n",
+        )
+        .unwrap();
+    }
+    assert_eq!(
+        got, expected,
+        "JSON shape changed; new shape written to the temp dir"
+    );
+}
+
+#[test]
+fn the_html_page_has_one_valid_svg_per_plot() {
+    let dir = tempfile::tempdir().unwrap();
+    let (_, report, _) = simulated(scenario("boiler-pipe", Some(2.0)), dir.path());
+    let page = html::render(&report).unwrap();
+    assert!(page.starts_with("<!DOCTYPE html>"));
+    // Opens with no network: no scripts, no external resources.
+    assert!(!page.contains("<script"));
+    assert!(!page.contains("src=\"http") && !page.contains("href=\"http"));
+    let figures: Vec<&str> = page.split("<figure>").skip(1).collect();
+    assert_eq!(figures.len(), html::PLOT_TITLES.len());
+    for (figure, title) in figures.iter().zip(html::PLOT_TITLES) {
+        assert!(figure.contains(title));
+        let start = figure.find("<svg").unwrap();
+        let end = figure.find("</svg>").unwrap() + "</svg>".len();
+        let svg = &figure[start..end];
+        let doc =
+            roxmltree::Document::parse(svg).unwrap_or_else(|e| panic!("{title}: invalid SVG: {e}"));
+        assert_eq!(doc.root_element().tag_name().name(), "svg");
+        let lines = doc
+            .descendants()
+            .filter(|n| n.has_tag_name("polyline") || n.has_tag_name("path"))
+            .count();
+        assert!(lines >= 1, "{title} draws something");
+    }
+}
+
+#[test]
+fn csv_export_reproduces_the_report_totals() {
+    let dir = tempfile::tempdir().unwrap();
+    let (log, report, _) = simulated(scenario("boiler-pipe", Some(3.0)), dir.path());
+    let done = export_csv(&log, &dir.path().join("out")).unwrap();
+    let text = std::fs::read_to_string(&done.reports_path).unwrap();
+    let mut lines = text.lines();
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let col = |name: &str| header.iter().position(|h| *h == name).unwrap();
+    let (drawn_col, delivered_col, cut_col) =
+        (col("drawn_nj"), col("delivered_nj"), col("cut_off_ms"));
+    let (mut drawn, mut delivered, mut cut_ms, mut rows) = (0u64, 0u64, 0u64, 0u64);
+    for line in lines {
+        let cells: Vec<&str> = line.split(',').collect();
+        assert_eq!(cells.len(), header.len());
+        drawn += cells[drawn_col].parse::<u64>().unwrap();
+        delivered += cells[delivered_col].parse::<u64>().unwrap();
+        cut_ms += cells[cut_col].parse::<u64>().unwrap();
+        rows += 1;
+    }
+    assert_eq!(rows, done.reports);
+    assert_eq!(drawn as f64 / 1e9, report.energy.drawn_j);
+    assert_eq!(delivered as f64 / 1e9, report.energy.delivered_j);
+    let cut_s = report
+        .states
+        .iter()
+        .find(|s| s.state == "cut-off")
+        .unwrap()
+        .seconds;
+    assert!((cut_ms as f64 / 1e3 - cut_s).abs() < 1e-6);
+    let events = std::fs::read_to_string(&done.events_path).unwrap();
+    assert_eq!(events.lines().count() as u64 - 1, done.events);
+    assert_eq!(done.events as usize, report.transitions.len());
+}
+
+#[test]
+fn recommended_storage_carries_the_load_through_the_outage() {
+    // Run the greenhouse day, take the report's storage advice, fit that
+    // capacitance and run it again: the load must never brown out once powered.
+    let dir = tempfile::tempdir().unwrap();
+    let base = scenario("greenhouse-day", None);
+    let (_, report, truth) = simulated(base.clone(), dir.path());
+    assert!(
+        truth.load_brownouts >= 1,
+        "the stock storage does not last the night"
+    );
+    let advice = report.sizing.clone().unwrap();
+    let c = advice.capacitance_f.unwrap();
+    // C = 2E / (Vmax² - Vmin²) with E = P t (capacitor energy, any physics text).
+    let expected = 2.0 * advice.load_w * advice.outage_s
+        / (advice.v_max.powi(2) - advice.v_min.powi(2))
+        * advice.margin;
+    assert!((c - expected).abs() / expected < 1e-12);
+    let mut bigger = base;
+    bigger.converter.output_capacitance_f = c;
+    bigger.node.output_storage_uf = Some((c * 1e6) as u32);
+    let dir2 = tempfile::tempdir().unwrap();
+    let (_, _, truth2) = simulated(bigger, dir2.path());
+    assert_eq!(
+        truth2.load_brownouts, 0,
+        "with {c:.3} F the load rides through the night: {truth2:?}"
+    );
+    assert_eq!(advice.margin, sizing::DEFAULT_MARGIN);
+}
+
+#[test]
+fn report_of_a_fault_names_the_converter() {
+    let dir = tempfile::tempdir().unwrap();
+    let (_, report, _) = simulated(scenario("stalled-converter", None), dir.path());
+    let text = gleaner::analysis::text::render(&report);
+    assert!(text.contains("converter fault"), "{text}");
+    assert!(text.contains("OUTAGES (1)"));
+}
