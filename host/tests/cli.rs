@@ -1,0 +1,200 @@
+//! The `gleaner` binary as a user runs it.
+
+use std::process::Command;
+
+fn gleaner() -> Command {
+    Command::new(env!("CARGO_BIN_EXE_gleaner"))
+}
+
+fn run(args: &[&str]) -> (bool, String, String) {
+    let out = gleaner().args(args).output().expect("gleaner runs");
+    (
+        out.status.success(),
+        String::from_utf8_lossy(&out.stdout).into_owned(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
+}
+
+#[test]
+fn lists_the_built_in_scenarios() {
+    let (ok, out, _) = run(&["sim", "list"]);
+    assert!(ok);
+    for name in [
+        "greenhouse-day",
+        "crate-beacon",
+        "orchard-night",
+        "boiler-pipe",
+        "stalled-converter",
+    ] {
+        assert!(out.contains(name), "{out}");
+    }
+    assert!(out.to_lowercase().contains("invented"));
+}
+
+#[test]
+fn the_demo_runs_end_to_end_and_says_what_next() {
+    let dir = tempfile::tempdir().unwrap();
+    let text =
+        gleaner_scenario_text("stalled-converter").replace("duration_h = 2.0", "duration_h = 0.2");
+    let file = dir.path().join("short.toml");
+    std::fs::write(&file, text).unwrap();
+    let out_dir = dir.path().join("runs");
+    let (ok, out, err) = run(&[
+        "demo",
+        "--scenario",
+        file.to_str().unwrap(),
+        "--plain",
+        "--speed",
+        "2000",
+        "--out",
+        out_dir.to_str().unwrap(),
+    ]);
+    assert!(ok, "{out}\n{err}");
+    assert!(
+        out.contains("ENERGY") && out.contains("efficiency"),
+        "{out}"
+    );
+    assert!(out.contains("SIMULATOR GROUND TRUTH"), "{out}");
+    assert!(out.contains("Next: gleaner report"), "{out}");
+    let logs: Vec<_> = std::fs::read_dir(&out_dir)
+        .unwrap()
+        .filter_map(|e| e.ok())
+        .map(|e| e.path())
+        .collect();
+    assert!(logs
+        .iter()
+        .any(|p| p.extension().is_some_and(|e| e == "glog")));
+    assert!(logs
+        .iter()
+        .any(|p| p.extension().is_some_and(|e| e == "html")));
+}
+
+fn gleaner_scenario_text(name: &str) -> String {
+    let (ok, out, _) = run(&["sim", "show", name]);
+    assert!(ok);
+    out
+}
+
+#[test]
+fn simulate_report_and_export_a_run() {
+    let dir = tempfile::tempdir().unwrap();
+    let log = dir.path().join("run.glog");
+    let (ok, _, err) = run(&[
+        "sim",
+        "run",
+        "stalled-converter",
+        "--out",
+        log.to_str().unwrap(),
+    ]);
+    assert!(ok, "{err}");
+    let (ok, out, err) = run(&["report", log.to_str().unwrap(), "--json"]);
+    assert!(ok, "{err}");
+    let json: serde_json::Value = serde_json::from_str(&out).unwrap();
+    assert_eq!(json["outages"][0]["cause"], "converter-fault");
+    let html = dir.path().join("page.html");
+    let (ok, out, err) = run(&[
+        "report",
+        log.to_str().unwrap(),
+        "--html",
+        html.to_str().unwrap(),
+    ]);
+    assert!(ok, "{err}");
+    assert!(out.contains("OUTAGES (1)"));
+    assert!(std::fs::read_to_string(&html).unwrap().contains("<svg"));
+    let (ok, out, err) = run(&["export", log.to_str().unwrap()]);
+    assert!(ok, "{err}");
+    assert!(out.contains("reports to"), "{out}");
+    // Two logs make a fleet table.
+    let (ok, out, _) = run(&["report", log.to_str().unwrap(), log.to_str().unwrap()]);
+    assert!(ok);
+    assert!(out.contains("FLEET"), "{out}");
+}
+
+#[test]
+fn the_planner_names_the_bad_field() {
+    let (ok, _, err) = run(&[
+        "plan",
+        "--harvest-w",
+        "0.001",
+        "--sleep-w",
+        "1e-5",
+        "--active-w",
+        "0.01",
+        "--outage-h",
+        "12",
+        "--v-max",
+        "3.3",
+        "--v-min",
+        "3.5",
+    ]);
+    assert!(!ok);
+    assert!(err.contains("--v-max"), "{err}");
+    let (ok, out, err) = run(&[
+        "plan",
+        "--harvest-w",
+        "0.001",
+        "--sleep-w",
+        "1e-5",
+        "--active-w",
+        "0.01",
+        "--outage-h",
+        "12",
+        "--v-max",
+        "3.3",
+        "--v-min",
+        "1.8",
+    ]);
+    assert!(ok, "{err}");
+    // Load 1e-5 + 0.01 * (0.01 - 1e-5) = 109.9 µW for 12 h = 4.74768 J;
+    // C = 2 * 4.74768 / (3.3² - 1.8²) = 1.241224 F, times 1.3 = 1.613591 F.
+    assert!(
+        out.contains("1.6136 F") && out.contains("1.2412 F"),
+        "{out}"
+    );
+}
+
+#[test]
+fn an_iv_curve_comes_as_csv_with_its_maximum_power_point() {
+    let (ok, out, err) = run(&[
+        "sim",
+        "curve",
+        "--scenario",
+        "greenhouse-day",
+        "--irradiance",
+        "100",
+        "--points",
+        "11",
+    ]);
+    assert!(ok, "{err}");
+    assert!(out.contains("# maximum power"));
+    let rows: Vec<&str> = out.lines().filter(|l| !l.starts_with('#')).collect();
+    assert_eq!(rows[0], "voltage_v,current_a,power_w");
+    assert_eq!(rows.len(), 12);
+}
+
+#[test]
+fn a_bad_scenario_file_names_the_field() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("bad.toml");
+    std::fs::write(
+        &file,
+        gleaner_scenario_text("crate-beacon").replace("n_vt = 0.0905", "n_vt = -1.0"),
+    )
+    .unwrap();
+    let (ok, _, err) = run(&["demo", "--scenario", file.to_str().unwrap(), "--plain"]);
+    assert!(!ok);
+    assert!(err.contains("load.n_vt"), "{err}");
+}
+
+#[test]
+fn a_missing_port_says_how_to_find_the_node() {
+    let dir = tempfile::tempdir().unwrap();
+    let (ok, _, err) = run(&[
+        "record",
+        "/dev/ttyGLEANER-none",
+        "--dir",
+        dir.path().to_str().unwrap(),
+    ]);
+    assert!(!ok);
+    assert!(err.contains("gleaner ports"), "{err}");
+}
