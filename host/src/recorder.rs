@@ -5,7 +5,7 @@
 //! [`run_port`] drives a port: it reconnects when the port disappears and comes
 //! back, marks the gap, and stops cleanly when asked.
 
-use std::io::Read;
+use std::io::{Read, Write};
 use std::path::Path;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::{Duration, Instant};
@@ -165,6 +165,10 @@ pub trait PortObserver {
     fn tick(&mut self, stats: &LinkStats, idle_for: Duration) -> bool;
     /// The port went away or came back.
     fn link_changed(&mut self, _connected: bool, _detail: &str) {}
+    /// Bytes to send to the node now (commands), if any.
+    fn outgoing(&mut self) -> Option<Vec<u8>> {
+        None
+    }
 }
 
 /// Reads `port` until `stop` is set or the observer says so, reconnecting
@@ -217,6 +221,11 @@ pub fn run_port(
                     observer.link_changed(true, port);
                     link = Some(p);
                 }
+            }
+        }
+        if let (Some(p), Some(bytes)) = (link.as_mut(), observer.outgoing()) {
+            if let Err(e) = p.write_all(&bytes).and_then(|()| p.flush()) {
+                recorder.mark(MarkerKind::Note, &format!("could not send a command: {e}"))?;
             }
         }
         if observer.tick(recorder.stats(), last_data.elapsed()) {

@@ -2,6 +2,7 @@
 
 pub mod demo;
 pub mod export;
+pub mod import;
 pub mod node;
 pub mod plan;
 pub mod ports;
@@ -39,6 +40,8 @@ pub enum Command {
     Report(report::Cmd),
     /// Export recorded runs as CSV.
     Export(export::Cmd),
+    /// Turn a raw capture of serial bytes into a log.
+    Import(import::Cmd),
     /// Size storage and duty cycle from numbers, before any deployment.
     Plan(plan::Cmd),
     /// Virtual-node tools: scenarios and source I-V curves.
@@ -56,6 +59,7 @@ impl Cli {
             Command::Node(c) => c.run(),
             Command::Report(c) => c.run(),
             Command::Export(c) => c.run(),
+            Command::Import(c) => c.run(),
             Command::Plan(c) => c.run(),
             Command::Sim(c) => c.run(),
         }

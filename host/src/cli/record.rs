@@ -4,12 +4,15 @@ use std::io::Write;
 use std::path::PathBuf;
 use std::time::{Duration, Instant};
 
-use anyhow::Result;
+use anyhow::{Context, Result};
 use clap::Args;
+use gleaner_protocol::Outcome;
 
 use crate::analysis::text::duration;
+use crate::link::script::{CommandScript, Scripted, Step};
 use crate::link::{LinkStats, DEFAULT_BAUD};
 use crate::recorder::{run_port, Recorder};
+use crate::settings::NodeSettings;
 use crate::view::observer::{Display, LiveObserver};
 
 /// Record a node to a log file: reconnects when the port disappears and comes
@@ -34,6 +37,12 @@ pub struct Cmd {
     /// Stop after this many seconds (default: until Ctrl-C or SIGTERM).
     #[arg(long)]
     pub duration: Option<f64>,
+    /// Ping the node once it is connected (the reply is in the log).
+    #[arg(long)]
+    pub ping: bool,
+    /// Apply these settings (TOML, as for `gleaner node set-config --file`) once connected.
+    #[arg(long)]
+    pub set_config: Option<PathBuf>,
 }
 
 impl Cmd {
@@ -76,13 +85,36 @@ impl Cmd {
             }
             limit.is_some_and(|l| started.elapsed() >= l)
         };
+        let mut steps = Vec::new();
+        if self.ping {
+            steps.push(Step::Ping);
+        }
+        if let Some(file) = &self.set_config {
+            let text = std::fs::read_to_string(file)
+                .with_context(|| format!("cannot read {}", file.display()))?;
+            let settings =
+                NodeSettings::from_toml(&text).with_context(|| format!("in {}", file.display()))?;
+            steps.push(Step::Configure(Box::new(settings)));
+        }
         let mut observer = LiveObserver::new(
             Display::Silent,
             &self.port,
             Box::new(std::io::sink()),
             Box::new(done),
         );
-        let result = run_port(&mut recorder, &self.port, self.baud, &stop, &mut observer);
+        let script = CommandScript::new(steps, Duration::from_secs(3));
+        let mut scripted = Scripted::new(script, &mut observer);
+        let result = run_port(&mut recorder, &self.port, self.baud, &stop, &mut scripted);
+        for (step, outcome) in &scripted.script.results {
+            match outcome {
+                Some(Outcome::Refused(reason)) => eprintln!("{step:?}: refused: {reason}"),
+                Some(o) => eprintln!("{step:?}: {o:?}"),
+                None => eprintln!("{step:?}: the node did not answer within 3 s"),
+            }
+        }
+        for e in &scripted.script.errors {
+            eprintln!("not sent: {e}");
+        }
         let finished = recorder.finish();
         let stats = *recorder.stats();
         result?;

@@ -3,6 +3,7 @@
 //! reboots, errors) from the frames received.
 
 pub mod ports;
+pub mod script;
 pub mod tracker;
 
 pub use ports::{list_ports, open_port, PortInfo, DEFAULT_BAUD};

@@ -1,0 +1,154 @@
+//! Commands sent while recording: a short script run against the node as soon
+//! as it answers, its replies kept (they are in the log too).
+
+use std::collections::VecDeque;
+use std::time::{Duration, Instant};
+
+use gleaner_protocol::{
+    encode_frame, Command, Downlink, Hello, Outcome, UplinkBody, MAX_DOWNLINK_FRAME_LEN,
+};
+
+use crate::link::{LinkStats, Tracked};
+use crate::recorder::PortObserver;
+use crate::settings::NodeSettings;
+
+/// One step of a script.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Step {
+    /// Ping the node.
+    Ping,
+    /// Ask for its `Hello`.
+    GetInfo,
+    /// Apply these settings on top of the node's present configuration.
+    Configure(Box<NodeSettings>),
+    /// Zero its energy totals.
+    ResetEnergy,
+}
+
+/// Runs steps one at a time, each waiting for its reply (or a timeout).
+#[derive(Debug)]
+pub struct CommandScript {
+    steps: VecDeque<Step>,
+    next_id: u16,
+    waiting: Option<(u16, Step, Instant)>,
+    timeout: Duration,
+    hello: Option<Hello>,
+    /// Each step with its outcome (None: no answer in time).
+    pub results: Vec<(Step, Option<Outcome>)>,
+    /// Problems preparing a step (bad settings for this node).
+    pub errors: Vec<String>,
+}
+
+impl CommandScript {
+    /// A script of `steps`, each given `timeout` to be answered.
+    pub fn new(steps: Vec<Step>, timeout: Duration) -> Self {
+        CommandScript {
+            steps: steps.into(),
+            next_id: 1,
+            waiting: None,
+            timeout,
+            hello: None,
+            results: Vec::new(),
+            errors: Vec::new(),
+        }
+    }
+
+    /// True when every step has been answered or has timed out.
+    pub fn finished(&self) -> bool {
+        self.steps.is_empty() && self.waiting.is_none()
+    }
+
+    /// Takes a received message.
+    pub fn message(&mut self, tracked: &Tracked) {
+        match &tracked.message.body {
+            UplinkBody::Hello(h) => self.hello = Some(h.clone()),
+            UplinkBody::Reply(r) => {
+                if let Some((id, step, _)) = self.waiting.take() {
+                    if r.request_id == id {
+                        self.results.push((step, Some(r.outcome)));
+                    } else {
+                        self.waiting = Some((id, step, Instant::now()));
+                    }
+                }
+            }
+            _ => {}
+        }
+    }
+
+    /// The next command's bytes, when one is due.
+    pub fn outgoing(&mut self) -> Option<Vec<u8>> {
+        if let Some((_, _, sent)) = &self.waiting {
+            if sent.elapsed() < self.timeout {
+                return None;
+            }
+            if let Some((_, step, _)) = self.waiting.take() {
+                self.results.push((step, None));
+            }
+        }
+        let step = self.steps.pop_front()?;
+        let command = match &step {
+            Step::Ping => Command::Ping,
+            Step::GetInfo => Command::GetInfo,
+            Step::ResetEnergy => Command::ResetEnergy,
+            Step::Configure(settings) => match &self.hello {
+                None => {
+                    // Learn the present configuration first.
+                    self.steps.push_front(step.clone());
+                    self.steps.push_front(Step::GetInfo);
+                    return self.outgoing();
+                }
+                Some(hello) => match settings.apply(&hello.config) {
+                    Ok(config) => Command::SetConfig(config),
+                    Err(e) => {
+                        self.errors.push(format!("{e:#}"));
+                        return self.outgoing();
+                    }
+                },
+            },
+        };
+        let request_id = self.next_id;
+        self.next_id = self.next_id.wrapping_add(1).max(1);
+        let mut buf = [0u8; MAX_DOWNLINK_FRAME_LEN];
+        let bytes = encode_frame(
+            &Downlink {
+                request_id,
+                command,
+            },
+            &mut buf,
+        )
+        .ok()?
+        .to_vec();
+        self.waiting = Some((request_id, step, Instant::now()));
+        Some(bytes)
+    }
+}
+
+/// Wraps an observer with a command script.
+pub struct Scripted<'a> {
+    /// The script.
+    pub script: CommandScript,
+    inner: &'a mut dyn PortObserver,
+}
+
+impl<'a> Scripted<'a> {
+    /// `inner` sees everything; the script sends its commands.
+    pub fn new(script: CommandScript, inner: &'a mut dyn PortObserver) -> Self {
+        Scripted { script, inner }
+    }
+}
+
+impl PortObserver for Scripted<'_> {
+    fn message(&mut self, tracked: &Tracked, stats: &LinkStats) {
+        self.script.message(tracked);
+        self.inner.message(tracked, stats);
+    }
+    fn tick(&mut self, stats: &LinkStats, idle_for: Duration) -> bool {
+        self.inner.tick(stats, idle_for)
+    }
+    fn link_changed(&mut self, connected: bool, detail: &str) {
+        self.inner.link_changed(connected, detail);
+    }
+    fn outgoing(&mut self) -> Option<Vec<u8>> {
+        self.script.outgoing().or_else(|| self.inner.outgoing())
+    }
+}
