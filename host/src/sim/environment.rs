@@ -29,6 +29,12 @@ pub struct DaylightParams {
     /// Fraction of light a cloud lets through, lowest (darkest cloud).
     #[serde(default = "default_cloud_transmission")]
     pub cloud_transmission: f64,
+    /// Measured irradiance instead of the arc: value `k` is the mean over hour
+    /// `[k, k + 1)` of the run's first day (a TMY file's row ending at
+    /// `k + 1`:00), interpolated linearly between hour centres. Clouds are
+    /// then not added.
+    #[serde(default)]
+    pub hourly_w_m2: Vec<f64>,
 }
 
 fn default_cloud_minutes() -> f64 {
@@ -85,8 +91,25 @@ impl Daylight {
         }
     }
 
+    /// Irradiance from the hourly table at `hour` (hours since the table's start).
+    fn from_table(&self, hour: f64) -> f64 {
+        let table = &self.params.hourly_w_m2;
+        // Value i is the mean of hour (i - 1, i]: place it at i - 0.5.
+        let x = hour + 0.5;
+        let i = x.floor().max(0.0) as usize;
+        let frac = x - x.floor();
+        let at = |k: usize| table.get(k).copied().unwrap_or(0.0).max(0.0);
+        if i == 0 {
+            return at(0) * frac;
+        }
+        at(i - 1) + (at(i) - at(i - 1)) * frac
+    }
+
     /// Clear-sky irradiance at `t_s` after the start.
     pub fn clear_sky(&self, t_s: f64) -> f64 {
+        if !self.params.hourly_w_m2.is_empty() {
+            return self.from_table(self.start_hour + t_s / 3600.0);
+        }
         let hour = (self.start_hour + t_s / 3600.0).rem_euclid(24.0);
         let p = &self.params;
         let day = if hour > p.sunrise_hour && hour < p.sunset_hour {
@@ -101,6 +124,9 @@ impl Daylight {
     /// Irradiance with clouds at `t_s`.
     pub fn irradiance(&self, t_s: f64) -> f64 {
         let clear = self.clear_sky(t_s);
+        if !self.params.hourly_w_m2.is_empty() {
+            return clear;
+        }
         let shade = self
             .clouds
             .iter()
@@ -172,7 +198,18 @@ mod tests {
             clouds_per_hour: clouds,
             cloud_minutes: 10.0,
             cloud_transmission: 0.2,
+            hourly_w_m2: Vec::new(),
         }
+    }
+
+    #[test]
+    fn an_hourly_table_is_interpolated_between_hour_centres() {
+        let mut p = params(0.0);
+        p.hourly_w_m2 = vec![0.0, 100.0, 300.0];
+        let day = Daylight::new(p, 0.0, 3.0 * 3600.0, 1);
+        assert_eq!(day.irradiance(1.5 * 3600.0), 100.0); // centre of hour [1, 2)
+        assert_eq!(day.irradiance(2.0 * 3600.0), 200.0);
+        assert_eq!(day.irradiance(2.5 * 3600.0), 300.0);
     }
 
     #[test]
