@@ -92,7 +92,7 @@ impl Daylight {
     }
 
     /// Irradiance from the hourly table at `hour` (hours since the table's start).
-    fn from_table(&self, hour: f64) -> f64 {
+    fn table_at(&self, hour: f64) -> f64 {
         let table = &self.params.hourly_w_m2;
         // Value i is the mean of hour (i - 1, i]: place it at i - 0.5.
         let x = hour + 0.5;
@@ -108,7 +108,7 @@ impl Daylight {
     /// Clear-sky irradiance at `t_s` after the start.
     pub fn clear_sky(&self, t_s: f64) -> f64 {
         if !self.params.hourly_w_m2.is_empty() {
-            return self.from_table(self.start_hour + t_s / 3600.0);
+            return self.table_at(self.start_hour + t_s / 3600.0);
         }
         let hour = (self.start_hour + t_s / 3600.0).rem_euclid(24.0);
         let p = &self.params;
