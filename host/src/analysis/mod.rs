@@ -203,6 +203,9 @@ pub struct RunReport {
 
 const MAX_TRANSITIONS: usize = 10_000;
 
+/// Names of the message kinds, in wire order, for `message_counts`.
+const MESSAGE_KINDS: [&str; 5] = ["hello", "report", "event", "samples", "reply"];
+
 #[derive(Debug, Clone, Default)]
 struct Bin {
     seconds: f64,
@@ -250,7 +253,7 @@ pub struct Analyzer {
     supplied_delivered_j: f64,
     transitions: Vec<Transition>,
     transitions_not_listed: u64,
-    counts: BTreeMap<String, u64>,
+    counts: [u64; 5],
     series: Series,
     warnings: Vec<String>,
 }
@@ -301,7 +304,7 @@ impl Analyzer {
             supplied_delivered_j: 0.0,
             transitions: Vec::new(),
             transitions_not_listed: 0,
-            counts: BTreeMap::new(),
+            counts: [0; 5],
             series: Series::new(),
             warnings: Vec::new(),
         }
@@ -310,6 +313,23 @@ impl Analyzer {
     /// Notes a warning (for example from the log reader).
     pub fn warn(&mut self, warning: String) {
         self.warnings.push(warning);
+    }
+
+    /// Takes one log record, decoding frames in place (cheaper than
+    /// [`Self::add_record`] when the record is not needed afterwards).
+    pub fn add_record_owned(&mut self, mut record: Record) {
+        if let RecordBody::Frame(bytes) = &mut record.body {
+            match self.tracker.accept_in_place(bytes) {
+                Ok(Some(tracked)) => self.add_tracked(record.host_time_us, &tracked),
+                Ok(None) => {}
+                Err(crate::link::tracker::TrackError::Version(v)) => {
+                    self.warnings.push(format!("a frame was skipped: {v}"));
+                }
+                Err(_) => {}
+            }
+            return;
+        }
+        self.add_record(&record);
     }
 
     /// Takes one log record.
@@ -356,20 +376,20 @@ impl Analyzer {
         let kind = match &tracked.message.body {
             UplinkBody::Hello(h) => {
                 self.add_hello(tracked.boot_index, h);
-                "hello"
+                0
             }
             UplinkBody::Report(r) => {
                 self.add_report(t_s, r);
-                "report"
+                1
             }
             UplinkBody::Event(e) => {
                 self.add_event(t_s, e);
-                "event"
+                2
             }
-            UplinkBody::Samples(_) => "samples",
-            UplinkBody::Reply(_) => "reply",
+            UplinkBody::Samples(_) => 3,
+            UplinkBody::Reply(_) => 4,
         };
-        *self.counts.entry(kind.to_string()).or_default() += 1;
+        self.counts[kind] += 1;
     }
 
     fn add_hello(&mut self, index: u32, h: &Hello) {
@@ -639,7 +659,12 @@ impl Analyzer {
             link,
             transitions: self.transitions,
             transitions_not_listed: self.transitions_not_listed,
-            message_counts: self.counts,
+            message_counts: MESSAGE_KINDS
+                .iter()
+                .zip(self.counts)
+                .filter(|(_, n)| *n > 0)
+                .map(|(k, n)| (k.to_string(), n))
+                .collect(),
             series: self.series.points().to_vec(),
             warnings: self.warnings,
         }
@@ -654,7 +679,7 @@ pub fn analyze_file(path: &std::path::Path) -> anyhow::Result<RunReport> {
     let mut reader = crate::log::LogReader::new(file);
     let mut analyzer = Analyzer::new();
     for record in reader.by_ref() {
-        analyzer.add_record(&record);
+        analyzer.add_record_owned(record);
     }
     if let Some(err) = reader.take_io_error() {
         analyzer.warn(format!("reading stopped early: {err}"));

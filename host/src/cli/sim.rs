@@ -33,6 +33,19 @@ pub enum Action {
     /// Print a source's I-V curve and maximum-power point as CSV, to compare
     /// the model with measurements of your own cell.
     Curve(Curve),
+    /// Write a long, invented log quickly (a daily cycle, no physics), for
+    /// benchmarks and trying the analysis on big files.
+    Synthetic {
+        /// Days of reports.
+        #[arg(long, default_value_t = 30.0)]
+        days: f64,
+        /// Seconds between reports.
+        #[arg(long, default_value_t = 1)]
+        interval_s: u64,
+        /// Log file to create.
+        #[arg(long)]
+        out: PathBuf,
+    },
     /// Simulate a scenario straight into a log file, as fast as possible
     /// (no pseudo-terminal; host times are simulated).
     Run {
@@ -148,6 +161,21 @@ impl Cmd {
                     let a = source.current_at(v);
                     println!("{v:.6},{a:.6e},{:.6e}", v * a);
                 }
+            }
+            Action::Synthetic { days, interval_s, out } => {
+                if !(days > 0.0 && days <= 3660.0) {
+                    bail!("--days must be above 0 and at most 3660, got {days}");
+                }
+                let file = std::fs::OpenOptions::new()
+                    .write(true)
+                    .create_new(true)
+                    .open(&out)
+                    .map_err(|e| anyhow::anyhow!("cannot create {}: {e}", out.display()))?;
+                let mut writer = std::io::BufWriter::new(file);
+                let mut log = crate::sim::synthetic::SyntheticLog::new((days * 86_400.0) as u64, interval_s);
+                let bytes = std::io::copy(&mut log, &mut writer)?;
+                std::io::Write::flush(&mut writer)?;
+                println!("{bytes} bytes to {}", out.display());
             }
             Action::Run { scenario, out } => {
                 let scenario = Scenario::load(&scenario)?;

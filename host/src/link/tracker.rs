@@ -77,8 +77,12 @@ impl LinkTracker {
     /// Ok(None) for a duplicate; a protocol major-version mismatch is an error
     /// the caller must stop on.
     pub fn accept_encoded(&mut self, encoded: &[u8]) -> Result<Option<Tracked>, TrackError> {
-        let mut scratch = encoded.to_vec();
-        match decode_frame::<Uplink>(&mut scratch) {
+        self.accept_in_place(&mut encoded.to_vec())
+    }
+
+    /// As [`Self::accept_encoded`], decoding in place (the bytes are overwritten).
+    pub fn accept_in_place(&mut self, encoded: &mut [u8]) -> Result<Option<Tracked>, TrackError> {
+        match decode_frame::<Uplink>(encoded) {
             Ok(message) => self.accept(message),
             Err(error) => {
                 self.count_error(error);
