@@ -29,7 +29,15 @@ fn samples(c: &mut Criterion) {
                 let mut buf = [0u8; MAX_UPLINK_FRAME_LEN];
                 for i in 0..1_000u64 {
                     let w = (i % 97) as u32;
-                    n.on_sample(i * 1_000, &RawSample { input_voltage: 1_200 + w, input_current: 60, output_voltage: 2_000, output_current: 300 + w });
+                    n.on_sample(
+                        i * 1_000,
+                        &RawSample {
+                            input_voltage: 1_200 + w,
+                            input_current: 60,
+                            output_voltage: 2_000,
+                            output_current: 300 + w,
+                        },
+                    );
                     while n.next_frame(&mut buf).is_some() {}
                 }
                 n

@@ -9,7 +9,10 @@ use gleaner_firmware::{Node, NodeParts, RawSample};
 use gleaner_protocol::{ConfigSource, MAX_UPLINK_FRAME_LEN};
 
 fn main() {
-    let n: u64 = std::env::args().nth(1).and_then(|a| a.parse().ok()).unwrap_or(100_000);
+    let n: u64 = std::env::args()
+        .nth(1)
+        .and_then(|a| a.parse().ok())
+        .unwrap_or(100_000);
     let mut node = Node::new(NodeParts {
         config: default_config(),
         config_source: ConfigSource::Defaults,
@@ -33,5 +36,8 @@ fn main() {
             bytes += frame.len();
         }
     }
-    println!("{n} samples, {bytes} bytes of frames, node state {} bytes", std::mem::size_of_val(&node));
+    println!(
+        "{n} samples, {bytes} bytes of frames, node state {} bytes",
+        std::mem::size_of_val(&node)
+    );
 }

@@ -131,3 +131,270 @@ pub fn export_csv(log: &Path, prefix: &Path) -> Result<Exported> {
         events,
     })
 }
+
+/// What a Parquet export wrote.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct ExportedParquet {
+    /// One row per report.
+    pub reports_path: PathBuf,
+    /// Rows in it.
+    pub reports: u64,
+    /// One row per transition.
+    pub events_path: PathBuf,
+    /// Rows in it.
+    pub events: u64,
+}
+
+/// Rows per Parquet row group.
+const BATCH_ROWS: usize = 65_536;
+
+/// Column buffers of the reports file (same columns and units as the CSV;
+/// see docs/parquet-schema.md).
+#[derive(Default)]
+struct ReportColumns {
+    boot: Vec<u32>,
+    seq: Vec<u16>,
+    uptime_ms: Vec<u64>,
+    host_time_us: Vec<u64>,
+    interval_ms: Vec<u32>,
+    sample_count: Vec<u32>,
+    stats: [Vec<u32>; 12],
+    drawn_nj: Vec<u64>,
+    delivered_nj: Vec<u64>,
+    stored_nj: Vec<i64>,
+    state: Vec<&'static str>,
+    state_ms: [Vec<u32>; 6],
+    input_cutoff_in_ms: Vec<Option<u32>>,
+    storage_runout_in_ms: Vec<Option<u32>>,
+    load_shed: Vec<bool>,
+    flags: Vec<u8>,
+}
+
+const STAT_COLUMNS: [&str; 12] = [
+    "input_uv_min",
+    "input_uv_mean",
+    "input_uv_max",
+    "input_na_min",
+    "input_na_mean",
+    "input_na_max",
+    "output_uv_min",
+    "output_uv_mean",
+    "output_uv_max",
+    "output_na_min",
+    "output_na_mean",
+    "output_na_max",
+];
+const STATE_COLUMNS: [&str; 6] = [
+    "idle_ms",
+    "cold_start_ms",
+    "harvesting_ms",
+    "sagging_ms",
+    "cut_off_ms",
+    "stalled_ms",
+];
+
+fn report_schema() -> arrow_schema::SchemaRef {
+    use arrow_schema::{DataType, Field, Schema};
+    let mut fields = vec![
+        Field::new("boot", DataType::UInt32, false),
+        Field::new("seq", DataType::UInt16, false),
+        Field::new("uptime_ms", DataType::UInt64, false),
+        Field::new("host_time_us", DataType::UInt64, false),
+        Field::new("interval_ms", DataType::UInt32, false),
+        Field::new("sample_count", DataType::UInt32, false),
+    ];
+    fields.extend(
+        STAT_COLUMNS
+            .iter()
+            .map(|c| Field::new(*c, DataType::UInt32, false)),
+    );
+    fields.push(Field::new("drawn_nj", DataType::UInt64, false));
+    fields.push(Field::new("delivered_nj", DataType::UInt64, false));
+    fields.push(Field::new("stored_nj", DataType::Int64, false));
+    fields.push(Field::new("state", DataType::Utf8, false));
+    fields.extend(
+        STATE_COLUMNS
+            .iter()
+            .map(|c| Field::new(*c, DataType::UInt32, false)),
+    );
+    fields.push(Field::new("input_cutoff_in_ms", DataType::UInt32, true));
+    fields.push(Field::new("storage_runout_in_ms", DataType::UInt32, true));
+    fields.push(Field::new("load_shed", DataType::Boolean, false));
+    fields.push(Field::new("flags", DataType::UInt8, false));
+    std::sync::Arc::new(Schema::new(fields))
+}
+
+impl ReportColumns {
+    fn push(
+        &mut self,
+        boot: u32,
+        seq: u16,
+        uptime_ms: u64,
+        host_time_us: u64,
+        r: &gleaner_protocol::Report,
+    ) {
+        self.boot.push(boot);
+        self.seq.push(seq);
+        self.uptime_ms.push(uptime_ms);
+        self.host_time_us.push(host_time_us);
+        self.interval_ms.push(r.interval_ms);
+        self.sample_count.push(r.sample_count);
+        let channels = [&r.input_uv, &r.input_na, &r.output_uv, &r.output_na];
+        for (k, c) in channels.iter().enumerate() {
+            self.stats[3 * k].push(c.min());
+            self.stats[3 * k + 1].push(c.mean);
+            self.stats[3 * k + 2].push(c.max());
+        }
+        self.drawn_nj.push(r.drawn_nj);
+        self.delivered_nj.push(r.delivered_nj);
+        self.stored_nj.push(r.stored_nj);
+        self.state.push(r.state.name());
+        for (i, s) in gleaner_protocol::CutoffState::ALL.iter().enumerate() {
+            self.state_ms[i].push(r.state_ms.get(*s));
+        }
+        self.input_cutoff_in_ms.push(r.input_cutoff_in_ms);
+        self.storage_runout_in_ms.push(r.storage_runout_in_ms);
+        self.load_shed.push(r.load_shed);
+        self.flags.push(r.flags.0);
+    }
+
+    fn take_batch(&mut self) -> Result<arrow_array::RecordBatch> {
+        use arrow_array::*;
+        use std::sync::Arc;
+        let t = std::mem::take(self);
+        let mut cols: Vec<ArrayRef> = vec![
+            Arc::new(UInt32Array::from(t.boot)),
+            Arc::new(UInt16Array::from(t.seq)),
+            Arc::new(UInt64Array::from(t.uptime_ms)),
+            Arc::new(UInt64Array::from(t.host_time_us)),
+            Arc::new(UInt32Array::from(t.interval_ms)),
+            Arc::new(UInt32Array::from(t.sample_count)),
+        ];
+        cols.extend(
+            t.stats
+                .into_iter()
+                .map(|v| Arc::new(UInt32Array::from(v)) as ArrayRef),
+        );
+        cols.push(Arc::new(UInt64Array::from(t.drawn_nj)));
+        cols.push(Arc::new(UInt64Array::from(t.delivered_nj)));
+        cols.push(Arc::new(Int64Array::from(t.stored_nj)));
+        cols.push(Arc::new(StringArray::from(t.state)));
+        cols.extend(
+            t.state_ms
+                .into_iter()
+                .map(|v| Arc::new(UInt32Array::from(v)) as ArrayRef),
+        );
+        cols.push(Arc::new(UInt32Array::from(t.input_cutoff_in_ms)));
+        cols.push(Arc::new(UInt32Array::from(t.storage_runout_in_ms)));
+        cols.push(Arc::new(BooleanArray::from(t.load_shed)));
+        cols.push(Arc::new(UInt8Array::from(t.flags)));
+        Ok(RecordBatch::try_new(report_schema(), cols)?)
+    }
+}
+
+fn event_schema() -> arrow_schema::SchemaRef {
+    use arrow_schema::{DataType, Field, Schema};
+    std::sync::Arc::new(Schema::new(vec![
+        Field::new("boot", DataType::UInt32, false),
+        Field::new("seq", DataType::UInt16, false),
+        Field::new("uptime_ms", DataType::UInt64, false),
+        Field::new("host_time_us", DataType::UInt64, false),
+        Field::new("from", DataType::Utf8, false),
+        Field::new("to", DataType::Utf8, false),
+        Field::new("cause", DataType::Utf8, false),
+        Field::new("input_uv", DataType::UInt32, false),
+        Field::new("output_uv", DataType::UInt32, false),
+    ]))
+}
+
+/// Writes `PREFIX-reports.parquet` and `PREFIX-events.parquet` from the log at
+/// `log`, streaming in row groups of 65,536 rows.
+pub fn export_parquet(log: &Path, prefix: &Path) -> Result<ExportedParquet> {
+    use arrow_array::*;
+    use parquet::arrow::ArrowWriter;
+    use std::sync::Arc;
+    let file =
+        std::fs::File::open(log).with_context(|| format!("cannot open log {}", log.display()))?;
+    let with_suffix = |suffix: &str| {
+        let mut name = prefix.as_os_str().to_owned();
+        name.push(suffix);
+        PathBuf::from(name)
+    };
+    let reports_path = with_suffix("-reports.parquet");
+    let events_path = with_suffix("-events.parquet");
+    let create = |p: &Path| {
+        std::fs::File::create(p).with_context(|| format!("cannot create {}", p.display()))
+    };
+    let mut reports_out = ArrowWriter::try_new(create(&reports_path)?, report_schema(), None)?;
+    let mut events_out = ArrowWriter::try_new(create(&events_path)?, event_schema(), None)?;
+    let mut rows = ReportColumns::default();
+    let mut events: Vec<(u32, u16, u64, u64, gleaner_protocol::Event)> = Vec::new();
+    let mut tracker = LinkTracker::new();
+    let (mut n_reports, mut n_events) = (0u64, 0u64);
+    for mut record in LogReader::new(file) {
+        let host = record.host_time_us;
+        let RecordBody::Frame(bytes) = &mut record.body else {
+            continue;
+        };
+        let Ok(Some(t)) = tracker.accept_in_place(bytes) else {
+            continue;
+        };
+        match &t.message.body {
+            UplinkBody::Report(r) => {
+                rows.push(t.boot_index, t.message.seq, t.message.uptime_ms, host, r);
+                n_reports += 1;
+                if rows.boot.len() >= BATCH_ROWS {
+                    reports_out.write(&rows.take_batch()?)?;
+                }
+            }
+            UplinkBody::Event(e) => {
+                events.push((t.boot_index, t.message.seq, t.message.uptime_ms, host, *e));
+                n_events += 1;
+            }
+            _ => {}
+        }
+    }
+    if !rows.boot.is_empty() {
+        reports_out.write(&rows.take_batch()?)?;
+    }
+    reports_out.close()?;
+    for chunk in events.chunks(BATCH_ROWS) {
+        let cols: Vec<ArrayRef> = vec![
+            Arc::new(UInt32Array::from(
+                chunk.iter().map(|e| e.0).collect::<Vec<_>>(),
+            )),
+            Arc::new(UInt16Array::from(
+                chunk.iter().map(|e| e.1).collect::<Vec<_>>(),
+            )),
+            Arc::new(UInt64Array::from(
+                chunk.iter().map(|e| e.2).collect::<Vec<_>>(),
+            )),
+            Arc::new(UInt64Array::from(
+                chunk.iter().map(|e| e.3).collect::<Vec<_>>(),
+            )),
+            Arc::new(StringArray::from(
+                chunk.iter().map(|e| e.4.from.name()).collect::<Vec<_>>(),
+            )),
+            Arc::new(StringArray::from(
+                chunk.iter().map(|e| e.4.to.name()).collect::<Vec<_>>(),
+            )),
+            Arc::new(StringArray::from(
+                chunk.iter().map(|e| e.4.cause.name()).collect::<Vec<_>>(),
+            )),
+            Arc::new(UInt32Array::from(
+                chunk.iter().map(|e| e.4.input_uv).collect::<Vec<_>>(),
+            )),
+            Arc::new(UInt32Array::from(
+                chunk.iter().map(|e| e.4.output_uv).collect::<Vec<_>>(),
+            )),
+        ];
+        events_out.write(&RecordBatch::try_new(event_schema(), cols)?)?;
+    }
+    events_out.close()?;
+    Ok(ExportedParquet {
+        reports_path,
+        reports: n_reports,
+        events_path,
+        events: n_events,
+    })
+}

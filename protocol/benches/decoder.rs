@@ -11,7 +11,11 @@ fn stream() -> Vec<u8> {
         let r = Report {
             interval_ms: 1_000,
             sample_count: 100,
-            input_uv: ChannelStats::from_min_mean_max(1_180_000, 1_200_000 + u32::from(seq), 1_215_000),
+            input_uv: ChannelStats::from_min_mean_max(
+                1_180_000,
+                1_200_000 + u32::from(seq),
+                1_215_000,
+            ),
             input_na: ChannelStats::from_min_mean_max(950_000, 1_000_000, 1_040_000),
             output_uv: ChannelStats::from_min_mean_max(3_290_000, 3_300_000, 3_301_000),
             output_na: ChannelStats::from_min_mean_max(8_000, 250_000, 4_000_000),
@@ -19,13 +23,20 @@ fn stream() -> Vec<u8> {
             delivered_nj: 825_000,
             stored_nj: 0,
             state: CutoffState::Harvesting,
-            state_ms: StateDurations { harvesting_ms: 1_000, ..Default::default() },
+            state_ms: StateDurations {
+                harvesting_ms: 1_000,
+                ..Default::default()
+            },
             input_cutoff_in_ms: None,
             storage_runout_in_ms: Some(5_400_000),
             load_shed: false,
             flags: ReportFlags::default(),
         };
-        let m = Uplink { seq, uptime_ms: u64::from(seq) * 1_000, body: UplinkBody::Report(r) };
+        let m = Uplink {
+            seq,
+            uptime_ms: u64::from(seq) * 1_000,
+            body: UplinkBody::Report(r),
+        };
         out.extend_from_slice(encode_frame(&m, &mut buf).unwrap());
     }
     out

@@ -8,16 +8,41 @@ fn main() {
     let mut buf = [0u8; MAX_UPLINK_FRAME_LEN];
     let mut samples = heapless::Vec::new();
     for i in 0..SAMPLES_PER_BLOCK as u32 {
-        let _ = samples.push(Sample { input_uv: 1_200_000 + i * 800, input_na: 1_000_000, output_uv: 3_300_000, output_na: 250_000 });
+        let _ = samples.push(Sample {
+            input_uv: 1_200_000 + i * 800,
+            input_na: 1_000_000,
+            output_uv: 3_300_000,
+            output_na: 250_000,
+        });
     }
-    let block = Uplink { seq: 7, uptime_ms: 5_000, body: UplinkBody::Samples(SampleBlock { first_index: 1_000, remaining: 992, period_us: 1_000, samples: samples.clone() }) };
+    let block = Uplink {
+        seq: 7,
+        uptime_ms: 5_000,
+        body: UplinkBody::Samples(SampleBlock {
+            first_index: 1_000,
+            remaining: 992,
+            period_us: 1_000,
+            samples: samples.clone(),
+        }),
+    };
     let block_len = encode_frame(&block, &mut buf).unwrap().len();
     let per_sample = block_len as f64 / SAMPLES_PER_BLOCK as f64;
     // The same numbers as text: index, time and four channels per line.
     let text_sample: f64 = samples
         .iter()
         .enumerate()
-        .map(|(i, s)| format!("{},{},{},{},{},{}\n", 1_000 + i, 5_000_000 + i * 1_000, s.input_uv, s.input_na, s.output_uv, s.output_na).len() as f64)
+        .map(|(i, s)| {
+            format!(
+                "{},{},{},{},{},{}\n",
+                1_000 + i,
+                5_000_000 + i * 1_000,
+                s.input_uv,
+                s.input_na,
+                s.output_uv,
+                s.output_na
+            )
+            .len() as f64
+        })
         .sum::<f64>()
         / SAMPLES_PER_BLOCK as f64;
     let report = Uplink {
@@ -34,7 +59,10 @@ fn main() {
             delivered_nj: 825_000,
             stored_nj: 0,
             state: CutoffState::Harvesting,
-            state_ms: StateDurations { harvesting_ms: 1_000, ..Default::default() },
+            state_ms: StateDurations {
+                harvesting_ms: 1_000,
+                ..Default::default()
+            },
             input_cutoff_in_ms: None,
             storage_runout_in_ms: Some(5_400_000),
             load_shed: false,

@@ -1,5 +1,4 @@
-"""The report's totals with DuckDB over the CSV export (there is no Parquet
-export yet; DuckDB reads the CSV directly).
+"""The report's totals with DuckDB over the Parquet export.
 
 totals_duckdb.py PREFIX
 """
@@ -14,10 +13,10 @@ row = con.execute(
     f"""select sum(drawn_nj) / 1e9, sum(delivered_nj) / 1e9, sum(stored_nj) / 1e9,
                sum(idle_ms) / 1e3, sum(cold_start_ms) / 1e3, sum(harvesting_ms) / 1e3,
                sum(sagging_ms) / 1e3, sum(cut_off_ms) / 1e3, sum(stalled_ms) / 1e3
-        from read_csv_auto('{prefix}-reports.csv')"""
+        from read_parquet('{prefix}-reports.parquet')"""
 ).fetchone()
-outages = con.execute(f"select count(*) from read_csv_auto('{prefix}-events.csv') where \"to\" in ('cut-off', 'stalled')").fetchone()[0]
-first = con.execute(f"select state from read_csv_auto('{prefix}-reports.csv') limit 1").fetchone()[0]
+outages = con.execute(f"select count(*) from read_parquet('{prefix}-events.parquet') where \"to\" in ('cut-off', 'stalled')").fetchone()[0]
+first = con.execute(f"select state from read_parquet('{prefix}-reports.parquet') limit 1").fetchone()[0]
 outages += int(first in ("cut-off", "stalled"))
 drawn, delivered, stored = row[0], row[1], row[2]
 print(json.dumps({"drawn_j": drawn, "delivered_j": delivered, "efficiency": (delivered + stored) / drawn if drawn else None,

@@ -373,3 +373,53 @@ fn thermal_voltage_matches_scipy_constants() {
     assert!((thermal_voltage(300.0) - reference["300"].as_f64().unwrap()).abs() < 1e-15);
     assert!((thermal_voltage(298.15) - reference["298.15"].as_f64().unwrap()).abs() < 1e-15);
 }
+
+#[test]
+fn the_parquet_export_gives_the_report_totals_in_pyarrow_and_duckdb() {
+    let dir = tempfile::tempdir().unwrap();
+    let log = dir.path().join("run.glog");
+    let mut writer =
+        gleaner::log::LogWriter::create(&log, &gleaner::recorder::header_for("test")).unwrap();
+    let mut node = VirtualNode::new(scenario("boiler-pipe", Some(2.0)), 4).unwrap();
+    let mut bytes = Vec::new();
+    while !node.finished() {
+        node.step();
+        node.drain_frames(&mut bytes);
+        for f in bytes.split(|&b| b == 0).filter(|f| !f.is_empty()) {
+            writer.append_frame(node.now_us(), f).unwrap();
+        }
+        bytes.clear();
+    }
+    writer.sync().unwrap();
+    let report = gleaner::analysis::analyze_file(&log).unwrap();
+    let prefix = dir.path().join("out");
+    gleaner::export::export_parquet(&log, &prefix).unwrap();
+    let totals = python("parquet.py", &[prefix.to_str().unwrap()]);
+    let cut_s = report
+        .states
+        .iter()
+        .find(|s| s.state == "cut-off")
+        .unwrap()
+        .seconds;
+    for reader in ["pyarrow", "duckdb"] {
+        let t = &totals[reader];
+        assert_eq!(
+            t["drawn_nj"].as_u64().unwrap() as f64 / 1e9,
+            report.energy.drawn_j,
+            "{reader}"
+        );
+        assert_eq!(
+            t["delivered_nj"].as_u64().unwrap() as f64 / 1e9,
+            report.energy.delivered_j,
+            "{reader}"
+        );
+        assert!(
+            (t["cut_off_ms"].as_u64().unwrap() as f64 / 1e3 - cut_s).abs() < 1e-6,
+            "{reader}"
+        );
+    }
+    assert_eq!(
+        totals["events"].as_u64().unwrap() as usize,
+        report.transitions.len()
+    );
+}

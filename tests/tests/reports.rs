@@ -183,3 +183,52 @@ fn report_of_a_fault_names_the_converter() {
     assert!(text.contains("converter fault"), "{text}");
     assert!(text.contains("OUTAGES (1)"));
 }
+
+#[test]
+fn parquet_export_reads_back_with_the_report_totals() {
+    use arrow_array::{Array, StringArray, UInt32Array, UInt64Array};
+    let dir = tempfile::tempdir().unwrap();
+    let (log, report, _) = simulated(scenario("boiler-pipe", Some(3.0)), dir.path());
+    let done = gleaner::export::export_parquet(&log, &dir.path().join("out")).unwrap();
+    let file = std::fs::File::open(&done.reports_path).unwrap();
+    let reader = parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder::try_new(file)
+        .unwrap()
+        .build()
+        .unwrap();
+    let (mut drawn, mut rows, mut cut_ms) = (0u64, 0usize, 0u64);
+    for batch in reader {
+        let batch = batch.unwrap();
+        let col = batch
+            .column_by_name("drawn_nj")
+            .unwrap()
+            .as_any()
+            .downcast_ref::<UInt64Array>()
+            .unwrap();
+        drawn += col.values().iter().sum::<u64>();
+        let cut = batch
+            .column_by_name("cut_off_ms")
+            .unwrap()
+            .as_any()
+            .downcast_ref::<UInt32Array>()
+            .unwrap();
+        cut_ms += cut.values().iter().map(|&v| u64::from(v)).sum::<u64>();
+        let state = batch
+            .column_by_name("state")
+            .unwrap()
+            .as_any()
+            .downcast_ref::<StringArray>()
+            .unwrap();
+        assert!(state.len() == batch.num_rows() && !state.value(0).is_empty());
+        rows += batch.num_rows();
+    }
+    assert_eq!(rows as u64, done.reports);
+    assert_eq!(drawn as f64 / 1e9, report.energy.drawn_j);
+    let cut_s = report
+        .states
+        .iter()
+        .find(|s| s.state == "cut-off")
+        .unwrap()
+        .seconds;
+    assert!((cut_ms as f64 / 1e3 - cut_s).abs() < 1e-6);
+    assert_eq!(done.events as usize, report.transitions.len());
+}

@@ -674,12 +674,29 @@ impl Analyzer {
 /// Analyses a log file, streaming.
 pub fn analyze_file(path: &std::path::Path) -> anyhow::Result<RunReport> {
     use anyhow::Context;
+    use std::io::IsTerminal;
     let file =
         std::fs::File::open(path).with_context(|| format!("cannot open log {}", path.display()))?;
+    let size = file.metadata().map(|m| m.len()).unwrap_or(0);
+    // A progress line on long work, only when someone watches stderr.
+    let show_progress = size > 16 * 1024 * 1024 && std::io::stderr().is_terminal();
     let mut reader = crate::log::LogReader::new(file);
     let mut analyzer = Analyzer::new();
-    for record in reader.by_ref() {
+    let mut last_shown = std::time::Instant::now();
+    while let Some(record) = reader.next() {
         analyzer.add_record_owned(record);
+        if show_progress && last_shown.elapsed() >= std::time::Duration::from_millis(250) {
+            last_shown = std::time::Instant::now();
+            let percent = reader.offset() as f64 * 100.0 / size as f64;
+            eprint!("\rreading {}: {percent:.0} %", path.display());
+        }
+    }
+    if show_progress {
+        eprint!(
+            "\r{:width$}\r",
+            "",
+            width = path.display().to_string().len() + 20
+        );
     }
     if let Some(err) = reader.take_io_error() {
         analyzer.warn(format!("reading stopped early: {err}"));

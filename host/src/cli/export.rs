@@ -7,8 +7,8 @@ use clap::Args;
 
 use crate::export::export_csv;
 
-/// Export a recorded run as CSV: one row per report (units in the column
-/// names) and the state transitions in a second file.
+/// Export a recorded run as CSV (default) or Parquet: one row per report
+/// (units in the column names) and the state transitions in a second file.
 #[derive(Debug, Args)]
 pub struct Cmd {
     /// The log.
@@ -16,6 +16,10 @@ pub struct Cmd {
     /// Prefix of the files written (default: the log's path without extension).
     #[arg(long)]
     pub out: Option<PathBuf>,
+    /// Write Parquet instead of CSV (schema in docs/parquet-schema.md), for
+    /// DuckDB, Spark or pandas when one laptop is not enough.
+    #[arg(long)]
+    pub parquet: bool,
 }
 
 impl Cmd {
@@ -25,6 +29,16 @@ impl Cmd {
             .out
             .clone()
             .unwrap_or_else(|| self.log.with_extension(""));
+        if self.parquet {
+            let done = crate::export::export_parquet(&self.log, &prefix)?;
+            println!(
+                "{} reports to {}",
+                done.reports,
+                done.reports_path.display()
+            );
+            println!("{} events to {}", done.events, done.events_path.display());
+            return Ok(());
+        }
         let done = export_csv(&self.log, &prefix)?;
         println!(
             "{} reports to {}",

@@ -162,7 +162,11 @@ impl Cmd {
                     println!("{v:.6},{a:.6e},{:.6e}", v * a);
                 }
             }
-            Action::Synthetic { days, interval_s, out } => {
+            Action::Synthetic {
+                days,
+                interval_s,
+                out,
+            } => {
                 if !(days > 0.0 && days <= 3660.0) {
                     bail!("--days must be above 0 and at most 3660, got {days}");
                 }
@@ -172,7 +176,8 @@ impl Cmd {
                     .open(&out)
                     .map_err(|e| anyhow::anyhow!("cannot create {}: {e}", out.display()))?;
                 let mut writer = std::io::BufWriter::new(file);
-                let mut log = crate::sim::synthetic::SyntheticLog::new((days * 86_400.0) as u64, interval_s);
+                let mut log =
+                    crate::sim::synthetic::SyntheticLog::new((days * 86_400.0) as u64, interval_s);
                 let bytes = std::io::copy(&mut log, &mut writer)?;
                 std::io::Write::flush(&mut writer)?;
                 println!("{bytes} bytes to {}", out.display());

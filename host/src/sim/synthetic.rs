@@ -89,7 +89,7 @@ fn messages_at(t: u64, interval_s: u64, seq: &mut u16) -> Vec<Uplink> {
         output_uv: ChannelStats::from_min_mean_max(3_250_000, 3_300_000, 3_300_000),
         output_na: ChannelStats::from_min_mean_max(8_000, 60_000, 4_000_000),
         drawn_nj,
-        delivered_nj: if day { 198_000 * interval_s } else { 0 },
+        delivered_nj: drawn_nj * 7 / 10,
         stored_nj: 0,
         state,
         state_ms,
