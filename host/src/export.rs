@@ -36,6 +36,13 @@ pub struct Exported {
     pub events: u64,
 }
 
+/// `prefix` with `suffix` appended to its last component.
+fn suffixed(prefix: &Path, suffix: &str) -> PathBuf {
+    let mut name = prefix.as_os_str().to_owned();
+    name.push(suffix);
+    PathBuf::from(name)
+}
+
 fn opt(v: Option<u32>) -> String {
     v.map_or(String::new(), |x| x.to_string())
 }
@@ -44,13 +51,8 @@ fn opt(v: Option<u32>) -> String {
 pub fn export_csv(log: &Path, prefix: &Path) -> Result<Exported> {
     let file =
         std::fs::File::open(log).with_context(|| format!("cannot open log {}", log.display()))?;
-    let with_suffix = |suffix: &str| {
-        let mut name = prefix.as_os_str().to_owned();
-        name.push(suffix);
-        PathBuf::from(name)
-    };
-    let reports_path = with_suffix("-reports.csv");
-    let events_path = with_suffix("-events.csv");
+    let reports_path = suffixed(prefix, "-reports.csv");
+    let events_path = suffixed(prefix, "-events.csv");
     let create = |p: &Path| -> Result<std::io::BufWriter<std::fs::File>> {
         Ok(std::io::BufWriter::new(
             std::fs::File::create(p).with_context(|| format!("cannot create {}", p.display()))?,
@@ -315,13 +317,8 @@ pub fn export_parquet(log: &Path, prefix: &Path) -> Result<ExportedParquet> {
     use std::sync::Arc;
     let file =
         std::fs::File::open(log).with_context(|| format!("cannot open log {}", log.display()))?;
-    let with_suffix = |suffix: &str| {
-        let mut name = prefix.as_os_str().to_owned();
-        name.push(suffix);
-        PathBuf::from(name)
-    };
-    let reports_path = with_suffix("-reports.parquet");
-    let events_path = with_suffix("-events.parquet");
+    let reports_path = suffixed(prefix, "-reports.parquet");
+    let events_path = suffixed(prefix, "-events.parquet");
     let create = |p: &Path| {
         std::fs::File::create(p).with_context(|| format!("cannot create {}", p.display()))
     };
