@@ -238,7 +238,7 @@ mod tests {
     fn the_newest_save_wins_and_slots_alternate() {
         let mut flash = Flash::new();
         for ms in [1_000, 2_000, 3_000, 4_000, 5_000] {
-            save(&mut flash, &config_with_interval(ms)).unwrap();
+            assert_eq!(save(&mut flash, &config_with_interval(ms)), Ok(()));
             let loaded = load(&mut flash);
             assert_eq!(loaded.config.report_interval_ms, ms);
             assert_eq!(loaded.source, ConfigSource::Stored);
@@ -252,8 +252,8 @@ mod tests {
         let new = config_with_interval(7_000);
         for cut in 0..=SLOT_LEN {
             let mut flash = Flash::new();
-            save(&mut flash, &config_with_interval(1_000)).unwrap();
-            save(&mut flash, &old).unwrap();
+            assert_eq!(save(&mut flash, &config_with_interval(1_000)), Ok(()));
+            assert_eq!(save(&mut flash, &old), Ok(()));
             flash.cut_power_after(cut);
             let result = save(&mut flash, &new);
             flash.restore_power();
