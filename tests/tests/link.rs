@@ -195,11 +195,12 @@ fn a_reboot_is_detected_and_logged() {
 }
 
 #[test]
-fn unplug_and_replug_reconnects_and_marks_the_gap() {
+fn ten_unplug_replug_cycles_reconnect_each_time_and_mark_every_gap() {
+    const CYCLES: u16 = 10;
     let dir = tempfile::tempdir().unwrap();
     let link = dir.path().join("node");
     let log = dir.path().join("unplug.glog");
-    let (mut master, slave, first_path) = scripted();
+    let (mut master, mut slave, first_path) = scripted();
     std::os::unix::fs::symlink(&first_path, &link).unwrap();
     let stop = Arc::new(AtomicBool::new(false));
     let link_name = link.to_string_lossy().into_owned();
@@ -214,71 +215,68 @@ fn unplug_and_replug_reconnects_and_marks_the_gap() {
         })
     };
     std::thread::sleep(Duration::from_millis(300));
-    let first: Vec<u8> = (0..5u16)
-        .flat_map(|i| {
-            frame(&report(
-                i,
-                u64::from(i) * 1_000,
-                1_000_000,
-                CutoffState::Harvesting,
-            ))
-        })
-        .collect();
-    master.write_all(&first).unwrap();
+    // Each cycle: five frames arrive, the device disappears, three frames are
+    // sent while it is gone (lost), and it comes back under the same name.
+    let mut expected = Vec::new();
+    for cycle in 0..CYCLES {
+        let base = cycle * 8;
+        let batch: Vec<u8> = (base..base + 5)
+            .flat_map(|i| {
+                frame(&report(
+                    i,
+                    u64::from(i) * 1_000,
+                    1_000_000,
+                    CutoffState::Harvesting,
+                ))
+            })
+            .collect();
+        master.write_all(&batch).unwrap();
+        expected.extend(base..base + 5);
+        std::thread::sleep(Duration::from_millis(250));
+        drop(master);
+        drop(slave);
+        std::fs::remove_file(&link).unwrap();
+        std::thread::sleep(Duration::from_millis(350));
+        let (m, s, path) = scripted();
+        std::os::unix::fs::symlink(&path, &link).unwrap();
+        (master, slave) = (m, s);
+        std::thread::sleep(Duration::from_millis(500));
+    }
+    let last = CYCLES * 8;
+    master
+        .write_all(&frame(&report(
+            last,
+            u64::from(last) * 1_000,
+            1_000_000,
+            CutoffState::Harvesting,
+        )))
+        .unwrap();
+    expected.push(last);
     std::thread::sleep(Duration::from_millis(300));
-    // Unplug: the device disappears.
-    drop(master);
-    drop(slave);
-    std::fs::remove_file(&link).unwrap();
-    std::thread::sleep(Duration::from_millis(600));
-    // Replug: a new device node appears under the same name.
-    let (mut master, _slave, second_path) = scripted();
-    std::os::unix::fs::symlink(&second_path, &link).unwrap();
-    std::thread::sleep(Duration::from_millis(800));
-    let second: Vec<u8> = (8..12u16)
-        .flat_map(|i| {
-            frame(&report(
-                i,
-                u64::from(i) * 1_000,
-                1_000_000,
-                CutoffState::Harvesting,
-            ))
-        })
-        .collect();
-    master.write_all(&second).unwrap();
-    std::thread::sleep(Duration::from_millis(400));
     stop.store(true, Ordering::Relaxed);
     let observer = recorder_thread.join().unwrap();
     let seqs: Vec<u16> = observer.messages.iter().map(|t| t.message.seq).collect();
-    assert_eq!(
-        seqs,
-        vec![0, 1, 2, 3, 4, 8, 9, 10, 11],
-        "nothing outside the gap is lost"
-    );
-    assert_eq!(
-        observer.changes.iter().map(|c| c.0).collect::<Vec<_>>(),
-        vec![false, true]
-    );
+    assert_eq!(seqs, expected, "nothing outside the gaps is lost");
+    let changes: Vec<bool> = observer.changes.iter().map(|c| c.0).collect();
+    assert_eq!(changes, [false, true].repeat(usize::from(CYCLES)));
     let markers: Vec<MarkerKind> = LogReader::new(std::fs::File::open(&log).unwrap())
         .filter_map(|r| match r.body {
             RecordBody::Marker { kind, .. } => Some(kind),
             _ => None,
         })
         .collect();
-    assert_eq!(
-        markers,
-        vec![
-            MarkerKind::PortOpened,
-            MarkerKind::PortLost,
-            MarkerKind::PortOpened,
-            MarkerKind::Stopped
-        ]
-    );
+    let mut expected_markers = vec![MarkerKind::PortOpened];
+    for _ in 0..CYCLES {
+        expected_markers.extend([MarkerKind::PortLost, MarkerKind::PortOpened]);
+    }
+    expected_markers.push(MarkerKind::Stopped);
+    assert_eq!(markers, expected_markers);
     let report = analyze_file(&log).unwrap();
-    assert_eq!(report.recording_gaps, 1);
+    assert_eq!(report.recording_gaps, u32::from(CYCLES));
     assert_eq!(
-        report.link.lost_frames, 3,
-        "frames 5, 6 and 7 fell into the gap"
+        report.link.lost_frames,
+        3 * u64::from(CYCLES),
+        "the frames sent into each gap are counted lost"
     );
 }
 
