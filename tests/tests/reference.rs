@@ -378,19 +378,7 @@ fn thermal_voltage_matches_scipy_constants() {
 fn the_parquet_export_gives_the_report_totals_in_pyarrow_and_duckdb() {
     let dir = tempfile::tempdir().unwrap();
     let log = dir.path().join("run.glog");
-    let mut writer =
-        gleaner::log::LogWriter::create(&log, &gleaner::recorder::header_for("test")).unwrap();
-    let mut node = VirtualNode::new(scenario("boiler-pipe", Some(2.0)), 4).unwrap();
-    let mut bytes = Vec::new();
-    while !node.finished() {
-        node.step();
-        node.drain_frames(&mut bytes);
-        for f in bytes.split(|&b| b == 0).filter(|f| !f.is_empty()) {
-            writer.append_frame(node.now_us(), f).unwrap();
-        }
-        bytes.clear();
-    }
-    writer.sync().unwrap();
+    gleaner::sim::engine::simulate_to_log(scenario("boiler-pipe", Some(2.0)), 4, &log, 0).unwrap();
     let report = gleaner::analysis::analyze_file(&log).unwrap();
     let prefix = dir.path().join("out");
     gleaner::export::export_parquet(&log, &prefix).unwrap();

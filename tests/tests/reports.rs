@@ -5,7 +5,8 @@ use std::collections::BTreeSet;
 
 use gleaner::analysis::{analyze_file, html, sizing, RunReport};
 use gleaner::export::export_csv;
-use gleaner::sim::{Scenario, VirtualNode};
+use gleaner::sim::engine::simulate_to_log;
+use gleaner::sim::Scenario;
 use gleaner_tests::scenario;
 
 /// Simulates `s` straight into a log (no pseudo-terminal) and reports on it.
@@ -14,23 +15,9 @@ fn simulated(
     dir: &std::path::Path,
 ) -> (std::path::PathBuf, RunReport, gleaner::sim::GroundTruth) {
     let log = dir.join("sim.glog");
-    let header = gleaner::recorder::header_for("test");
-    let mut writer = gleaner::log::LogWriter::create(&log, &header).unwrap();
-    let mut node = VirtualNode::new(s, 11).unwrap();
-    let mut bytes = Vec::new();
-    while !node.finished() {
-        node.step();
-        node.drain_frames(&mut bytes);
-        for f in bytes.split(|&b| b == 0).filter(|f| !f.is_empty()) {
-            writer
-                .append_frame(1_700_000_000_000_000 + node.now_us(), f)
-                .unwrap();
-        }
-        bytes.clear();
-    }
-    writer.sync().unwrap();
+    let truth = simulate_to_log(s, 11, &log, 1_700_000_000_000_000).unwrap();
     let report = analyze_file(&log).unwrap();
-    (log, report, node.truth().clone())
+    (log, report, truth)
 }
 
 /// Every key path of a JSON value with its type; arrays contribute their

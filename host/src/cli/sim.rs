@@ -5,12 +5,11 @@ use std::path::PathBuf;
 use anyhow::{bail, Result};
 use clap::{Args, Subcommand};
 
-use crate::log::{LogWriter, MarkerKind};
-use crate::recorder::header_for;
+use crate::sim::engine::simulate_to_log;
 use crate::sim::numeric::golden_max;
 use crate::sim::scenario::BUILTIN;
 use crate::sim::source::{Source, SourceParams};
-use crate::sim::{Scenario, VirtualNode};
+use crate::sim::Scenario;
 
 /// Virtual-node tools.
 #[derive(Debug, Args)]
@@ -184,31 +183,8 @@ impl Cmd {
             }
             Action::Run { scenario, out } => {
                 let scenario = Scenario::load(&scenario)?;
-                let name = scenario.name.clone();
-                let mut writer = LogWriter::create(
-                    &out,
-                    &header_for(&format!("virtual node '{name}' (simulated host times)")),
-                )?;
-                let start_us = crate::log::now_us();
-                writer.append_marker(start_us, MarkerKind::PortOpened, "simulated")?;
-                let mut node = VirtualNode::new(scenario, 1)?;
-                let mut bytes = Vec::new();
-                while !node.finished() {
-                    node.step();
-                    node.drain_frames(&mut bytes);
-                    let t = start_us + node.now_us();
-                    for frame in bytes.split(|&b| b == 0).filter(|f| !f.is_empty()) {
-                        writer.append_frame(t, frame)?;
-                    }
-                    bytes.clear();
-                }
-                writer.append_marker(
-                    start_us + node.now_us(),
-                    MarkerKind::Stopped,
-                    "end of scenario",
-                )?;
-                writer.sync()?;
-                println!("{} records to {}", writer.records_written(), out.display());
+                simulate_to_log(scenario, 1, &out, crate::log::now_us())?;
+                println!("simulated to {}", out.display());
             }
         }
         Ok(())
