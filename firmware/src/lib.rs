@@ -10,6 +10,7 @@
 //! * [`interval`]: per-report aggregation (min / mean / max, time in each state);
 //! * [`config`]: defaults and validation of the configuration the host may send;
 //! * [`config_store`]: two alternating records that survive a power cut mid-write;
+//! * [`flash_slots`]: those two records on two erase pages of a NOR flash;
 //! * [`load_shed`]: the output pin that drops non-essential load;
 //! * [`sampler`]: the small trait a board implements for its ADC.
 //!
@@ -64,6 +65,7 @@ pub mod calibration;
 pub mod config;
 pub mod config_store;
 pub mod cutoff;
+pub mod flash_slots;
 pub mod forecast;
 pub mod interval;
 pub mod load_shed;
