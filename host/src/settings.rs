@@ -2,7 +2,8 @@
 //! the wire's [`NodeConfig`] on top of a base configuration.
 
 use anyhow::{bail, Context, Result};
-use gleaner_protocol::NodeConfig;
+use gleaner_firmware::config::MAX_SCALE_Q20;
+use gleaner_protocol::{ChannelCal, NodeConfig};
 use serde::{Deserialize, Serialize};
 
 use crate::sim::adc::FrontEndParams;
@@ -37,6 +38,105 @@ pub struct NodeSettings {
     pub load_restore_s: Option<f64>,
     /// The front-end, from which the calibration is computed.
     pub front_end: Option<FrontEndParams>,
+    /// Two-point corrections of the node's present calibration, per channel.
+    pub two_point: Option<TwoPointTrims>,
+}
+
+/// Two-point corrections, one table per channel that needs one.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct TwoPointTrims {
+    /// Harvester voltage.
+    pub input_voltage: Option<TwoPoint>,
+    /// Harvester current.
+    pub input_current: Option<TwoPoint>,
+    /// Load voltage.
+    pub output_voltage: Option<TwoPoint>,
+    /// Load current.
+    pub output_current: Option<TwoPoint>,
+}
+
+/// What the node reported at two known inputs, and what a reference meter
+/// read there. Voltage channels take `_v` fields, current channels `_ma`.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct TwoPoint {
+    /// The node's readings, V.
+    pub reported_v: Option<[f64; 2]>,
+    /// The reference readings, V.
+    pub actual_v: Option<[f64; 2]>,
+    /// The node's readings, mA.
+    pub reported_ma: Option<[f64; 2]>,
+    /// The reference readings, mA.
+    pub actual_ma: Option<[f64; 2]>,
+}
+
+impl TwoPoint {
+    /// The pair in channel units (µV or nA) for a voltage or current channel.
+    fn points(&self, field: &str, voltage: bool) -> Result<([f64; 2], [f64; 2])> {
+        let (reported, actual, scale, unit, other) = if voltage {
+            (
+                self.reported_v,
+                self.actual_v,
+                1e6,
+                "_v",
+                self.reported_ma.or(self.actual_ma),
+            )
+        } else {
+            (
+                self.reported_ma,
+                self.actual_ma,
+                1e6,
+                "_ma",
+                self.reported_v.or(self.actual_v),
+            )
+        };
+        if other.is_some() {
+            bail!("{field}: this channel takes reported{unit} and actual{unit}");
+        }
+        let (Some(reported), Some(actual)) = (reported, actual) else {
+            bail!("{field}: give both reported{unit} and actual{unit}");
+        };
+        let all = reported.iter().chain(&actual);
+        if all.clone().any(|v| !v.is_finite() || *v < 0.0) {
+            bail!("{field}: values must be finite and not negative");
+        }
+        Ok((reported.map(|v| v * scale), actual.map(|v| v * scale)))
+    }
+}
+
+/// The calibration that turns what `present` reported into what was actually
+/// there: readings are mapped back to ADC counts, and the line through the
+/// two (counts, actual) points gives the new scale and offset.
+fn trimmed(
+    field: &str,
+    present: &ChannelCal,
+    trim: &TwoPoint,
+    voltage: bool,
+) -> Result<ChannelCal> {
+    let ([r1, r2], [a1, a2]) = trim.points(field, voltage)?;
+    let q20 = present.units_per_count_q20 as f64;
+    let counts = |r: f64| (r - f64::from(present.offset)) * f64::from(1u32 << 20) / q20;
+    let (c1, c2) = (counts(r1), counts(r2));
+    if (c2 - c1).abs() < 1.0 {
+        bail!("{field}: the two reported readings are less than one ADC count apart; use points far apart (near 20 % and 80 % of the range)");
+    }
+    let slope = (a2 - a1) / (c2 - c1);
+    if slope <= 0.0 {
+        bail!("{field}: the actual values do not rise with the reported ones");
+    }
+    let units_per_count_q20 = (slope * f64::from(1u32 << 20)).round();
+    let offset = (a1 - slope * c1).round();
+    if !(1.0..=MAX_SCALE_Q20 as f64).contains(&units_per_count_q20) {
+        bail!("{field}: the corrected scale is out of range");
+    }
+    if !(f64::from(i32::MIN)..=f64::from(i32::MAX)).contains(&offset) {
+        bail!("{field}: the corrected offset is out of range");
+    }
+    Ok(ChannelCal {
+        units_per_count_q20: units_per_count_q20 as u64,
+        offset: offset as i32,
+    })
 }
 
 fn volts_to_uv(field: &str, v: f64) -> Result<u32> {
@@ -104,9 +204,46 @@ impl NodeSettings {
             c.load_restore_ms = seconds_to_ms("load_restore_s", v)?;
         }
         if let Some(fe) = &self.front_end {
+            if self.two_point.is_some() {
+                bail!("front_end and two_point cannot be combined: send the front-end first, measure, then send the two-point corrections");
+            }
             c.calibration = fe
                 .calibration()
                 .context("front_end: a divider, shunt or gain is zero or the scale overflows")?;
+        }
+        if let Some(trims) = &self.two_point {
+            let cal = &mut c.calibration;
+            let channels = [
+                (
+                    "two_point.input_voltage",
+                    &trims.input_voltage,
+                    &mut cal.input_voltage,
+                    true,
+                ),
+                (
+                    "two_point.input_current",
+                    &trims.input_current,
+                    &mut cal.input_current,
+                    false,
+                ),
+                (
+                    "two_point.output_voltage",
+                    &trims.output_voltage,
+                    &mut cal.output_voltage,
+                    true,
+                ),
+                (
+                    "two_point.output_current",
+                    &trims.output_current,
+                    &mut cal.output_current,
+                    false,
+                ),
+            ];
+            for (field, trim, channel, voltage) in channels {
+                if let Some(trim) = trim {
+                    *channel = trimmed(field, channel, trim, voltage)?;
+                }
+            }
         }
         Ok(c)
     }
@@ -141,5 +278,68 @@ mod tests {
         .apply(&default_config())
         .unwrap_err();
         assert!(err.to_string().contains("start_v"));
+    }
+
+    #[test]
+    fn two_point_trim_removes_gain_and_offset_error() {
+        use gleaner_firmware::calibration::apply;
+        // A 14-bit channel with a 1.2 V span (73.2421875 µV per count) whose
+        // front-end reads 1.5 % high with a 2 mV offset: at 0.200 V and
+        // 0.900 V on a reference meter the node showed 0.205 V and 0.9155 V.
+        let mut base = default_config();
+        base.calibration.input_voltage = ChannelCal {
+            units_per_count_q20: (73.242_187_5 * 1_048_576.0) as u64,
+            offset: 0,
+        };
+        let s = NodeSettings::from_toml(
+            "[two_point.input_voltage]\nreported_v = [0.205, 0.9155]\nactual_v = [0.200, 0.900]",
+        )
+        .unwrap();
+        let trimmed = s.apply(&base).unwrap().calibration.input_voltage;
+        // Other channels are untouched.
+        assert_eq!(
+            s.apply(&base).unwrap().calibration.input_current,
+            base.calibration.input_current
+        );
+        for actual_mv in [50u32, 200, 450, 700, 900, 1100] {
+            let shown_uv = f64::from(actual_mv) * 1e3 * 1.015 + 2_000.0;
+            let counts = (shown_uv / 73.242_187_5).round() as u32;
+            let (corrected, _) = apply(&trimmed, counts);
+            // Within one count (73 µV) of the truth, where the untrimmed
+            // channel was off by 2.8 mV to 18.5 mV.
+            assert!(
+                corrected.abs_diff(actual_mv * 1_000) <= 74,
+                "{actual_mv} mV -> {corrected} µV"
+            );
+        }
+    }
+
+    #[test]
+    fn two_point_mistakes_are_named() {
+        let base = default_config();
+        let err = |text: &str| {
+            NodeSettings::from_toml(text)
+                .and_then(|s| s.apply(&base))
+                .unwrap_err()
+                .to_string()
+        };
+        let e = err("[two_point.input_current]\nreported_v = [0.1, 0.5]\nactual_v = [0.1, 0.5]");
+        assert!(e.contains("reported_ma"), "{e}");
+        let e = err("[two_point.output_voltage]\nreported_v = [2.0, 2.0]\nactual_v = [2.0, 3.0]");
+        assert!(e.contains("less than one ADC count"), "{e}");
+        let e = err("[two_point.output_voltage]\nreported_v = [2.0, 3.0]\nactual_v = [3.0, 2.0]");
+        assert!(e.contains("do not rise"), "{e}");
+        let e = err("[two_point.input_voltage]\nreported_v = [0.2, 0.9]");
+        assert!(e.contains("both"), "{e}");
+        let mut s = NodeSettings::from_toml(
+            "[two_point.input_voltage]\nreported_v = [0.2, 0.9]\nactual_v = [0.2, 0.9]",
+        )
+        .unwrap();
+        s.front_end = Some(FrontEndParams::default_board());
+        assert!(s
+            .apply(&base)
+            .unwrap_err()
+            .to_string()
+            .contains("cannot be combined"));
     }
 }
