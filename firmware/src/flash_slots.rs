@@ -45,7 +45,7 @@ impl<F: NorFlash> FlashSlots<F> {
         let page = u32::try_from(F::ERASE_SIZE).ok().filter(|&p| p > 0)?;
         let end = page.checked_mul(2)?.checked_add(first_page)?;
         let fits = usize::try_from(end).ok()? <= flash.capacity();
-        let usable = first_page % page == 0
+        let usable = first_page.is_multiple_of(page)
             && fits
             && F::ERASE_SIZE >= SLOT_LEN
             && F::READ_SIZE == 1
@@ -104,7 +104,7 @@ impl<F: NorFlash> Storage for FlashSlots<F> {
     fn write(&mut self, offset: u32, bytes: &[u8]) -> Result<(), Self::Error> {
         let offset = usize::try_from(offset).map_err(|_| FlashSlotsError::NotASlot)?;
         let (address, room) = self.locate(offset).ok_or(FlashSlotsError::NotASlot)?;
-        if offset % SLOT_LEN != 0 || bytes.len() > room {
+        if !offset.is_multiple_of(SLOT_LEN) || bytes.len() > room {
             return Err(FlashSlotsError::NotASlot);
         }
         let page_end = u32::try_from(F::ERASE_SIZE)
@@ -215,7 +215,7 @@ mod tests {
         const ERASE_SIZE: usize = PAGE;
         fn erase(&mut self, from: u32, to: u32) -> Result<(), Self::Error> {
             let (from, to) = (from as usize, to as usize);
-            if from % PAGE != 0 || to % PAGE != 0 || to > self.bytes.len() {
+            if !from.is_multiple_of(PAGE) || !to.is_multiple_of(PAGE) || to > self.bytes.len() {
                 return Err(NorFlashErrorKind::NotAligned);
             }
             self.erases += 1;
@@ -232,7 +232,7 @@ mod tests {
         }
         fn write(&mut self, offset: u32, bytes: &[u8]) -> Result<(), Self::Error> {
             let start = offset as usize;
-            if start % 4 != 0 || bytes.len() % 4 != 0 {
+            if !start.is_multiple_of(4) || !bytes.len().is_multiple_of(4) {
                 return Err(NorFlashErrorKind::NotAligned);
             }
             for (i, word) in bytes.chunks(4).enumerate() {
@@ -257,8 +257,14 @@ mod tests {
     #[test]
     fn refuses_flash_it_cannot_use() {
         assert!(FlashSlots::new(Nor::new(2), 0).is_some());
-        assert!(FlashSlots::new(Nor::new(2), 4).is_none(), "not page aligned");
-        assert!(FlashSlots::new(Nor::new(2), PAGE as u32).is_none(), "one page short");
+        assert!(
+            FlashSlots::new(Nor::new(2), 4).is_none(),
+            "not page aligned"
+        );
+        assert!(
+            FlashSlots::new(Nor::new(2), PAGE as u32).is_none(),
+            "one page short"
+        );
         assert!(FlashSlots::new(Nor::new(1), 0).is_none());
     }
 
@@ -303,7 +309,10 @@ mod tests {
         }
         // Every step of the save (the erase and each word) was cut once; the
         // last cuts came after the save had finished.
-        assert!(interrupted >= 2 && interrupted < steps, "{interrupted} of {steps}");
+        assert!(
+            interrupted >= 2 && interrupted < steps,
+            "{interrupted} of {steps}"
+        );
     }
 
     #[test]
