@@ -9,6 +9,7 @@
 #![no_std]
 #![no_main]
 
+mod stack;
 mod stand_in;
 mod uart;
 
@@ -51,6 +52,26 @@ fn exit(success: bool) -> ! {
     }
 }
 
+/// Prints `gleaner node: stack used N bytes` on the host's standard output.
+fn report_stack(used: usize) {
+    let mut digits = [0u8; 10];
+    let mut n = used;
+    let mut start = digits.len();
+    loop {
+        start -= 1;
+        digits[start] = b'0' + (n % 10) as u8;
+        n /= 10;
+        if n == 0 || start == 0 {
+            break;
+        }
+    }
+    if let Ok(mut out) = cortex_m_semihosting::hio::hstdout() {
+        let _ = out.write_all(b"gleaner node: stack used ");
+        let _ = out.write_all(&digits[start..]);
+        let _ = out.write_all(b" bytes\n");
+    }
+}
+
 #[panic_handler]
 fn panic(_: &core::panic::PanicInfo) -> ! {
     // No formatting machinery here: it would cost kilobytes of flash.
@@ -62,6 +83,7 @@ fn panic(_: &core::panic::PanicInfo) -> ! {
 
 #[entry]
 fn main() -> ! {
+    let stack = stack::StackWatch::paint();
     let Some(mut core) = cortex_m::Peripherals::take() else {
         exit(false)
     };
@@ -112,6 +134,7 @@ fn main() -> ! {
         let after_cutoff =
             cut_off_at_us.is_some_and(|at| t_us >= at + RUN_AFTER_CUTOFF_S * 1_000_000);
         if after_cutoff || t_us >= RUN_AT_MOST_S * 1_000_000 {
+            report_stack(stack.used());
             exit(true);
         }
     }
