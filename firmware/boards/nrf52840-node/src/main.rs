@@ -87,7 +87,7 @@ fn main() -> ! {
     let port1 = p1::Parts::new(p.P1);
     let txd = port0.p0_06.into_push_pull_output(Level::High).degrade();
     let rxd = port0.p0_08.into_floating_input().degrade();
-    let Some(mut link) = link::start(p.UARTE0, txd, rxd) else {
+    let Some(mut to_host) = link::start(p.UARTE0, txd, rxd) else {
         halt()
     };
     // High = load on; the node drops it when the storage is forecast to run out.
@@ -148,7 +148,7 @@ fn main() -> ! {
             }
         }
         // A failed transfer loses that frame; its sequence number tells the host.
-        let _ = node.write_pending(&mut link);
+        let _ = node.write_pending(&mut to_host);
         #[cfg(feature = "defmt")]
         {
             let state = node.state();
