@@ -269,11 +269,11 @@ mod tests {
     }
 
     #[test]
-    fn erased_flash_loads_defaults_and_saves_alternate_pages() {
-        let mut slots = FlashSlots::new(Nor::new(4), 2 * PAGE as u32).unwrap();
+    fn erased_flash_loads_defaults_and_saves_alternate_pages() -> Result<(), &'static str> {
+        let mut slots = FlashSlots::new(Nor::new(4), 2 * PAGE as u32).ok_or("usable")?;
         assert_eq!(load(&mut slots).source, ConfigSource::Defaults);
         for round in 1..=5u32 {
-            save(&mut slots, &changed(round)).unwrap();
+            assert_eq!(save(&mut slots, &changed(round)), Ok(()));
             let loaded = load(&mut slots);
             assert_eq!(loaded.source, ConfigSource::Stored);
             assert_eq!(loaded.config, changed(round));
@@ -286,20 +286,21 @@ mod tests {
         // Both slot pages start with the record magic.
         assert_eq!(&nor.bytes[2 * PAGE..2 * PAGE + 4], b"GLC1");
         assert_eq!(&nor.bytes[3 * PAGE..3 * PAGE + 4], b"GLC1");
+        Ok(())
     }
 
     #[test]
-    fn power_cut_at_every_step_keeps_the_previous_configuration() {
+    fn power_cut_at_every_step_keeps_the_previous_configuration() -> Result<(), &'static str> {
         // Erase + one write per 4-byte word of the record (+1 for a tail word).
         let steps = 1 + SLOT_LEN.div_ceil(4) + 1;
         let mut interrupted = 0;
         for cut in 0..steps {
-            let mut slots = FlashSlots::new(Nor::new(2), 0).unwrap();
-            save(&mut slots, &changed(1)).unwrap();
-            save(&mut slots, &changed(2)).unwrap();
+            let mut slots = FlashSlots::new(Nor::new(2), 0).ok_or("usable")?;
+            assert_eq!(save(&mut slots, &changed(1)), Ok(()));
+            assert_eq!(save(&mut slots, &changed(2)), Ok(()));
             let mut nor = slots.release();
             nor.cut_during(cut);
-            let mut slots = FlashSlots::new(nor, 0).unwrap();
+            let mut slots = FlashSlots::new(nor, 0).ok_or("usable")?;
             let finished = save(&mut slots, &changed(3)).is_ok();
             let loaded = load(&mut slots);
             assert_eq!(loaded.source, ConfigSource::Stored, "cut at step {cut}");
@@ -313,11 +314,12 @@ mod tests {
             interrupted >= 2 && interrupted < steps,
             "{interrupted} of {steps}"
         );
+        Ok(())
     }
 
     #[test]
-    fn reads_and_writes_outside_the_slots_are_refused() {
-        let mut slots = FlashSlots::new(Nor::new(2), 0).unwrap();
+    fn reads_and_writes_outside_the_slots_are_refused() -> Result<(), &'static str> {
+        let mut slots = FlashSlots::new(Nor::new(2), 0).ok_or("usable")?;
         let mut buf = [0u8; 8];
         assert_eq!(
             slots.read(STORE_LEN as u32, &mut buf),
@@ -329,10 +331,11 @@ mod tests {
             Err(FlashSlotsError::NotASlot)
         );
         // A read across the slot boundary joins the end of page 0 to the start of page 1.
-        slots.write(0, &[1; SLOT_LEN]).unwrap();
-        slots.write(SLOT_LEN as u32, &[2; 5]).unwrap();
+        assert_eq!(slots.write(0, &[1; SLOT_LEN]), Ok(()));
+        assert_eq!(slots.write(SLOT_LEN as u32, &[2; 5]), Ok(()));
         let mut across = [0u8; 4];
-        slots.read(SLOT_LEN as u32 - 2, &mut across).unwrap();
+        assert_eq!(slots.read(SLOT_LEN as u32 - 2, &mut across), Ok(()));
         assert_eq!(across, [1, 1, 2, 2]);
+        Ok(())
     }
 }

@@ -10,6 +10,9 @@ use core::sync::atomic::{compiler_fence, Ordering};
 
 use gleaner_firmware::sampler::{Error, ErrorKind, ErrorType, Sampler};
 use gleaner_firmware::RawSample;
+use nrf52840_hal::pac::saadc::ch::config::{GAIN_A, MODE_A, TACQ_A};
+use nrf52840_hal::pac::saadc::ch::pseln::PSELN_A;
+use nrf52840_hal::pac::saadc::ch::pselp::PSELP_A;
 use nrf52840_hal::pac::SAADC;
 
 use crate::front_end::raw_sample;
@@ -37,6 +40,49 @@ impl Error for AdcError {
     }
 }
 
+/// One channel of the scan: gain, acquisition time and inputs (a negative
+/// input of `NC` makes it single-ended).
+struct ChannelSetup {
+    gain: GAIN_A,
+    acquisition: TACQ_A,
+    positive: PSELP_A,
+    negative: PSELN_A,
+}
+
+/// The scan, in the order of [`RawSample`]'s fields; values as in
+/// [`crate::front_end`].
+const SCAN: [ChannelSetup; 4] = [
+    // Input voltage: AIN0, single-ended, gain 1/2.
+    ChannelSetup {
+        gain: GAIN_A::GAIN1_2,
+        acquisition: TACQ_A::_10US,
+        positive: PSELP_A::ANALOG_INPUT0,
+        negative: PSELN_A::NC,
+    },
+    // Input current: AIN1 - AIN2, gain 4.
+    ChannelSetup {
+        gain: GAIN_A::GAIN4,
+        acquisition: TACQ_A::_10US,
+        positive: PSELP_A::ANALOG_INPUT1,
+        negative: PSELN_A::ANALOG_INPUT2,
+    },
+    // Output voltage: AIN4, single-ended, gain 1/4, behind a divider of
+    // 500 kΩ Thevenin resistance: the longest acquisition time.
+    ChannelSetup {
+        gain: GAIN_A::GAIN1_4,
+        acquisition: TACQ_A::_40US,
+        positive: PSELP_A::ANALOG_INPUT4,
+        negative: PSELN_A::NC,
+    },
+    // Output current: AIN6 - AIN7, gain 4.
+    ChannelSetup {
+        gain: GAIN_A::GAIN4,
+        acquisition: TACQ_A::_10US,
+        positive: PSELP_A::ANALOG_INPUT6,
+        negative: PSELN_A::ANALOG_INPUT7,
+    },
+];
+
 /// The SAADC set up for the four channels of [`crate::front_end`].
 pub struct FourChannelAdc {
     saadc: SAADC,
@@ -50,73 +96,21 @@ impl FourChannelAdc {
         saadc.resolution.write(|w| w.val()._14bit());
         saadc.oversample.write(|w| w.oversample().over16x());
         saadc.samplerate.write(|w| w.mode().task());
-        let mut channels = saadc.ch.iter();
-        if let Some(ch) = channels.next() {
-            // Input voltage: AIN0, single-ended, gain 1/2.
+        for (ch, setup) in saadc.ch.iter().zip(SCAN) {
+            let mode = if setup.negative == PSELN_A::NC {
+                MODE_A::SE
+            } else {
+                MODE_A::DIFF
+            };
             ch.config.write(|w| {
-                w.refsel().internal().gain().gain1_2().tacq()._10us();
-                w.mode()
-                    .se()
-                    .resp()
-                    .bypass()
-                    .resn()
-                    .bypass()
-                    .burst()
-                    .enabled()
+                w.refsel().internal().gain().variant(setup.gain);
+                w.tacq().variant(setup.acquisition).mode().variant(mode);
+                w.resp().bypass().resn().bypass().burst().enabled()
             });
-            ch.pselp.write(|w| w.pselp().analog_input0());
-            ch.pseln.write(|w| w.pseln().nc());
+            ch.pselp.write(|w| w.pselp().variant(setup.positive));
+            ch.pseln.write(|w| w.pseln().variant(setup.negative));
         }
-        if let Some(ch) = channels.next() {
-            // Input current: AIN1 - AIN2, gain 4.
-            ch.config.write(|w| {
-                w.refsel().internal().gain().gain4().tacq()._10us();
-                w.mode()
-                    .diff()
-                    .resp()
-                    .bypass()
-                    .resn()
-                    .bypass()
-                    .burst()
-                    .enabled()
-            });
-            ch.pselp.write(|w| w.pselp().analog_input1());
-            ch.pseln.write(|w| w.pseln().analog_input2());
-        }
-        if let Some(ch) = channels.next() {
-            // Output voltage: AIN4, single-ended, gain 1/4, behind a 500 kΩ
-            // (Thevenin) divider: the longest acquisition time.
-            ch.config.write(|w| {
-                w.refsel().internal().gain().gain1_4().tacq()._40us();
-                w.mode()
-                    .se()
-                    .resp()
-                    .bypass()
-                    .resn()
-                    .bypass()
-                    .burst()
-                    .enabled()
-            });
-            ch.pselp.write(|w| w.pselp().analog_input4());
-            ch.pseln.write(|w| w.pseln().nc());
-        }
-        if let Some(ch) = channels.next() {
-            // Output current: AIN6 - AIN7, gain 4.
-            ch.config.write(|w| {
-                w.refsel().internal().gain().gain4().tacq()._10us();
-                w.mode()
-                    .diff()
-                    .resp()
-                    .bypass()
-                    .resn()
-                    .bypass()
-                    .burst()
-                    .enabled()
-            });
-            ch.pselp.write(|w| w.pselp().analog_input6());
-            ch.pseln.write(|w| w.pseln().analog_input7());
-        }
-        for ch in channels {
+        for ch in saadc.ch.iter().skip(SCAN.len()) {
             ch.pselp.write(|w| w.pselp().nc());
         }
         let mut adc = FourChannelAdc {
