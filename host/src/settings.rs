@@ -74,22 +74,12 @@ pub struct TwoPoint {
 impl TwoPoint {
     /// The pair in channel units (µV or nA) for a voltage or current channel.
     fn points(&self, field: &str, voltage: bool) -> Result<([f64; 2], [f64; 2])> {
-        let (reported, actual, scale, unit, other) = if voltage {
-            (
-                self.reported_v,
-                self.actual_v,
-                1e6,
-                "_v",
-                self.reported_ma.or(self.actual_ma),
-            )
+        let (reported, actual, unit, other) = if voltage {
+            let other = self.reported_ma.or(self.actual_ma);
+            (self.reported_v, self.actual_v, "_v", other)
         } else {
-            (
-                self.reported_ma,
-                self.actual_ma,
-                1e6,
-                "_ma",
-                self.reported_v.or(self.actual_v),
-            )
+            let other = self.reported_v.or(self.actual_v);
+            (self.reported_ma, self.actual_ma, "_ma", other)
         };
         if other.is_some() {
             bail!("{field}: this channel takes reported{unit} and actual{unit}");
@@ -101,7 +91,8 @@ impl TwoPoint {
         if all.clone().any(|v| !v.is_finite() || *v < 0.0) {
             bail!("{field}: values must be finite and not negative");
         }
-        Ok((reported.map(|v| v * scale), actual.map(|v| v * scale)))
+        // V to µV and mA to nA are both a factor of 10^6.
+        Ok((reported.map(|v| v * 1e6), actual.map(|v| v * 1e6)))
     }
 }
 
