@@ -112,38 +112,27 @@ fn simulate_report_and_export_a_run() {
 
 #[test]
 fn the_planner_names_the_bad_field() {
-    let (ok, _, err) = run(&[
-        "plan",
-        "--harvest-w",
-        "0.001",
-        "--sleep-w",
-        "1e-5",
-        "--active-w",
-        "0.01",
-        "--outage-h",
-        "12",
-        "--v-max",
-        "3.3",
-        "--v-min",
-        "3.5",
-    ]);
+    let plan = |v_min: &str| {
+        run(&[
+            "plan",
+            "--harvest-w",
+            "0.001",
+            "--sleep-w",
+            "1e-5",
+            "--active-w",
+            "0.01",
+            "--outage-h",
+            "12",
+            "--v-max",
+            "3.3",
+            "--v-min",
+            v_min,
+        ])
+    };
+    let (ok, _, err) = plan("3.5");
     assert!(!ok);
     assert!(err.contains("--v-max"), "{err}");
-    let (ok, out, err) = run(&[
-        "plan",
-        "--harvest-w",
-        "0.001",
-        "--sleep-w",
-        "1e-5",
-        "--active-w",
-        "0.01",
-        "--outage-h",
-        "12",
-        "--v-max",
-        "3.3",
-        "--v-min",
-        "1.8",
-    ]);
+    let (ok, out, err) = plan("1.8");
     assert!(ok, "{err}");
     // Load 1e-5 + 0.01 * (0.01 - 1e-5) = 109.9 µW for 12 h = 4.74768 J;
     // C = 2 * 4.74768 / (3.3² - 1.8²) = 1.241224 F, times 1.3 = 1.613591 F.

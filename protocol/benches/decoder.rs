@@ -4,39 +4,21 @@
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
 use gleaner_protocol::*;
 
+// The typical report the protocol tests use.
+#[path = "../tests/common.rs"]
+mod common;
+
 fn stream() -> Vec<u8> {
     let mut out = Vec::new();
     let mut buf = [0u8; MAX_UPLINK_FRAME_LEN];
     for seq in 0..1_000u16 {
-        let r = Report {
-            interval_ms: 1_000,
-            sample_count: 100,
-            input_uv: ChannelStats::from_min_mean_max(
-                1_180_000,
-                1_200_000 + u32::from(seq),
-                1_215_000,
-            ),
-            input_na: ChannelStats::from_min_mean_max(950_000, 1_000_000, 1_040_000),
-            output_uv: ChannelStats::from_min_mean_max(3_290_000, 3_300_000, 3_301_000),
-            output_na: ChannelStats::from_min_mean_max(8_000, 250_000, 4_000_000),
-            drawn_nj: 1_200_000,
-            delivered_nj: 825_000,
-            stored_nj: 0,
-            state: CutoffState::Harvesting,
-            state_ms: StateDurations {
-                harvesting_ms: 1_000,
-                ..Default::default()
-            },
-            input_cutoff_in_ms: None,
-            storage_runout_in_ms: Some(5_400_000),
-            load_shed: false,
-            flags: ReportFlags::default(),
-        };
-        let m = Uplink {
-            seq,
-            uptime_ms: u64::from(seq) * 1_000,
-            body: UplinkBody::Report(r),
-        };
+        let mut m = common::example_report();
+        m.seq = seq;
+        m.uptime_ms = u64::from(seq) * 1_000;
+        if let UplinkBody::Report(r) = &mut m.body {
+            r.input_uv =
+                ChannelStats::from_min_mean_max(1_180_000, 1_200_000 + u32::from(seq), 1_215_000);
+        }
         out.extend_from_slice(encode_frame(&m, &mut buf).unwrap());
     }
     out

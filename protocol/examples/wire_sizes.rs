@@ -4,6 +4,10 @@
 
 use gleaner_protocol::*;
 
+// The typical report the protocol tests use.
+#[path = "../tests/common.rs"]
+mod common;
+
 fn main() {
     let mut buf = [0u8; MAX_UPLINK_FRAME_LEN];
     let mut samples = heapless::Vec::new();
@@ -45,30 +49,7 @@ fn main() {
         })
         .sum::<f64>()
         / SAMPLES_PER_BLOCK as f64;
-    let report = Uplink {
-        seq: 4_321,
-        uptime_ms: 3_600_000,
-        body: UplinkBody::Report(Report {
-            interval_ms: 1_000,
-            sample_count: 100,
-            input_uv: ChannelStats::from_min_mean_max(1_180_000, 1_200_000, 1_215_000),
-            input_na: ChannelStats::from_min_mean_max(950_000, 1_000_000, 1_040_000),
-            output_uv: ChannelStats::from_min_mean_max(3_290_000, 3_300_000, 3_301_000),
-            output_na: ChannelStats::from_min_mean_max(8_000, 250_000, 4_000_000),
-            drawn_nj: 1_200_000,
-            delivered_nj: 825_000,
-            stored_nj: 0,
-            state: CutoffState::Harvesting,
-            state_ms: StateDurations {
-                harvesting_ms: 1_000,
-                ..Default::default()
-            },
-            input_cutoff_in_ms: None,
-            storage_runout_in_ms: Some(5_400_000),
-            load_shed: false,
-            flags: ReportFlags::default(),
-        }),
-    };
+    let report = common::example_report();
     let report_len = encode_frame(&report, &mut buf).unwrap().len();
     let report_text = "4321,3600000,1000,100,1180000,1200000,1215000,950000,1000000,1040000,3290000,3300000,3301000,8000,250000,4000000,1200000,825000,0,harvesting,0,0,1000,0,0,0,,5400000,0,0\n".len();
     println!("sample_bytes {per_sample:.2}");

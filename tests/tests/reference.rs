@@ -383,12 +383,7 @@ fn the_parquet_export_gives_the_report_totals_in_pyarrow_and_duckdb() {
     let prefix = dir.path().join("out");
     gleaner::export::export_parquet(&log, &prefix).unwrap();
     let totals = python("parquet.py", &[prefix.to_str().unwrap()]);
-    let cut_s = report
-        .states
-        .iter()
-        .find(|s| s.state == "cut-off")
-        .unwrap()
-        .seconds;
+    let cut_s = report.seconds_in("cut-off").unwrap();
     for reader in ["pyarrow", "duckdb"] {
         let t = &totals[reader];
         assert_eq!(

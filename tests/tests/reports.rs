@@ -120,12 +120,7 @@ fn csv_export_reproduces_the_report_totals() {
     assert_eq!(rows, done.reports);
     assert_eq!(drawn as f64 / 1e9, report.energy.drawn_j);
     assert_eq!(delivered as f64 / 1e9, report.energy.delivered_j);
-    let cut_s = report
-        .states
-        .iter()
-        .find(|s| s.state == "cut-off")
-        .unwrap()
-        .seconds;
+    let cut_s = report.seconds_in("cut-off").unwrap();
     assert!((cut_ms as f64 / 1e3 - cut_s).abs() < 1e-6);
     let events = std::fs::read_to_string(&done.events_path).unwrap();
     assert_eq!(events.lines().count() as u64 - 1, done.events);
@@ -210,12 +205,7 @@ fn parquet_export_reads_back_with_the_report_totals() {
     }
     assert_eq!(rows as u64, done.reports);
     assert_eq!(drawn as f64 / 1e9, report.energy.drawn_j);
-    let cut_s = report
-        .states
-        .iter()
-        .find(|s| s.state == "cut-off")
-        .unwrap()
-        .seconds;
+    let cut_s = report.seconds_in("cut-off").unwrap();
     assert!((cut_ms as f64 / 1e3 - cut_s).abs() < 1e-6);
     assert_eq!(done.events as usize, report.transitions.len());
 }

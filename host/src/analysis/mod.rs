@@ -201,6 +201,16 @@ pub struct RunReport {
     pub warnings: Vec<String>,
 }
 
+impl RunReport {
+    /// Seconds spent in the state named `state` (as in [`StateShare::state`]).
+    pub fn seconds_in(&self, state: &str) -> Option<f64> {
+        self.states
+            .iter()
+            .find(|s| s.state == state)
+            .map(|s| s.seconds)
+    }
+}
+
 const MAX_TRANSITIONS: usize = 10_000;
 
 /// Names of the message kinds, in wire order, for `message_counts`.
