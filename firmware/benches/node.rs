@@ -12,6 +12,7 @@ fn node() -> Node<NoPin, MemoryStorage<STORE_LEN>> {
     Node::new(NodeParts {
         config: default_config(),
         config_source: ConfigSource::Defaults,
+        node_id: 1,
         boot_id: 1,
         sample_period_us: 1_000,
         load_pin: NoPin,

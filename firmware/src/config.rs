@@ -1,6 +1,8 @@
 //! Default configuration and the validation rules the node enforces.
 
-use gleaner_protocol::{Calibration, Channel, ChannelCal, NodeConfig, Refusal, Thresholds};
+use gleaner_protocol::{
+    Calibration, Channel, ChannelCal, NodeConfig, NodeName, Refusal, Thresholds,
+};
 
 use crate::calibration::{current_shunt, voltage_divider, Adc};
 
@@ -22,6 +24,8 @@ pub const MAX_TIMEOUT_MS: u32 = 86_400_000;
 pub const MAX_SAG_MARGIN_UV: u32 = 1_000_000;
 /// Largest accepted storage capacitance (1000 F).
 pub const MAX_STORAGE_UF: u32 = 1_000_000_000;
+/// Highest accepted load voltage threshold (60 V).
+pub const MAX_LOAD_UV: u32 = 60_000_000;
 /// Largest accepted channel scale: 10^9 units per count, in Q20.
 pub const MAX_SCALE_Q20: u64 = 1_000_000_000 << 20;
 
@@ -59,6 +63,11 @@ pub const DEFAULT_THRESHOLDS: Thresholds = Thresholds {
     cold_start_timeout_ms: 10_000,
     forecast_horizon_ms: 60_000,
     input_idle_na: 2_000,
+    // A low-power microcontroller's brown-out level, restarting 0.2 V above
+    // it (common practice for 1.8 V-class parts).
+    load_min_uv: 1_800_000,
+    load_restart_uv: 2_000_000,
+    brownout_horizon_ms: 1_800_000,
 };
 
 /// The configuration a node starts with when nothing valid is stored.
@@ -69,7 +78,15 @@ pub fn default_config() -> NodeConfig {
         report_interval_ms: 1_000,
         output_storage_uf: 0,
         load_restore_ms: 30_000,
+        name: NodeName::new(),
     }
+}
+
+/// True for the characters a node name may hold: ASCII letters and digits,
+/// space and `- _ . :`; no space at either end.
+pub fn name_is_valid(name: &str) -> bool {
+    let allowed = |c: char| c.is_ascii_alphanumeric() || matches!(c, ' ' | '-' | '_' | '.' | ':');
+    name.chars().all(allowed) && !name.starts_with(' ') && !name.ends_with(' ')
 }
 
 /// Checks every rule; the first broken one is returned as the refusal reason.
@@ -97,9 +114,13 @@ pub fn validate(config: &NodeConfig) -> Result<(), Refusal> {
     if t.debounce_ms > MAX_DEBOUNCE_MS {
         return Err(Refusal::DebounceOutOfRange);
     }
+    if t.load_min_uv >= t.load_restart_uv || t.load_restart_uv > MAX_LOAD_UV {
+        return Err(Refusal::LoadThresholdsOutOfRange);
+    }
     let timeouts = [
         t.cold_start_timeout_ms,
         t.forecast_horizon_ms,
+        t.brownout_horizon_ms,
         config.load_restore_ms,
     ];
     if timeouts.iter().any(|&ms| ms == 0 || ms > MAX_TIMEOUT_MS) {
@@ -110,6 +131,9 @@ pub fn validate(config: &NodeConfig) -> Result<(), Refusal> {
     }
     if config.output_storage_uf > MAX_STORAGE_UF {
         return Err(Refusal::StorageCapacitanceOutOfRange);
+    }
+    if !name_is_valid(&config.name) {
+        return Err(Refusal::NodeNameInvalid);
     }
     Ok(())
 }
@@ -127,7 +151,7 @@ mod tests {
     #[test]
     fn each_rule_refuses_its_bad_case_with_its_reason() {
         type Breaker = fn(&mut NodeConfig);
-        let cases: [(Breaker, Refusal); 14] = [
+        let cases: [(Breaker, Refusal); 19] = [
             (|c| c.calibration.adc_bits = 7, Refusal::AdcBitsOutOfRange),
             (|c| c.calibration.adc_bits = 25, Refusal::AdcBitsOutOfRange),
             (
@@ -175,6 +199,29 @@ mod tests {
                 |c| c.output_storage_uf = MAX_STORAGE_UF + 1,
                 Refusal::StorageCapacitanceOutOfRange,
             ),
+            (
+                |c| c.thresholds.load_restart_uv = c.thresholds.load_min_uv,
+                Refusal::LoadThresholdsOutOfRange,
+            ),
+            (
+                |c| {
+                    c.thresholds.load_min_uv = MAX_LOAD_UV;
+                    c.thresholds.load_restart_uv = MAX_LOAD_UV + 1;
+                },
+                Refusal::LoadThresholdsOutOfRange,
+            ),
+            (
+                |c| c.thresholds.brownout_horizon_ms = 0,
+                Refusal::TimeoutOutOfRange,
+            ),
+            (
+                |c| c.name = NodeName::try_from("bad\nname").unwrap(),
+                Refusal::NodeNameInvalid,
+            ),
+            (
+                |c| c.name = NodeName::try_from(" padded").unwrap(),
+                Refusal::NodeNameInvalid,
+            ),
         ];
         for (break_it, reason) in cases {
             let mut config = default_config();
@@ -190,6 +237,11 @@ mod tests {
         c.thresholds.debounce_ms = MAX_DEBOUNCE_MS;
         c.thresholds.hold_uv = c.thresholds.start_uv - 1;
         c.output_storage_uf = MAX_STORAGE_UF;
+        c.thresholds.load_restart_uv = MAX_LOAD_UV;
+        c.thresholds.load_min_uv = MAX_LOAD_UV - 1;
+        c.name = NodeName::try_from("greenhouse-3 row:B_2.1").unwrap();
+        assert_eq!(validate(&c), Ok(()));
+        c.name = NodeName::try_from("x".repeat(gleaner_protocol::NODE_NAME_LEN).as_str()).unwrap();
         assert_eq!(validate(&c), Ok(()));
     }
 }

@@ -32,7 +32,7 @@ pub enum StoreError {
 }
 
 /// What was loaded at boot.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, PartialEq, Eq)]
 pub struct Loaded {
     /// The configuration to use.
     pub config: NodeConfig,

@@ -81,6 +81,8 @@ struct Pending {
     to: CutoffState,
     cause: TransitionCause,
     since_ms: u64,
+    /// What was seen when the condition first held.
+    trigger: Observation,
 }
 
 /// The debounced state machine.
@@ -130,6 +132,7 @@ impl CutoffDetector {
                 to,
                 cause,
                 since_ms: now_ms,
+                trigger: *seen,
             },
         };
         if now_ms.saturating_sub(pending.since_ms) < u64::from(t.debounce_ms) {
@@ -140,6 +143,8 @@ impl CutoffDetector {
             from: self.state,
             to,
             cause: pending.cause,
+            trigger_input_uv: pending.trigger.input_uv,
+            trigger_output_uv: pending.trigger.output_uv,
             input_uv: seen.input_uv,
             output_uv: seen.output_uv,
         };

@@ -1,93 +1,264 @@
-//! Time-to-cutoff forecasts.
+//! Forecasts: when the converter's input will be cut off, and when the load
+//! will brown out.
 //!
-//! * [`InputTrend`]: an ordinary least-squares line through the input voltage of
-//!   the last [`TREND_POINTS`] reports; when it falls steadily, the time until it
-//!   reaches the hold threshold. No forecast when it is flat, rising, or too noisy
-//!   (coefficient of determination r² below one half).
-//! * [`storage_runout_ms`]: how long output storage can carry a constant load
-//!   power down to a voltage, `t = C (V1² - V2²) / (2 P)`.
+//! * [`InputTrend`]: an ordinary least-squares line through the *square* of the
+//!   input voltage over a window of points, each the mean of one block of time.
+//!   A capacitive source under constant power falls linearly in V², so the
+//!   fit is exact there; for the accelerating falls of a sunset or a cell's
+//!   knee it answers earlier than a line through V would (the safe side). No
+//!   forecast when flat, rising, or too noisy (r² below one half).
+//! * [`CutoffForecaster`]: two trends, one over the last reports and one over
+//!   the last half hour, answering with the earlier of the two; the long one
+//!   sees a slow decline long before the short one can tell it from noise.
+//! * [`PowerAverage`]: the mean power of a stream of interval energies,
+//!   exponentially weighted (EWMA) over a time constant, so a load that draws
+//!   in short bursts is averaged over many of its periods.
+//! * [`storage_runout_ms`]: how long storage carries a constant power down to
+//!   a voltage, `t = C (V1² - V2²) / (2 P)`.
+//! * [`brownout_ms`]: the time until the load browns out, from the usable
+//!   storage energy, the net drain, and the input cutoff when one is in sight.
 
 use heapless::HistoryBuf;
 
-/// Reports kept for the trend.
+/// Points kept by each trend.
 pub const TREND_POINTS: usize = 16;
 /// Fewest points for a forecast.
 pub const MIN_TREND_POINTS: usize = 4;
+/// Block length of the long trend: 16 blocks of 2 minutes span 32 minutes.
+pub const LONG_TREND_BLOCK_MS: u32 = 120_000;
+/// Time constant of the load's power average (10 minutes): long enough to
+/// span many periods of a duty-cycled load (a burst a minute gives ten), short
+/// enough to follow a load that is shed.
+pub const LOAD_AVERAGE_MS: u32 = 600_000;
+/// Time constant of the converter output's power average (2 minutes): the
+/// harvest changes with clouds and sunset, so it is followed more closely.
+pub const HARVEST_AVERAGE_MS: u32 = 120_000;
+/// Input voltages are fitted in units of 256 µV, squared, so the sums of a
+/// window stay well inside 128 bits.
+const V_UNIT_UV: u64 = 256;
 
-/// A sliding window of `(time, input voltage)` points.
-#[derive(Debug, Clone)]
-pub struct InputTrend {
-    points: HistoryBuf<(u64, u32), TREND_POINTS>,
+/// The square of `uv` in (256 µV)² units.
+fn squared(uv: u32) -> i128 {
+    let v = i128::from(u64::from(uv) / V_UNIT_UV);
+    v.saturating_mul(v)
 }
 
-impl Default for InputTrend {
-    fn default() -> Self {
-        Self::new()
-    }
+/// Least-squares sums of `(t, y)` points with `t` relative to the newest point.
+#[derive(Debug, Default)]
+struct Sums {
+    n: i128,
+    t: i128,
+    y: i128,
+    tt: i128,
+    ty: i128,
+    yy: i128,
 }
 
-impl InputTrend {
-    /// An empty window.
-    pub const fn new() -> Self {
-        InputTrend {
-            points: HistoryBuf::new(),
-        }
+impl Sums {
+    fn add(&mut self, t: i128, y: i128) {
+        self.n = self.n.saturating_add(1);
+        self.t = self.t.saturating_add(t);
+        self.y = self.y.saturating_add(y);
+        self.tt = self.tt.saturating_add(t.saturating_mul(t));
+        self.ty = self.ty.saturating_add(t.saturating_mul(y));
+        self.yy = self.yy.saturating_add(y.saturating_mul(y));
     }
 
-    /// Adds the mean input voltage of an interval that ended at `t_ms`.
-    pub fn push(&mut self, t_ms: u64, input_uv: u32) {
-        self.points.write((t_ms, input_uv));
-    }
-
-    /// Forgets every point (after a restart of the converter, say).
-    pub fn clear(&mut self) {
-        self.points.clear();
-    }
-
-    /// Milliseconds from the newest point until the fitted line reaches
-    /// `threshold_uv`: Some(0) when it already has, None when not falling or too noisy.
-    pub fn time_to_reach(&self, threshold_uv: u32) -> Option<u32> {
-        let n = self.points.len();
-        if n < MIN_TREND_POINTS {
-            return None;
-        }
-        let &(t_now, _) = self.points.recent()?;
-        let (mut st, mut sv, mut stt, mut stv, mut svv) = (0i128, 0i128, 0i128, 0i128, 0i128);
-        for &(t, v) in self.points.oldest_ordered() {
-            // Time relative to the newest point (so "now" is t = 0), in ms.
-            let t = i128::from(t).saturating_sub(i128::from(t_now));
-            let v = i128::from(v);
-            st = st.saturating_add(t);
-            sv = sv.saturating_add(v);
-            stt = stt.saturating_add(t.saturating_mul(t));
-            stv = stv.saturating_add(t.saturating_mul(v));
-            svv = svv.saturating_add(v.saturating_mul(v));
-        }
-        let n = i128::try_from(n).ok()?;
-        let sxx = n.saturating_mul(stt).saturating_sub(st.saturating_mul(st));
-        let sxy = n.saturating_mul(stv).saturating_sub(st.saturating_mul(sv));
-        let syy = n.saturating_mul(svv).saturating_sub(sv.saturating_mul(sv));
+    /// Time from t = 0 until the fitted line falls to `level`; None when not
+    /// falling or r² < 1/2.
+    fn time_to(&self, level: i128) -> Option<u32> {
+        let n = self.n;
+        let sxx = n
+            .checked_mul(self.tt)?
+            .checked_sub(self.t.checked_mul(self.t)?)?;
+        let sxy = n
+            .checked_mul(self.ty)?
+            .checked_sub(self.t.checked_mul(self.y)?)?;
+        let syy = n
+            .checked_mul(self.yy)?
+            .checked_sub(self.y.checked_mul(self.y)?)?;
         if sxx <= 0 || sxy >= 0 {
             return None; // all points at one time, or not falling
         }
         // r² = sxy² / (sxx syy) >= 1/2, compared without division.
-        let sxy2 = sxy.checked_mul(sxy)?;
-        if sxy2.checked_mul(2)? < sxx.checked_mul(syy)? {
+        if sxy.checked_mul(sxy)?.checked_mul(2)? < sxx.checked_mul(syy)? {
             return None;
         }
-        // Fitted value at t = 0 minus threshold, over the falling rate:
-        // t = (sv sxx - st sxy - th n sxx) / (n (-sxy)).
-        let th = i128::from(threshold_uv);
-        let above = sv
+        // Fitted value at t = 0 minus the level, over the falling rate:
+        // t = (sy sxx - st sxy - level n sxx) / (n (-sxy)).
+        let above = self
+            .y
             .checked_mul(sxx)?
-            .checked_sub(st.checked_mul(sxy)?)?
-            .checked_sub(th.checked_mul(n)?.checked_mul(sxx)?)?;
+            .checked_sub(self.t.checked_mul(sxy)?)?
+            .checked_sub(level.checked_mul(n)?.checked_mul(sxx)?)?;
         if above <= 0 {
             return Some(0);
         }
         let ms = above.checked_div(n.checked_mul(sxy.checked_neg()?)?)?;
         Some(u32::try_from(ms).unwrap_or(u32::MAX))
     }
+}
+
+/// A sliding window of `(time, input voltage)` points, each the mean over a
+/// block of at least `block_ms` (0: every pushed value is a point).
+#[derive(Debug, Clone)]
+pub struct InputTrend {
+    block_ms: u32,
+    points: HistoryBuf<(u64, u32), TREND_POINTS>,
+    block_start_ms: Option<u64>,
+    block_sum_uv: u64,
+    block_count: u32,
+}
+
+impl InputTrend {
+    /// An empty window of blocks of `block_ms`.
+    pub const fn new(block_ms: u32) -> Self {
+        InputTrend {
+            block_ms,
+            points: HistoryBuf::new(),
+            block_start_ms: None,
+            block_sum_uv: 0,
+            block_count: 0,
+        }
+    }
+
+    /// Adds the mean input voltage of an interval that ended at `t_ms`.
+    pub fn push(&mut self, t_ms: u64, input_uv: u32) {
+        let start = *self.block_start_ms.get_or_insert(t_ms);
+        self.block_sum_uv = self.block_sum_uv.saturating_add(u64::from(input_uv));
+        self.block_count = self.block_count.saturating_add(1);
+        if t_ms.saturating_sub(start) < u64::from(self.block_ms) {
+            return;
+        }
+        let mean = self
+            .block_sum_uv
+            .checked_div(u64::from(self.block_count))
+            .unwrap_or(0);
+        self.points
+            .write((t_ms, u32::try_from(mean).unwrap_or(u32::MAX)));
+        self.block_start_ms = None;
+        self.block_sum_uv = 0;
+        self.block_count = 0;
+    }
+
+    /// Forgets every point (after a restart of the converter, say).
+    pub fn clear(&mut self) {
+        self.points.clear();
+        self.block_start_ms = None;
+        self.block_sum_uv = 0;
+        self.block_count = 0;
+    }
+
+    /// Milliseconds from the newest point until the fitted line reaches
+    /// `threshold_uv`: Some(0) when it already has, None when not falling or too noisy.
+    pub fn time_to_reach(&self, threshold_uv: u32) -> Option<u32> {
+        if self.points.len() < MIN_TREND_POINTS {
+            return None;
+        }
+        let &(t_now, _) = self.points.recent()?;
+        let mut sums = Sums::default();
+        for &(t, v) in self.points.oldest_ordered() {
+            // Time relative to the newest point (so "now" is t = 0), in ms.
+            sums.add(i128::from(t).saturating_sub(i128::from(t_now)), squared(v));
+        }
+        sums.time_to(squared(threshold_uv))
+    }
+}
+
+/// Time to input cutoff from a short and a long trend, the earlier answer of the two.
+#[derive(Debug, Clone)]
+pub struct CutoffForecaster {
+    short: InputTrend,
+    long: InputTrend,
+}
+
+impl Default for CutoffForecaster {
+    fn default() -> Self {
+        Self::new()
+    }
+}
+
+impl CutoffForecaster {
+    /// Empty trends.
+    pub const fn new() -> Self {
+        CutoffForecaster {
+            short: InputTrend::new(0),
+            long: InputTrend::new(LONG_TREND_BLOCK_MS),
+        }
+    }
+
+    /// Adds an interval's mean input voltage.
+    pub fn push(&mut self, t_ms: u64, input_uv: u32) {
+        self.short.push(t_ms, input_uv);
+        self.long.push(t_ms, input_uv);
+    }
+
+    /// Forgets everything (the converter restarted).
+    pub fn clear(&mut self) {
+        self.short.clear();
+        self.long.clear();
+    }
+
+    /// Milliseconds until the input falls to `hold_uv`, the earlier of the two trends.
+    pub fn time_to_reach(&self, hold_uv: u32) -> Option<u32> {
+        match (
+            self.short.time_to_reach(hold_uv),
+            self.long.time_to_reach(hold_uv),
+        ) {
+            (Some(a), Some(b)) => Some(a.min(b)),
+            (a, b) => a.or(b),
+        }
+    }
+}
+
+/// Mean power of interval energies, exponentially weighted over a time
+/// constant; until one time constant has passed, the plain mean since the start.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct PowerAverage {
+    mean_nw: i64,
+    weight_us: u64,
+}
+
+impl PowerAverage {
+    /// No data yet.
+    pub const fn new() -> Self {
+        PowerAverage {
+            mean_nw: 0,
+            weight_us: 0,
+        }
+    }
+
+    /// Adds `energy_nj` taken over `length_us`, averaging over `time_constant_ms`.
+    pub fn push(&mut self, energy_nj: i64, length_us: u64, time_constant_ms: u32) {
+        if length_us == 0 {
+            return;
+        }
+        let tau_us = u64::from(time_constant_ms).saturating_mul(1000).max(1);
+        self.weight_us = self.weight_us.saturating_add(length_us).min(tau_us);
+        let power = i128::from(energy_nj)
+            .saturating_mul(1_000_000)
+            .checked_div(i128::from(length_us))
+            .unwrap_or(0);
+        let step = power
+            .saturating_sub(i128::from(self.mean_nw))
+            .saturating_mul(i128::from(length_us.min(self.weight_us)))
+            .checked_div(i128::from(self.weight_us))
+            .unwrap_or(0);
+        let mean = i128::from(self.mean_nw).saturating_add(step);
+        self.mean_nw = i64::try_from(mean).unwrap_or(if mean < 0 { i64::MIN } else { i64::MAX });
+    }
+
+    /// The average, nW (0 before any data).
+    pub const fn mean_nw(&self) -> i64 {
+        self.mean_nw
+    }
+}
+
+/// Stored energy `C V² / 2` in nJ (µF µV² = 1e-18 J).
+pub fn storage_level_nj(c_uf: u32, v_uv: u32) -> i64 {
+    let v2 = u128::from(v_uv).saturating_mul(u128::from(v_uv));
+    let nj = u128::from(c_uf).saturating_mul(v2) / 2_000_000_000;
+    i64::try_from(nj).unwrap_or(i64::MAX)
 }
 
 /// Milliseconds that `c_uf` of storage at `from_uv` can supply `load_nw` before
@@ -107,33 +278,96 @@ pub fn storage_runout_ms(c_uf: u32, from_uv: u32, to_uv: u32, load_nw: u64) -> O
     Some(u32::try_from(ms).unwrap_or(u32::MAX))
 }
 
+/// What the brown-out forecast is computed from.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct DrainOutlook {
+    /// Storage energy above the load's minimum voltage, nJ (negative: below it).
+    pub usable_nj: i64,
+    /// Load power averaged over its duty period, nW.
+    pub load_nw: i64,
+    /// Converter output less load power, nW (negative while storage drains).
+    pub net_nw: i64,
+    /// True while the converter delivers (its output still counts).
+    pub converting: bool,
+    /// Forecast time until the converter's input is cut off, while converting.
+    pub input_cutoff_in_ms: Option<u32>,
+}
+
+/// Milliseconds at `drain_nw` until `energy_nj` is used up (None when not draining).
+fn drain_ms(energy_nj: i64, drain_nw: i64) -> Option<u64> {
+    if drain_nw <= 0 {
+        return None;
+    }
+    // nJ / nW = s.
+    let ms = i128::from(energy_nj.max(0))
+        .saturating_mul(1000)
+        .checked_div(i128::from(drain_nw))?;
+    Some(u64::try_from(ms).unwrap_or(u64::MAX))
+}
+
+/// Time until the load browns out.
+///
+/// * Converter stopped: the load alone drains the storage (at least the averaged
+///   load power, whatever the lagging net average still says).
+/// * Converting with an input cutoff in sight: storage drains at the net rate
+///   until the cutoff, then at the load's rate (the cause chain "input cut off,
+///   then storage ran out").
+/// * Converting with no cutoff in sight: the net drain, None while charging.
+pub fn brownout_ms(o: &DrainOutlook) -> Option<u32> {
+    if o.usable_nj <= 0 {
+        return Some(0);
+    }
+    let net_drain = o.net_nw.saturating_neg();
+    let ms = if !o.converting {
+        drain_ms(o.usable_nj, net_drain.max(o.load_nw))?
+    } else if let Some(cutoff_ms) = o.input_cutoff_in_ms {
+        let until_cutoff_nj = i128::from(net_drain.max(0))
+            .saturating_mul(i128::from(cutoff_ms))
+            .checked_div(1000)
+            .unwrap_or(0);
+        let left = i128::from(o.usable_nj).saturating_sub(until_cutoff_nj);
+        if left <= 0 {
+            drain_ms(o.usable_nj, net_drain)?
+        } else {
+            let left = i64::try_from(left).unwrap_or(i64::MAX);
+            u64::from(cutoff_ms).saturating_add(drain_ms(left, o.load_nw)?)
+        }
+    } else {
+        drain_ms(o.usable_nj, net_drain)?
+    };
+    Some(u32::try_from(ms).unwrap_or(u32::MAX))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
 
     #[test]
-    fn linear_discharge_gives_the_exact_time() {
-        // 1.0 V falling 1 mV per second, points every second: 0.7 V in 300 s.
-        let mut trend = InputTrend::new();
+    fn capacitor_discharge_at_constant_power_gives_the_exact_time() {
+        // A capacitor under constant power falls linearly in V² (any physics
+        // text: C (V1² - V2²) = 2 P t). 1 F at 2 mW: V² falls 0.004 V²/s.
+        // From 1.2 V, 0.7 V is reached after (1.44 - 0.49) / 0.004 = 237.5 s.
+        let mut trend = InputTrend::new(0);
+        let v_at = |s: f64| (1.44 - 0.004 * (s - 15.0)).sqrt();
         for s in 0..16u64 {
-            trend.push(s * 1000, 1_015_000 - 1_000 * s as u32);
+            trend.push(s * 1000, (v_at(s as f64) * 1e6).round() as u32);
         }
-        // Newest point is 1.000 V at t = 15 s.
-        assert_eq!(trend.time_to_reach(700_000), Some(300_000));
-        assert_eq!(trend.time_to_reach(1_200_000), Some(0));
+        let got = trend.time_to_reach(700_000).unwrap();
+        assert!((got as f64 - 237_500.0).abs() < 500.0, "{got}");
+        assert_eq!(trend.time_to_reach(1_300_000), Some(0));
     }
 
     #[test]
     fn rising_flat_or_short_input_gives_none() {
-        let mut rising = InputTrend::new();
-        let mut flat = InputTrend::new();
+        let mut rising = InputTrend::new(0);
+        let mut flat = InputTrend::new(0);
         for s in 0..10u64 {
             rising.push(s * 1000, 800_000 + 500 * s as u32);
             flat.push(s * 1000, 800_000);
         }
         assert_eq!(rising.time_to_reach(700_000), None);
         assert_eq!(flat.time_to_reach(700_000), None);
-        let mut short = InputTrend::new();
+        let mut short = InputTrend::new(0);
         for s in 0..3u64 {
             short.push(s * 1000, 900_000 - 1000 * s as u32);
         }
@@ -143,12 +377,62 @@ mod tests {
     #[test]
     fn noise_without_a_trend_gives_none() {
         // Alternating +-20 mV around a 1 uV/s fall: r² is tiny.
-        let mut trend = InputTrend::new();
+        let mut trend = InputTrend::new(0);
         for s in 0..16u64 {
             let wobble: i64 = if s % 2 == 0 { 20_000 } else { -20_000 };
             trend.push(s * 1000, (900_000 - s as i64 + wobble) as u32);
         }
         assert_eq!(trend.time_to_reach(700_000), None);
+    }
+
+    #[test]
+    fn blocks_average_their_intervals() {
+        // Blocks of 2 min from 10 s intervals: one point per 13 pushes (the
+        // block closes on the first interval at or past 120 s from its start).
+        let mut trend = InputTrend::new(LONG_TREND_BLOCK_MS);
+        for i in 0..13u64 {
+            trend.push(i * 10_000, 1_000_000 + (i as u32) * 1000);
+        }
+        assert_eq!(trend.points.len(), 1);
+        assert_eq!(trend.points.recent(), Some(&(120_000, 1_006_000)));
+    }
+
+    #[test]
+    fn the_long_trend_sees_a_slow_fall_the_short_one_cannot() {
+        // A 10 µV per 10 s fall, under ±1 mV of alternating noise: 16 short
+        // points see mostly noise, 16 blocks of 2 min see the fall.
+        let mut f = CutoffForecaster::new();
+        let mut short_only = InputTrend::new(0);
+        for i in 0..400u64 {
+            let wobble: i64 = if i % 2 == 0 { 1000 } else { -1000 };
+            let v = (900_000 - 10 * i as i64 + wobble) as u32;
+            f.push(i * 10_000, v);
+            short_only.push(i * 10_000, v);
+        }
+        assert_eq!(short_only.time_to_reach(700_000), None);
+        let ms = f.time_to_reach(700_000).unwrap();
+        // The line through V: (0.896 - 0.7) V at 1 µV/s = 196,000 s. The V²
+        // fit answers earlier (the safe side): (0.896² - 0.7²) / (2 · 0.896 · 1e-6)
+        // = 174,560 s.
+        assert!((173_000_000..=176_000_000).contains(&ms), "{ms}");
+    }
+
+    #[test]
+    fn power_average_starts_as_a_plain_mean_then_forgets() {
+        let mut avg = PowerAverage::new();
+        // 1 mJ over 10 s = 100 µW, then nothing for 10 s: mean 50 µW.
+        avg.push(1_000_000, 10_000_000, 600_000);
+        assert_eq!(avg.mean_nw(), 100_000);
+        avg.push(0, 10_000_000, 600_000);
+        assert_eq!(avg.mean_nw(), 50_000);
+        // A burst load: 6 mJ in one 10 s interval of each minute, 100 µW mean.
+        let mut burst = PowerAverage::new();
+        for i in 0..600 {
+            let nj = if i % 6 == 0 { 6_000_000 } else { 0 };
+            burst.push(nj, 10_000_000, LOAD_AVERAGE_MS);
+        }
+        let mean = burst.mean_nw();
+        assert!((80_000..=120_000).contains(&mean), "{mean}");
     }
 
     #[test]
@@ -161,5 +445,56 @@ mod tests {
         );
         assert_eq!(storage_runout_ms(0, 2_700_000, 900_000, 10), None);
         assert_eq!(storage_runout_ms(10, 900_000, 2_700_000, 10), Some(0));
+        // Any physics text: 10 F at 2.7 V holds 36.45 J; above 0.9 V, 32.4 J.
+        let usable =
+            storage_level_nj(10_000_000, 2_700_000) - storage_level_nj(10_000_000, 900_000);
+        assert_eq!(usable, 32_400_000_000);
+    }
+
+    #[test]
+    fn brownout_follows_the_cause_chain() {
+        // 32.4 J usable (the 10 F example), load 10 mW: 3240 s with the converter stopped,
+        // even while a lagging net average still shows a small drain.
+        let stopped = DrainOutlook {
+            usable_nj: 32_400_000_000,
+            load_nw: 10_000_000,
+            net_nw: -1_000_000,
+            converting: false,
+            input_cutoff_in_ms: None,
+        };
+        assert_eq!(brownout_ms(&stopped), Some(3_240_000));
+        // Charging with no cutoff in sight: no brown-out.
+        let charging = DrainOutlook {
+            net_nw: 5_000_000,
+            converting: true,
+            ..stopped
+        };
+        assert_eq!(brownout_ms(&charging), None);
+        // Charging, but the input is cut off in 600 s: then 3240 s on storage.
+        let sunset = DrainOutlook {
+            input_cutoff_in_ms: Some(600_000),
+            ..charging
+        };
+        assert_eq!(brownout_ms(&sunset), Some(3_840_000));
+        // Draining 5 mW net until a cutoff in 1000 s (5 J), then 27.4 J at 10 mW.
+        let heavy = DrainOutlook {
+            net_nw: -5_000_000,
+            input_cutoff_in_ms: Some(1_000_000),
+            ..charging
+        };
+        assert_eq!(brownout_ms(&heavy), Some(1_000_000 + 2_740_000));
+        // Draining so fast that storage is gone before the cutoff.
+        let heavier = DrainOutlook {
+            net_nw: -20_000_000,
+            input_cutoff_in_ms: Some(2_000_000),
+            ..charging
+        };
+        assert_eq!(brownout_ms(&heavier), Some(1_620_000));
+        // Already below the load's minimum.
+        let empty = DrainOutlook {
+            usable_nj: -5,
+            ..stopped
+        };
+        assert_eq!(brownout_ms(&empty), Some(0));
     }
 }

@@ -6,12 +6,14 @@
 //! * [`calibration`]: raw ADC counts to microvolts and nanoamps, with clipping flags;
 //! * [`meter`]: power, lossless energy accumulators and efficiency as an energy ratio;
 //! * [`cutoff`]: the debounced cutoff state machine with a cause for each transition;
-//! * [`forecast`]: time-to-cutoff from the input trend and time-to-run-out of storage;
+//! * [`forecast`]: time to input cutoff from the input's trends, averaged load and net
+//!   power, and time to the load's brown-out;
 //! * [`interval`]: per-report aggregation (min / mean / max, time in each state);
 //! * [`config`]: defaults and validation of the configuration the host may send;
 //! * [`config_store`]: two alternating records that survive a power cut mid-write;
 //! * [`flash_slots`]: those two records on two erase pages of a NOR flash;
-//! * [`load_shed`]: the output pin that drops non-essential load;
+//! * [`load_shed`]: the output pin that drops non-essential load when brown-out is near;
+//! * [`load_watch`]: whether the load has power, and why it lost it;
 //! * [`sampler`]: the small trait a board implements for its ADC.
 //!
 //! Hardware enters only through traits (embedded-hal `OutputPin`, embedded-io
@@ -29,6 +31,7 @@
 //! let mut node = Node::new(NodeParts {
 //!     config: default_config(),
 //!     config_source: gleaner_protocol::ConfigSource::Defaults,
+//!     node_id: 0x00C0_FFEE,
 //!     boot_id: 42,
 //!     sample_period_us: 10_000,
 //!     load_pin: NoPin,
@@ -69,6 +72,7 @@ pub mod flash_slots;
 pub mod forecast;
 pub mod interval;
 pub mod load_shed;
+pub mod load_watch;
 pub mod meter;
 mod node;
 pub mod sampler;

@@ -1,8 +1,8 @@
-//! Load shedding: an output pin that switches non-essential load off while the
-//! supply is at risk, and back on after the supply has been healthy for a while.
+//! Load shedding: an output pin that switches non-essential load off when the
+//! load's brown-out is forecast within the horizon, and back on after the
+//! forecast has been clear for a while.
 
 use embedded_hal::digital::{ErrorType, OutputPin};
-use gleaner_protocol::CutoffState;
 
 /// A pin that does nothing, for nodes without a load switch.
 #[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
@@ -21,20 +21,37 @@ impl OutputPin for NoPin {
     }
 }
 
-/// True in the states where non-essential load is shed.
-pub const fn sheds_in(state: CutoffState) -> bool {
-    matches!(
-        state,
-        CutoffState::Sagging | CutoffState::CutOff | CutoffState::Stalled
-    )
+/// How close the load is to browning out, from the brown-out forecast.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Risk {
+    /// Brown-out forecast within the horizon, or the load already without power.
+    Near,
+    /// Forecast between one and two horizons away: keep what was decided.
+    Watch,
+    /// No brown-out in sight, or beyond twice the horizon.
+    Clear,
 }
 
-/// Drives the load switch: high = load on. Sheds on entering a risky state;
-/// restores after `restore_ms` of `Harvesting`.
+impl Risk {
+    /// The risk for a forecast and the load's supply.
+    pub const fn assess(brownout_in_ms: Option<u32>, load_powered: bool, horizon_ms: u32) -> Risk {
+        match brownout_in_ms {
+            _ if !load_powered => Risk::Near,
+            Some(ms) if ms <= horizon_ms => Risk::Near,
+            Some(ms) if ms <= horizon_ms.saturating_mul(2) => Risk::Watch,
+            _ => Risk::Clear,
+        }
+    }
+}
+
+/// Drives the load switch: high = load on. Sheds when brown-out is near;
+/// restores after it has been clear for the restore time (hysteresis twice:
+/// in the forecast's distance and in time).
 #[derive(Debug)]
 pub struct LoadShedder<P> {
     pin: P,
     shed: bool,
+    clear_since_ms: Option<u64>,
     pin_errors: u32,
 }
 
@@ -44,6 +61,7 @@ impl<P: OutputPin> LoadShedder<P> {
         let mut shedder = LoadShedder {
             pin,
             shed: true,
+            clear_since_ms: None,
             pin_errors: 0,
         };
         shedder.set(false);
@@ -60,12 +78,20 @@ impl<P: OutputPin> LoadShedder<P> {
         self.pin_errors
     }
 
-    /// Applies the policy for `state`, entered `in_state_ms` ago.
-    pub fn update(&mut self, state: CutoffState, in_state_ms: u64, restore_ms: u32) {
-        if sheds_in(state) {
-            self.set(true);
-        } else if state == CutoffState::Harvesting && in_state_ms >= u64::from(restore_ms) {
-            self.set(false);
+    /// Applies the policy for `risk` at `now_ms`.
+    pub fn update(&mut self, risk: Risk, now_ms: u64, restore_ms: u32) {
+        match risk {
+            Risk::Near => {
+                self.clear_since_ms = None;
+                self.set(true);
+            }
+            Risk::Watch => self.clear_since_ms = None,
+            Risk::Clear => {
+                let since = *self.clear_since_ms.get_or_insert(now_ms);
+                if now_ms.saturating_sub(since) >= u64::from(restore_ms) {
+                    self.set(false);
+                }
+            }
         }
     }
 
@@ -99,20 +125,43 @@ mod tests {
     fn sheds_on_risk_and_restores_after_the_delay() {
         let expectations = [
             Transaction::set(State::High), // load on at start
-            Transaction::set(State::Low),  // shed on Sagging
-            Transaction::set(State::High), // restored after 30 s of Harvesting
+            Transaction::set(State::Low),  // shed when brown-out is near
+            Transaction::set(State::High), // restored after 30 s clear
         ];
         let mut shedder = LoadShedder::new(Mock::new(&expectations));
+        let horizon = 60_000;
         assert!(!shedder.is_shed());
-        shedder.update(CutoffState::Harvesting, 0, 30_000);
-        shedder.update(CutoffState::Sagging, 0, 30_000);
+        shedder.update(Risk::assess(None, true, horizon), 0, 30_000);
+        shedder.update(Risk::assess(Some(horizon), true, horizon), 1_000, 30_000);
         assert!(shedder.is_shed());
-        shedder.update(CutoffState::CutOff, 10, 30_000);
-        shedder.update(CutoffState::Harvesting, 29_999, 30_000);
+        // Between one and two horizons: stays shed, and the clock does not run.
+        shedder.update(
+            Risk::assess(Some(2 * horizon), true, horizon),
+            2_000,
+            30_000,
+        );
+        shedder.update(
+            Risk::assess(Some(2 * horizon + 1), true, horizon),
+            3_000,
+            30_000,
+        );
+        shedder.update(
+            Risk::assess(Some(2 * horizon), true, horizon),
+            20_000,
+            30_000,
+        );
+        shedder.update(Risk::assess(None, true, horizon), 21_000, 30_000);
+        shedder.update(Risk::assess(None, true, horizon), 50_999, 30_000);
         assert!(shedder.is_shed());
-        shedder.update(CutoffState::Harvesting, 30_000, 30_000);
+        shedder.update(Risk::assess(None, true, horizon), 51_000, 30_000);
         assert!(!shedder.is_shed());
         shedder.release().done();
+    }
+
+    #[test]
+    fn an_unpowered_load_counts_as_near() {
+        assert_eq!(Risk::assess(None, false, 1), Risk::Near);
+        assert_eq!(Risk::assess(Some(u32::MAX), false, 1), Risk::Near);
     }
 
     #[test]
@@ -124,9 +173,9 @@ mod tests {
             Transaction::set(State::Low),
         ];
         let mut shedder = LoadShedder::new(Mock::new(&expectations));
-        shedder.update(CutoffState::CutOff, 0, 1);
+        shedder.update(Risk::Near, 0, 1);
         assert_eq!((shedder.is_shed(), shedder.pin_errors()), (false, 1));
-        shedder.update(CutoffState::CutOff, 1, 1);
+        shedder.update(Risk::Near, 1, 1);
         assert!(shedder.is_shed());
         shedder.release().done();
     }

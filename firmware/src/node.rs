@@ -5,8 +5,8 @@ use embedded_hal::digital::OutputPin;
 use embedded_storage::Storage;
 use gleaner_protocol::{
     encode_frame, Command, ConfigSource, CutoffState, Decoder, DecoderStats, Downlink,
-    EnergyTotals, FirmwareVersion, Hello, NodeConfig, Outcome, Refusal, Reply, Report, Sample,
-    SampleBlock, Uplink, UplinkBody, MAX_BURST_SAMPLES, MAX_DOWNLINK_FRAME_LEN,
+    EnergyTotals, FirmwareVersion, Hello, LoadEvent, NodeConfig, Outcome, Refusal, Reply, Report,
+    Sample, SampleBlock, Uplink, UplinkBody, MAX_BURST_SAMPLES, MAX_DOWNLINK_FRAME_LEN,
     MAX_UPLINK_FRAME_LEN, PROTOCOL_VERSION, SAMPLES_PER_BLOCK,
 };
 use heapless::{Deque, HistoryBuf, Vec};
@@ -15,9 +15,13 @@ use crate::calibration::{calibrate, RawSample};
 use crate::config::validate;
 use crate::config_store;
 use crate::cutoff::{CutoffDetector, Observation};
-use crate::forecast::{storage_runout_ms, InputTrend};
+use crate::forecast::{
+    brownout_ms, storage_level_nj, CutoffForecaster, DrainOutlook, PowerAverage,
+    HARVEST_AVERAGE_MS, LOAD_AVERAGE_MS,
+};
 use crate::interval::IntervalStats;
-use crate::load_shed::LoadShedder;
+use crate::load_shed::{LoadShedder, Risk};
+use crate::load_watch::LoadWatch;
 use crate::meter::Meter;
 
 /// Samples averaged for the storage voltage: a single sample's noise would
@@ -54,6 +58,8 @@ pub struct NodeParts<P, S> {
     pub config: NodeConfig,
     /// Where it came from.
     pub config_source: ConfigSource,
+    /// The node's stable identity (the MCU's factory id on hardware).
+    pub node_id: u64,
     /// A value that differs on every boot (a counter kept in flash, or random).
     pub boot_id: u32,
     /// Time between two samples, for `Hello` and burst blocks.
@@ -93,17 +99,23 @@ struct IntervalStart {
 pub struct Node<P, S> {
     config: NodeConfig,
     config_source: ConfigSource,
+    node_id: u64,
     boot_id: u32,
     sample_period_us: u32,
     storage: S,
     shedder: LoadShedder<P>,
     detector: CutoffDetector,
     meter: Meter,
-    trend: InputTrend,
+    cutoff_forecast: CutoffForecaster,
+    load_power: PowerAverage,
+    output_power: PowerAverage,
+    load_watch: LoadWatch,
+    brownout_in_ms: Option<u32>,
     interval: IntervalStats,
     interval_start: Option<IntervalStart>,
     stored_level_nj: i64,
     recent_output_uv: HistoryBuf<u32, STORAGE_SMOOTHING>,
+    smoothed_output_uv: u32,
     boot_stored_level_nj: Option<i64>,
     reset_baseline: EnergyTotals,
     input_cutoff_in_ms: Option<u32>,
@@ -117,30 +129,29 @@ pub struct Node<P, S> {
     stats: NodeStats,
 }
 
-/// Stored energy level `C V² / 2` in nJ (µF µV² = 1e-18 J).
-fn storage_level_nj(c_uf: u32, v_uv: u32) -> i64 {
-    let v2 = u128::from(v_uv).saturating_mul(u128::from(v_uv));
-    let nj = u128::from(c_uf).saturating_mul(v2) / 2_000_000_000;
-    i64::try_from(nj).unwrap_or(i64::MAX)
-}
-
 impl<P: OutputPin, S: Storage> Node<P, S> {
     /// A node at boot; its `Hello` is the first message queued.
     pub fn new(parts: NodeParts<P, S>) -> Self {
         let mut node = Node {
             config: parts.config,
             config_source: parts.config_source,
+            node_id: parts.node_id,
             boot_id: parts.boot_id,
             sample_period_us: parts.sample_period_us,
             storage: parts.storage,
             shedder: LoadShedder::new(parts.load_pin),
             detector: CutoffDetector::new(0),
             meter: Meter::new(),
-            trend: InputTrend::new(),
+            cutoff_forecast: CutoffForecaster::new(),
+            load_power: PowerAverage::new(),
+            output_power: PowerAverage::new(),
+            load_watch: LoadWatch::new(),
+            brownout_in_ms: None,
             interval: IntervalStats::default(),
             interval_start: None,
             stored_level_nj: 0,
             recent_output_uv: HistoryBuf::new(),
+            smoothed_output_uv: 0,
             boot_stored_level_nj: None,
             reset_baseline: EnergyTotals::default(),
             input_cutoff_in_ms: None,
@@ -170,6 +181,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             .iter()
             .fold(0u64, |acc, &v| acc.saturating_add(u64::from(v)));
         let smoothed = u32::try_from(sum.checked_div(count).unwrap_or(0)).unwrap_or(u32::MAX);
+        self.smoothed_output_uv = smoothed;
         self.stored_level_nj = storage_level_nj(self.config.output_storage_uf, smoothed);
         if self.boot_stored_level_nj.is_none() {
             self.boot_stored_level_nj = Some(self.stored_level_nj);
@@ -189,14 +201,12 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
         };
         if let Some(event) = self.detector.update(now_ms, &seen, &self.config.thresholds) {
             if event.to == CutoffState::ColdStart {
-                self.trend.clear();
+                self.cutoff_forecast.clear();
                 self.input_cutoff_in_ms = None;
             }
             self.enqueue(UplinkBody::Event(event));
         }
-        let in_state = now_ms.saturating_sub(self.detector.entered_ms());
-        self.shedder
-            .update(self.detector.state(), in_state, self.config.load_restore_ms);
+        self.watch_load(now_ms, &sample);
         self.add_to_burst(sample);
         self.close_interval_if_due(t_us);
     }
@@ -345,25 +355,16 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             self.stored_level_nj.saturating_sub(start.stored_level_nj)
         };
         let state = self.detector.state();
-        self.input_cutoff_in_ms = if matches!(state, CutoffState::Harvesting | CutoffState::Sagging)
-        {
-            self.trend.push(t_us / 1000, summary.input_uv.mean);
-            self.trend.time_to_reach(self.config.thresholds.hold_uv)
-        } else {
-            None
-        };
-        let load_nw = delivered_nj
-            .saturating_mul(1_000_000)
-            .checked_div(length_us)
-            .unwrap_or(0);
-        let storage_runout_in_ms = storage_runout_ms(
-            self.config.output_storage_uf,
-            self.last_sample.output_uv,
-            self.config.thresholds.output_down_uv,
-            load_nw,
+        let length_ms = length_us / 1000;
+        self.update_forecasts(
+            t_us / 1000,
+            length_us,
+            summary.input_uv.mean,
+            delivered_nj,
+            stored_nj,
         );
         let report = Report {
-            interval_ms: u32::try_from(length_us / 1000).unwrap_or(u32::MAX),
+            interval_ms: u32::try_from(length_ms).unwrap_or(u32::MAX),
             sample_count: summary.count,
             input_uv: summary.input_uv,
             input_na: summary.input_na,
@@ -375,13 +376,101 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             state,
             state_ms: summary.state_ms,
             input_cutoff_in_ms: self.input_cutoff_in_ms,
-            storage_runout_in_ms,
+            brownout_in_ms: self.brownout_in_ms,
+            load_nw: u64::try_from(self.load_power.mean_nw()).unwrap_or(0),
+            net_nw: self.net_nw(),
+            load_powered: self.load_watch.is_powered(),
             load_shed: self.shedder.is_shed(),
             flags: summary.flags,
         };
         self.enqueue(UplinkBody::Report(report));
         self.interval.restart();
         self.interval_start = Some(self.interval_marker(t_us));
+    }
+
+    /// Converter output less load power, both averaged, nW.
+    fn net_nw(&self) -> i64 {
+        self.output_power
+            .mean_nw()
+            .saturating_sub(self.load_power.mean_nw())
+    }
+
+    /// Watches the load's supply on every sample; a change is sent at once
+    /// and the load-shed decision revisited.
+    fn watch_load(&mut self, now_ms: u64, sample: &Sample) {
+        let converter = self.detector.state();
+        let Some((powered, cause)) =
+            self.load_watch
+                .update(sample.output_uv, converter, &self.config.thresholds)
+        else {
+            return;
+        };
+        let in_state = now_ms.saturating_sub(self.detector.entered_ms());
+        let event = LoadEvent {
+            powered,
+            cause,
+            output_uv: sample.output_uv,
+            input_uv: sample.input_uv,
+            converter,
+            converter_state_ms: u32::try_from(in_state).unwrap_or(u32::MAX),
+            net_nw: self.net_nw(),
+        };
+        self.enqueue(UplinkBody::Load(event));
+        self.revisit_load_shed(now_ms);
+    }
+
+    fn revisit_load_shed(&mut self, now_ms: u64) {
+        let risk = Risk::assess(
+            self.brownout_in_ms,
+            self.load_watch.is_powered(),
+            self.config.thresholds.brownout_horizon_ms,
+        );
+        self.shedder
+            .update(risk, now_ms, self.config.load_restore_ms);
+    }
+
+    /// Updates the averages and both forecasts at the end of an interval.
+    fn update_forecasts(
+        &mut self,
+        now_ms: u64,
+        length_us: u64,
+        input_uv: u32,
+        delivered_nj: u64,
+        stored_nj: i64,
+    ) {
+        let delivered = i64::try_from(delivered_nj).unwrap_or(i64::MAX);
+        self.load_power.push(delivered, length_us, LOAD_AVERAGE_MS);
+        self.output_power.push(
+            delivered.saturating_add(stored_nj),
+            length_us,
+            HARVEST_AVERAGE_MS,
+        );
+        let t = &self.config.thresholds;
+        let converting = matches!(
+            self.detector.state(),
+            CutoffState::Harvesting | CutoffState::Sagging
+        );
+        self.input_cutoff_in_ms = if converting {
+            self.cutoff_forecast.push(now_ms, input_uv);
+            self.cutoff_forecast.time_to_reach(t.hold_uv)
+        } else {
+            None
+        };
+        let c_uf = self.config.output_storage_uf;
+        self.brownout_in_ms = if c_uf == 0 || !self.load_watch.is_powered() {
+            None
+        } else {
+            let usable = storage_level_nj(c_uf, self.smoothed_output_uv)
+                .saturating_sub(storage_level_nj(c_uf, t.load_min_uv));
+            brownout_ms(&DrainOutlook {
+                usable_nj: usable,
+                load_nw: self.load_power.mean_nw(),
+                net_nw: self.net_nw(),
+                converting,
+                input_cutoff_in_ms: self.input_cutoff_in_ms,
+            })
+        };
+        self.revisit_load_shed(now_ms);
     }
 
     fn add_to_burst(&mut self, sample: Sample) {
@@ -458,9 +547,10 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
         let hello = Hello {
             protocol: PROTOCOL_VERSION,
             firmware: FIRMWARE_VERSION,
+            node_id: self.node_id,
             boot_id: self.boot_id,
             sample_period_us: self.sample_period_us,
-            config: self.config,
+            config: self.config.clone(),
             config_source: self.config_source,
             totals: self.totals(),
         };

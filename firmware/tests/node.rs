@@ -13,6 +13,7 @@ fn node<const N: usize>() -> TestNode<N> {
     Node::new(NodeParts {
         config: default_config(),
         config_source: ConfigSource::Defaults,
+        node_id: 0x0123_4567_89AB_CDEF,
         boot_id: 0xB007,
         sample_period_us: 10_000,
         load_pin: NoPin,
@@ -137,7 +138,7 @@ fn an_accepted_configuration_is_stored_and_announced() {
     let mut good = default_config();
     good.report_interval_ms = 5_000;
     assert_eq!(
-        command(&mut n, 2, Command::SetConfig(good)),
+        command(&mut n, 2, Command::SetConfig(good.clone())),
         Outcome::Accepted
     );
     assert_eq!(*n.config(), good);
@@ -388,11 +389,11 @@ proptest! {
         c.thresholds.debounce_ms = debounce;
         c.report_interval_ms = interval;
         c.calibration.adc_bits = bits;
-        let before = *n.config();
-        let outcome = command(&mut n, 1, Command::SetConfig(c));
+        let before = n.config().clone();
+        let outcome = command(&mut n, 1, Command::SetConfig(c.clone()));
         match gleaner_firmware::config::validate(&c) {
-            Ok(()) => { prop_assert_eq!(outcome, Outcome::Accepted); prop_assert_eq!(*n.config(), c); }
-            Err(reason) => { prop_assert_eq!(outcome, Outcome::Refused(reason)); prop_assert_eq!(*n.config(), before); }
+            Ok(()) => { prop_assert_eq!(outcome, Outcome::Accepted); prop_assert_eq!(n.config(), &c); }
+            Err(reason) => { prop_assert_eq!(outcome, Outcome::Refused(reason)); prop_assert_eq!(n.config(), &before); }
         }
     }
 }

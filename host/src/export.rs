@@ -18,10 +18,11 @@ pub const REPORT_COLUMNS: &str = "boot,seq,uptime_ms,host_time_us,interval_ms,sa
 input_uv_min,input_uv_mean,input_uv_max,input_na_min,input_na_mean,input_na_max,\
 output_uv_min,output_uv_mean,output_uv_max,output_na_min,output_na_mean,output_na_max,\
 drawn_nj,delivered_nj,stored_nj,state,idle_ms,cold_start_ms,harvesting_ms,sagging_ms,cut_off_ms,stalled_ms,\
-input_cutoff_in_ms,storage_runout_in_ms,load_shed,flags";
+input_cutoff_in_ms,brownout_in_ms,load_nw,net_nw,load_powered,load_shed,flags";
 
 /// Column names of the events file.
-pub const EVENT_COLUMNS: &str = "boot,seq,uptime_ms,host_time_us,from,to,cause,input_uv,output_uv";
+pub const EVENT_COLUMNS: &str =
+    "boot,seq,uptime_ms,host_time_us,from,to,cause,trigger_input_uv,trigger_output_uv,input_uv,output_uv";
 
 /// What an export wrote.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -85,7 +86,7 @@ pub fn export_csv(log: &Path, prefix: &Path) -> Result<Exported> {
                 let d = &r.state_ms;
                 writeln!(
                     reports_out,
-                    "{boot},{seq},{up},{host},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}",
+                    "{boot},{seq},{up},{host},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}",
                     r.interval_ms,
                     r.sample_count,
                     c(&r.input_uv),
@@ -103,7 +104,10 @@ pub fn export_csv(log: &Path, prefix: &Path) -> Result<Exported> {
                     d.cut_off_ms,
                     d.stalled_ms,
                     opt(r.input_cutoff_in_ms),
-                    opt(r.storage_runout_in_ms),
+                    opt(r.brownout_in_ms),
+                    r.load_nw,
+                    r.net_nw,
+                    u8::from(r.load_powered),
                     u8::from(r.load_shed),
                     r.flags.0
                 )?;
@@ -112,10 +116,12 @@ pub fn export_csv(log: &Path, prefix: &Path) -> Result<Exported> {
             UplinkBody::Event(e) => {
                 writeln!(
                     events_out,
-                    "{boot},{seq},{up},{host},{},{},{},{},{}",
+                    "{boot},{seq},{up},{host},{},{},{},{},{},{},{}",
                     e.from.name(),
                     e.to.name(),
                     e.cause.name(),
+                    e.trigger_input_uv,
+                    e.trigger_output_uv,
                     e.input_uv,
                     e.output_uv
                 )?;
@@ -167,7 +173,10 @@ struct ReportColumns {
     state: Vec<&'static str>,
     state_ms: [Vec<u32>; 6],
     input_cutoff_in_ms: Vec<Option<u32>>,
-    storage_runout_in_ms: Vec<Option<u32>>,
+    brownout_in_ms: Vec<Option<u32>>,
+    load_nw: Vec<u64>,
+    net_nw: Vec<i64>,
+    load_powered: Vec<bool>,
     load_shed: Vec<bool>,
     flags: Vec<u8>,
 }
@@ -220,7 +229,10 @@ fn report_schema() -> arrow_schema::SchemaRef {
             .map(|c| Field::new(*c, DataType::UInt32, false)),
     );
     fields.push(Field::new("input_cutoff_in_ms", DataType::UInt32, true));
-    fields.push(Field::new("storage_runout_in_ms", DataType::UInt32, true));
+    fields.push(Field::new("brownout_in_ms", DataType::UInt32, true));
+    fields.push(Field::new("load_nw", DataType::UInt64, false));
+    fields.push(Field::new("net_nw", DataType::Int64, false));
+    fields.push(Field::new("load_powered", DataType::Boolean, false));
     fields.push(Field::new("load_shed", DataType::Boolean, false));
     fields.push(Field::new("flags", DataType::UInt8, false));
     std::sync::Arc::new(Schema::new(fields))
@@ -255,7 +267,10 @@ impl ReportColumns {
             self.state_ms[i].push(r.state_ms.get(*s));
         }
         self.input_cutoff_in_ms.push(r.input_cutoff_in_ms);
-        self.storage_runout_in_ms.push(r.storage_runout_in_ms);
+        self.brownout_in_ms.push(r.brownout_in_ms);
+        self.load_nw.push(r.load_nw);
+        self.net_nw.push(r.net_nw);
+        self.load_powered.push(r.load_powered);
         self.load_shed.push(r.load_shed);
         self.flags.push(r.flags.0);
     }
@@ -287,7 +302,10 @@ impl ReportColumns {
                 .map(|v| Arc::new(UInt32Array::from(v)) as ArrayRef),
         );
         cols.push(Arc::new(UInt32Array::from(t.input_cutoff_in_ms)));
-        cols.push(Arc::new(UInt32Array::from(t.storage_runout_in_ms)));
+        cols.push(Arc::new(UInt32Array::from(t.brownout_in_ms)));
+        cols.push(Arc::new(UInt64Array::from(t.load_nw)));
+        cols.push(Arc::new(Int64Array::from(t.net_nw)));
+        cols.push(Arc::new(BooleanArray::from(t.load_powered)));
         cols.push(Arc::new(BooleanArray::from(t.load_shed)));
         cols.push(Arc::new(UInt8Array::from(t.flags)));
         Ok(RecordBatch::try_new(report_schema(), cols)?)
@@ -304,6 +322,8 @@ fn event_schema() -> arrow_schema::SchemaRef {
         Field::new("from", DataType::Utf8, false),
         Field::new("to", DataType::Utf8, false),
         Field::new("cause", DataType::Utf8, false),
+        Field::new("trigger_input_uv", DataType::UInt32, false),
+        Field::new("trigger_output_uv", DataType::UInt32, false),
         Field::new("input_uv", DataType::UInt32, false),
         Field::new("output_uv", DataType::UInt32, false),
     ]))
@@ -377,6 +397,18 @@ pub fn export_parquet(log: &Path, prefix: &Path) -> Result<ExportedParquet> {
             )),
             Arc::new(StringArray::from(
                 chunk.iter().map(|e| e.4.cause.name()).collect::<Vec<_>>(),
+            )),
+            Arc::new(UInt32Array::from(
+                chunk
+                    .iter()
+                    .map(|e| e.4.trigger_input_uv)
+                    .collect::<Vec<_>>(),
+            )),
+            Arc::new(UInt32Array::from(
+                chunk
+                    .iter()
+                    .map(|e| e.4.trigger_output_uv)
+                    .collect::<Vec<_>>(),
             )),
             Arc::new(UInt32Array::from(
                 chunk.iter().map(|e| e.4.input_uv).collect::<Vec<_>>(),

@@ -34,8 +34,16 @@ pub struct NodeSettings {
     pub input_idle_ua: Option<f64>,
     /// Output storage capacitance, µF (0: none).
     pub output_storage_uf: Option<u32>,
-    /// Time in Harvesting before shed load is restored, s.
+    /// Time with brown-out out of sight before shed load is restored, s.
     pub load_restore_s: Option<f64>,
+    /// The load's own minimum supply voltage (it browns out below), V.
+    pub load_min_v: Option<f64>,
+    /// Supply voltage at which a browned-out load starts again, V.
+    pub load_restart_v: Option<f64>,
+    /// Shed load when brown-out is forecast within this time, s.
+    pub brownout_horizon_s: Option<f64>,
+    /// The node's name (letters, digits, space and - _ . :).
+    pub name: Option<String>,
     /// The front-end, from which the calibration is computed.
     pub front_end: Option<FrontEndParams>,
     /// Two-point corrections of the node's present calibration, per channel.
@@ -153,7 +161,7 @@ impl NodeSettings {
     /// Applies the overrides to `base`. Unit and range errors name the field;
     /// the node itself checks the rules between fields.
     pub fn apply(&self, base: &NodeConfig) -> Result<NodeConfig> {
-        let mut c = *base;
+        let mut c = base.clone();
         let t = &mut c.thresholds;
         if let Some(v) = self.report_interval_ms {
             c.report_interval_ms = v;
@@ -193,6 +201,23 @@ impl NodeSettings {
         }
         if let Some(v) = self.load_restore_s {
             c.load_restore_ms = seconds_to_ms("load_restore_s", v)?;
+        }
+        if let Some(v) = self.load_min_v {
+            c.thresholds.load_min_uv = volts_to_uv("load_min_v", v)?;
+        }
+        if let Some(v) = self.load_restart_v {
+            c.thresholds.load_restart_uv = volts_to_uv("load_restart_v", v)?;
+        }
+        if let Some(v) = self.brownout_horizon_s {
+            c.thresholds.brownout_horizon_ms = seconds_to_ms("brownout_horizon_s", v)?;
+        }
+        if let Some(name) = &self.name {
+            c.name = gleaner_protocol::NodeName::try_from(name.as_str()).map_err(|_| {
+                anyhow::anyhow!(
+                    "name = {name:?} is longer than {} bytes",
+                    gleaner_protocol::NODE_NAME_LEN
+                )
+            })?;
         }
         if let Some(fe) = &self.front_end {
             if self.two_point.is_some() {

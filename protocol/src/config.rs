@@ -4,6 +4,13 @@
 use postcard::experimental::max_size::MaxSize;
 use serde::{Deserialize, Serialize};
 
+/// Longest node name, in bytes of UTF-8.
+pub const NODE_NAME_LEN: usize = 24;
+
+/// The human name a user gives a node ("greenhouse-3"), empty when unset.
+/// Which characters are allowed is checked on the node.
+pub type NodeName = heapless::String<NODE_NAME_LEN>;
+
 /// One of the four measured channels.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
@@ -92,7 +99,6 @@ pub struct Thresholds {
     /// Output at or above this: the converter is delivering.
     pub output_up_uv: u32,
     /// Output below this while the input is healthy: the converter has stalled.
-    /// Also the lowest useful storage voltage for the run-out forecast.
     pub output_down_uv: u32,
     /// A condition must hold this long before the state changes.
     pub debounce_ms: u32,
@@ -103,10 +109,16 @@ pub struct Thresholds {
     /// Input current below this means the converter is not drawing: stopped
     /// (input below start) or stalled (input healthy, output not up).
     pub input_idle_na: u32,
+    /// The load's own minimum supply voltage: below it the load browns out.
+    pub load_min_uv: u32,
+    /// Supply voltage at which a browned-out load starts again; above `load_min_uv`.
+    pub load_restart_uv: u32,
+    /// Shed non-essential load when brown-out is forecast within this time.
+    pub brownout_horizon_ms: u32,
 }
 
 /// Everything a node can be told to change, validated on the node.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct NodeConfig {
     /// Counts-to-units maps.
@@ -117,6 +129,8 @@ pub struct NodeConfig {
     pub report_interval_ms: u32,
     /// Storage capacitance on the output, 0 when there is none.
     pub output_storage_uf: u32,
-    /// Time in `Harvesting` before shed load is restored.
+    /// Time with brown-out out of sight before shed load is restored.
     pub load_restore_ms: u32,
+    /// The user's name for the node; empty when unset.
+    pub name: NodeName,
 }

@@ -36,3 +36,14 @@ pub enum Command {
         samples: u32,
     },
 }
+
+impl Command {
+    /// Short names of the commands, in wire order; their number is the number of kinds.
+    pub const KIND_NAMES: [&'static str; 5] = [
+        "ping",
+        "get-info",
+        "set-config",
+        "reset-energy",
+        "start-burst",
+    ];
+}

@@ -68,12 +68,12 @@ pub trait Message: DeserializeOwned {
 
 impl Message for Uplink {
     const FIELDS_BEFORE_KIND: usize = 2; // seq, uptime_ms
-    const KNOWN_KINDS: u64 = 5;
+    const KNOWN_KINDS: u64 = crate::UplinkBody::KIND_NAMES.len() as u64;
 }
 
 impl Message for Downlink {
     const FIELDS_BEFORE_KIND: usize = 1; // request_id
-    const KNOWN_KINDS: u64 = 5;
+    const KNOWN_KINDS: u64 = crate::Command::KIND_NAMES.len() as u64;
 }
 
 /// Reads one LEB128 varint of at most 10 bytes: `(value, bytes used)`.
@@ -92,6 +92,12 @@ fn read_varint(bytes: &[u8]) -> Option<(u64, usize)> {
 /// Decodes one frame given the bytes between two delimiters (without the
 /// delimiter). COBS is undone in place, so `encoded` is overwritten.
 pub fn decode_frame<T: Message>(encoded: &mut [u8]) -> Result<T, FrameError> {
+    parse_body(open_frame(encoded)?)
+}
+
+/// Undoes COBS in place and checks the CRC; returns the postcard bytes of
+/// the message (without the CRC).
+pub fn open_frame(encoded: &mut [u8]) -> Result<&[u8], FrameError> {
     let len = cobs::decode_in_place(encoded).map_err(|_| FrameError::Cobs)?;
     let decoded = encoded.get(..len).ok_or(FrameError::Cobs)?;
     let body_len = len.checked_sub(CRC_LEN).ok_or(FrameError::TooShort)?;
@@ -104,6 +110,11 @@ pub fn decode_frame<T: Message>(encoded: &mut [u8]) -> Result<T, FrameError> {
     if u32::from_le_bytes(sent) != frame_crc(body) {
         return Err(FrameError::Crc);
     }
+    Ok(body)
+}
+
+/// Parses the postcard bytes of one message, which must be used up exactly.
+pub fn parse_body<T: Message>(body: &[u8]) -> Result<T, FrameError> {
     match postcard::take_from_bytes::<T>(body) {
         Ok((message, [])) => Ok(message),
         Ok(_) => Err(FrameError::TrailingBytes),

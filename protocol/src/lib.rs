@@ -2,8 +2,8 @@
 //! node and the host.
 //!
 //! * [`Uplink`] messages go from the node to the host: [`Hello`], [`Report`],
-//!   [`Event`], [`SampleBlock`] and [`Reply`], each wrapped with a wrapping
-//!   sequence number and the node's uptime.
+//!   [`Event`], [`SampleBlock`], [`Reply`] and [`LoadEvent`],
+//!   each wrapped with a wrapping sequence number and the node's uptime.
 //! * [`Downlink`] messages go from the host to the node: a request id and a
 //!   [`Command`].
 //!
@@ -24,7 +24,12 @@
 //!   the end of an enum) bumps [`PROTOCOL_VERSION`]'s minor number;
 //! * any other change (a field added, removed or reordered, a variant moved)
 //!   bumps the major number. Hosts refuse a node whose major version differs
-//!   from their own ([`ProtocolVersion::check_compatible`]).
+//!   from their own ([`ProtocolVersion::check_compatible`]), but read recorded
+//!   protocol 1 frames through [`v1`].
+//!
+//! Protocol 2 (this crate) added the node's identity and name, the load's
+//! supply thresholds, load events, the brown-out forecast with averaged load
+//! and net power, and the trigger values of transitions.
 //!
 //! Golden-byte tests pin the encoding of every message kind.
 //!
@@ -67,20 +72,23 @@ mod downlink;
 mod error;
 mod frame;
 mod uplink;
+pub mod v1;
 mod version;
 
-pub use config::{Calibration, Channel, ChannelCal, NodeConfig, Thresholds};
+pub use config::{
+    Calibration, Channel, ChannelCal, NodeConfig, NodeName, Thresholds, NODE_NAME_LEN,
+};
 pub use decoder::{Decoder, DecoderStats, FrameSplitter};
 pub use downlink::{Command, Downlink, MAX_BURST_SAMPLES};
 pub use error::{EncodeError, FrameError};
 pub use frame::{
-    decode_frame, encode_frame, frame_crc, max_frame_len, Message, MAX_DOWNLINK_FRAME_LEN,
-    MAX_UPLINK_FRAME_LEN, MAX_UPLINK_PAYLOAD_LEN,
+    decode_frame, encode_frame, frame_crc, max_frame_len, open_frame, parse_body, Message,
+    MAX_DOWNLINK_FRAME_LEN, MAX_UPLINK_FRAME_LEN, MAX_UPLINK_PAYLOAD_LEN,
 };
 pub use uplink::{
-    ChannelStats, ConfigSource, CutoffState, EnergyTotals, Event, Hello, Outcome, Refusal, Reply,
-    Report, ReportFlags, Sample, SampleBlock, StateDurations, TransitionCause, Uplink, UplinkBody,
-    SAMPLES_PER_BLOCK,
+    ChannelStats, ConfigSource, CutoffState, EnergyTotals, Event, Hello, LoadCause, LoadEvent,
+    Outcome, Refusal, Reply, Report, ReportFlags, Sample, SampleBlock, StateDurations,
+    TransitionCause, Uplink, UplinkBody, SAMPLES_PER_BLOCK,
 };
 pub use version::{FirmwareVersion, ProtocolVersion, VersionMismatch, PROTOCOL_VERSION};
 

@@ -37,6 +37,34 @@ pub enum UplinkBody {
     Samples(SampleBlock),
     /// The answer to a host command.
     Reply(Reply),
+    /// The load lost or regained its supply (since protocol 2).
+    Load(LoadEvent),
+}
+
+impl UplinkBody {
+    /// Short names of the kinds, in wire order; their number is the number of kinds.
+    pub const KIND_NAMES: [&'static str; 6] =
+        ["hello", "report", "event", "samples", "reply", "load"];
+
+    /// Position of this message's kind in wire order (an index into [`Self::KIND_NAMES`]).
+    pub const fn kind_index(&self) -> usize {
+        match self {
+            UplinkBody::Hello(_) => 0,
+            UplinkBody::Report(_) => 1,
+            UplinkBody::Event(_) => 2,
+            UplinkBody::Samples(_) => 3,
+            UplinkBody::Reply(_) => 4,
+            UplinkBody::Load(_) => 5,
+        }
+    }
+
+    /// The short name of this message's kind.
+    pub fn kind_name(&self) -> &'static str {
+        match Self::KIND_NAMES.get(self.kind_index()) {
+            Some(name) => name,
+            None => "unknown",
+        }
+    }
 }
 
 /// Where the active configuration came from.
@@ -71,6 +99,8 @@ pub struct Hello {
     pub protocol: ProtocolVersion,
     /// Firmware version.
     pub firmware: FirmwareVersion,
+    /// Stable identity of the node (a factory id on hardware); 0 when unknown.
+    pub node_id: u64,
     /// Random or counter value that changes on every boot.
     pub boot_id: u32,
     /// Time between two samples.
@@ -184,9 +214,13 @@ pub struct Event {
     pub to: CutoffState,
     /// Why.
     pub cause: TransitionCause,
-    /// Input voltage at the transition.
+    /// Input voltage when the condition was first seen (what triggered it).
+    pub trigger_input_uv: u32,
+    /// Output voltage when the condition was first seen.
+    pub trigger_output_uv: u32,
+    /// Input voltage at switch-over, after the debounce.
     pub input_uv: u32,
-    /// Output voltage at the transition.
+    /// Output voltage at switch-over, after the debounce.
     pub output_uv: u32,
 }
 
@@ -318,10 +352,19 @@ pub struct Report {
     pub state: CutoffState,
     /// Time in each state during the interval.
     pub state_ms: StateDurations,
-    /// Forecast time until the input falls to the hold threshold.
+    /// Forecast time until the input falls to the hold threshold (the
+    /// converter stops); None when no cutoff is in sight.
     pub input_cutoff_in_ms: Option<u32>,
-    /// Time the output storage can carry the present load down to `output_down_uv`.
-    pub storage_runout_in_ms: Option<u32>,
+    /// Forecast time until the load browns out (storage down to the load's
+    /// minimum); None while storage is not expected to run out.
+    pub brownout_in_ms: Option<u32>,
+    /// The load's power averaged over its duty period.
+    pub load_nw: u64,
+    /// Converter output less load power, averaged like `load_nw`:
+    /// positive while storage charges, negative while it drains.
+    pub net_nw: i64,
+    /// True while the load has its supply (storage above the load's minimum).
+    pub load_powered: bool,
     /// True while non-essential load is shed.
     pub load_shed: bool,
     /// Clipping and range flags.
@@ -396,6 +439,10 @@ pub enum Refusal {
     StorageWriteFailed,
     /// The storage capacitance is above 1000 F.
     StorageCapacitanceOutOfRange,
+    /// The load's restart voltage is not above its minimum, or either is out of range.
+    LoadThresholdsOutOfRange,
+    /// The node name holds characters other than letters, digits, space and `-_.:`.
+    NodeNameInvalid,
 }
 
 impl Refusal {
@@ -418,6 +465,12 @@ impl Refusal {
             Refusal::BurstInProgress => "a burst is already running",
             Refusal::StorageWriteFailed => "the node could not store the configuration",
             Refusal::StorageCapacitanceOutOfRange => "storage capacitance must be at most 1000 F",
+            Refusal::LoadThresholdsOutOfRange => {
+                "the load's restart voltage must be above its minimum voltage, both at most 60 V"
+            }
+            Refusal::NodeNameInvalid => {
+                "the node name may hold only letters, digits, spaces and - _ . : (no leading or trailing space)"
+            }
         }
     }
 }
@@ -453,4 +506,50 @@ pub struct Reply {
     pub request_id: u16,
     /// What happened.
     pub outcome: Outcome,
+}
+
+/// Why the load lost (or regained) its supply. Append new variants at the end only.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum LoadCause {
+    /// The converter's input was cut off and storage then ran out.
+    InputCutOff,
+    /// The load drew more than the harvest supplied while the input was healthy.
+    LoadTooHeavy,
+    /// The converter stopped delivering with a healthy input (a fault).
+    ConverterFault,
+    /// The supply came back (only with `powered = true`).
+    SupplyRestored,
+}
+
+impl LoadCause {
+    /// A short lowercase name.
+    pub const fn name(self) -> &'static str {
+        match self {
+            LoadCause::InputCutOff => "input-cut-off",
+            LoadCause::LoadTooHeavy => "load-too-heavy",
+            LoadCause::ConverterFault => "converter-fault",
+            LoadCause::SupplyRestored => "supply-restored",
+        }
+    }
+}
+
+/// The load lost or regained its supply, sent at once.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct LoadEvent {
+    /// True when the supply came back, false when the load browned out.
+    pub powered: bool,
+    /// Why.
+    pub cause: LoadCause,
+    /// Output (storage) voltage when the condition was first seen.
+    pub output_uv: u32,
+    /// Input voltage at the same moment.
+    pub input_uv: u32,
+    /// The converter's state at the same moment.
+    pub converter: CutoffState,
+    /// How long the converter had been in that state.
+    pub converter_state_ms: u32,
+    /// Net power (converter output less load) averaged as in [`Report::net_nw`].
+    pub net_nw: i64,
 }

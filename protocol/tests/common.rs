@@ -34,10 +34,14 @@ pub fn example_config() -> NodeConfig {
             cold_start_timeout_ms: 10_000,
             forecast_horizon_ms: 60_000,
             input_idle_na: 2_000,
+            load_min_uv: 1_800_000,
+            load_restart_uv: 2_000_000,
+            brownout_horizon_ms: 1_800_000,
         },
         report_interval_ms: 1_000,
         output_storage_uf: 100_000,
         load_restore_ms: 30_000,
+        name: NodeName::try_from("greenhouse-3").unwrap(),
     }
 }
 
@@ -52,6 +56,7 @@ pub fn example_hello() -> Uplink {
                 minor: 1,
                 patch: 0,
             },
+            node_id: 0x0123_4567_89AB_CDEF,
             boot_id: 0xC0FF_EE01,
             sample_period_us: 10_000,
             config: example_config(),
@@ -86,7 +91,10 @@ pub fn example_report() -> Uplink {
                 ..StateDurations::default()
             },
             input_cutoff_in_ms: None,
-            storage_runout_in_ms: Some(5_400_000),
+            brownout_in_ms: Some(5_400_000),
+            load_nw: 825_000,
+            net_nw: 10_000,
+            load_powered: true,
             load_shed: false,
             flags: ReportFlags::default(),
         }),
@@ -101,8 +109,27 @@ pub fn example_event() -> Uplink {
             from: CutoffState::Harvesting,
             to: CutoffState::CutOff,
             cause: TransitionCause::InputBelowHold,
+            trigger_input_uv: 699_000,
+            trigger_output_uv: 3_200_000,
             input_uv: 690_000,
             output_uv: 3_100_000,
+        }),
+    }
+}
+
+/// The load browned out 31 minutes after the input was cut off.
+pub fn example_load_event() -> Uplink {
+    Uplink {
+        seq: 4_400,
+        uptime_ms: 5_460_250,
+        body: UplinkBody::Load(LoadEvent {
+            powered: false,
+            cause: LoadCause::InputCutOff,
+            output_uv: 1_799_000,
+            input_uv: 310_000,
+            converter: CutoffState::CutOff,
+            converter_state_ms: 1_860_000,
+            net_nw: -97_000,
         }),
     }
 }

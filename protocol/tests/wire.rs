@@ -21,7 +21,18 @@ fn decode_all(bytes: &[u8]) -> (Vec<Result<Uplink, FrameError>>, DecoderStats) {
 
 // Golden bytes: an accidental change of the wire format fails here. Regenerate
 // only with a deliberate protocol version bump.
-const GOLDEN: [(&str, &str); 5] = [
+const GOLDEN: [(&str, &str); 6] = [
+    ("hello", "01020c020201020117ef9bafcdf8acd1910181dcff870c904e0c80c0ea92030c8080d2f83e178080d5a5064c8080d5a5060680ea30e0dc2ad0860380897a80d461c801904ee0d403d00fc0ee6d80897ac0ee6de807a08d06b0ea010c677265656e686f7573652d3301959aef3af8948c2fa313f51ce0c600"),
+    ("report", "34e12180dddb0101e80764809f49a09c019875c0843dd08603c0b802a0b5c901904ee80790a10fd0e20ef0f0e401809f49a8ad3202020103e8070101010d01c0cbc902a8ad32a09c010101054d312ce800"),
+    ("event", "1de221fadedb0102020404f8d42a80a8c301d08e2ae09abd01399c8f8a00"),
+    ("samples", "050788270372e007e80708809f49c0843da0b5c90190a10fa0a549c0843da0b5c90190a10fc0ab49c0843da0b5c90190a10fe0b149c0843da0b5c90190a10f80b849c0843da0b5c90190a10fa0be49c0843da0b5c90190a10fc0c449c0843da0b5c90190a10fe0ca49c0843da0b5c90190a10fc57926e800"),
+    ("reply", "0709ec27044d0205065985df00"),
+    ("load", "08b0229aa2cd02050112d8e66df0f51204a0c371cfeb0baa39fdf500"),
+];
+
+// Protocol 1's golden bytes of the same messages (as protocol 1 had them):
+// still read, through `v1::decode_uplink_any`.
+const GOLDEN_V1: [(&str, &str); 5] = [
     ("hello", "01020c02010102010e81dcff870c904e0c80c0ea92030c8080d2f83e178080d5a506368080d5a5060680ea30e0dc2ad0860380897a80d461c801904ee0d403d00fe807a08d06b0ea0101959aef3af8948c2fa3135d55ec7100"),
     ("report", "34e12180dddb0101e80764809f49a09c019875c0843dd08603c0b802a0b5c901904ee80790a10fd0e20ef0f0e401809f49a8ad3202020103e8070101010601c0cbc90201054ec8586c00"),
     ("event", "16e221fadedb0102020404d08e2ae09abd011b3bf67900"),
@@ -37,10 +48,62 @@ fn golden_bytes_of_every_uplink_kind() {
         example_event(),
         example_samples(8),
         example_reply(),
+        example_load_event(),
     ];
+    assert_eq!(messages.len(), UplinkBody::KIND_NAMES.len());
+    let mut wrong = Vec::new();
     for ((name, expected), message) in GOLDEN.iter().zip(&messages) {
-        assert_eq!(hex(&frame_of(message)), *expected, "{name}");
+        assert_eq!(message.body.kind_name(), *name);
+        let got = hex(&frame_of(message));
+        if got != *expected {
+            wrong.push(format!("    (\"{name}\", \"{got}\"),"));
+        }
     }
+    assert!(
+        wrong.is_empty(),
+        "golden bytes differ; now:\n{}",
+        wrong.join("\n")
+    );
+}
+
+#[test]
+fn protocol_1_frames_are_still_read() {
+    let mut decoded = Vec::new();
+    for (name, golden) in GOLDEN_V1 {
+        let mut bytes: Vec<u8> = (0..golden.len() - 2)
+            .step_by(2)
+            .map(|i| u8::from_str_radix(&golden[i..i + 2], 16).unwrap())
+            .collect();
+        // A log knows its boot's protocol from the boot's Hello.
+        let (message, major) = v1::decode_uplink_any(&mut bytes, Some(1)).unwrap();
+        assert_eq!((major, message.body.kind_name()), (1, name));
+        decoded.push(message);
+    }
+    let UplinkBody::Hello(hello) = &decoded[0].body else {
+        panic!("a hello")
+    };
+    assert_eq!((hello.node_id, hello.boot_id), (0, 0xC0FF_EE01));
+    assert_eq!(hello.protocol.major, 1);
+    // Protocol 1 counted its storage forecast down to output_down: that stands
+    // in for the load's minimum.
+    assert_eq!(hello.config.thresholds.load_min_uv, 1_600_000);
+    let UplinkBody::Report(report) = &decoded[1].body else {
+        panic!("a report")
+    };
+    assert_eq!(report.brownout_in_ms, Some(5_400_000));
+    // 825,000 nJ over 1 s: 825 µW.
+    assert_eq!(report.load_nw, 825_000);
+    let UplinkBody::Event(event) = &decoded[2].body else {
+        panic!("an event")
+    };
+    assert_eq!((event.trigger_input_uv, event.input_uv), (690_000, 690_000));
+    assert_eq!(decoded[3], example_samples(8));
+    assert_eq!(decoded[4], example_reply());
+    // A current frame is read as the current protocol.
+    let mut frame = frame_of(&example_hello());
+    frame.pop();
+    let (message, major) = v1::decode_uplink_any(&mut frame, None).unwrap();
+    assert_eq!((major, message), (PROTOCOL_VERSION.major, example_hello()));
 }
 
 #[test]
@@ -56,7 +119,7 @@ fn golden_bytes_of_downlinks() {
     };
     assert_eq!(
         hex(&frame_of(&set)),
-        "0905020c80c0ea92030c8080d2f83e178080d5a5062b8080d5a5060680ea30e0dc2ad0860380897a80d461c801904ee0d403d00fe807a08d06b0ea01a846dcd000"
+        "0905020c80c0ea92030c8080d2f83e178080d5a506418080d5a5060680ea30e0dc2ad0860380897a80d461c801904ee0d403d00fc0ee6d80897ac0ee6de807a08d06b0ea010c677265656e686f7573652d33dda5f7ca00"
     );
 }
 
@@ -217,7 +280,7 @@ fn wire_sizes_of_typical_messages() {
     let report = frame_of(&example_report()).len();
     let samples = frame_of(&example_samples(8)).len();
     let hello = frame_of(&example_hello()).len();
-    assert_eq!((report, samples, hello), (74, 120, 89));
+    assert_eq!((report, samples, hello), (81, 120, 120));
     assert!(
         samples as f64 / 8.0 <= 16.0,
         "a four-channel sample costs at most 16 bytes on the wire"
@@ -282,9 +345,9 @@ fn unknown_variants_are_named_as_such() {
 
 #[test]
 fn version_rule() {
-    assert!(ProtocolVersion::check_compatible(ProtocolVersion { major: 1, minor: 9 }).is_ok());
+    assert!(ProtocolVersion::check_compatible(ProtocolVersion { major: 2, minor: 9 }).is_ok());
     let err =
-        ProtocolVersion::check_compatible(ProtocolVersion { major: 2, minor: 0 }).unwrap_err();
+        ProtocolVersion::check_compatible(ProtocolVersion { major: 1, minor: 0 }).unwrap_err();
     let text = err.to_string();
     assert!(text.contains("2.0") && text.contains("1.0"), "{text}");
 }
@@ -353,7 +416,10 @@ fn any_uplink() -> impl Strategy<Value = Uplink> {
                         stalled_ms: ms[5],
                     },
                     input_cutoff_in_ms: f1,
-                    storage_runout_in_ms: f2,
+                    brownout_in_ms: f2,
+                    load_nw: u64::from(f1.unwrap_or(7)),
+                    net_nw: -i64::from(f2.unwrap_or(3)),
+                    load_powered: !shed,
                     load_shed: shed,
                     flags: ReportFlags(flags),
                 })
@@ -383,6 +449,8 @@ fn any_uplink() -> impl Strategy<Value = Uplink> {
                 from,
                 to,
                 cause: causes[c],
+                trigger_input_uv: output_uv,
+                trigger_output_uv: input_uv,
                 input_uv,
                 output_uv,
             })

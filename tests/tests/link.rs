@@ -29,6 +29,7 @@ fn hello(boot_id: u32, uptime_ms: u64) -> Uplink {
         body: UplinkBody::Hello(Hello {
             protocol: PROTOCOL_VERSION,
             firmware: gleaner_firmware::FIRMWARE_VERSION,
+            node_id: 0x7E57_0000_0000_0001,
             boot_id,
             sample_period_us: 10_000,
             config: gleaner_firmware::config::default_config(),
@@ -58,7 +59,10 @@ fn report(seq: u16, uptime_ms: u64, input_uv: u32, state: CutoffState) -> Uplink
                 ..Default::default()
             },
             input_cutoff_in_ms: Some(42_000),
-            storage_runout_in_ms: None,
+            brownout_in_ms: None,
+            load_nw: 0,
+            net_nw: 0,
+            load_powered: true,
             load_shed: false,
             flags: ReportFlags::default(),
         }),
@@ -297,8 +301,9 @@ fn device_commands_work_and_a_refusal_shows_the_reason() {
         .hello
         .as_ref()
         .expect("GetInfo brings a Hello")
-        .config;
-    let good = config;
+        .config
+        .clone();
+    let good = config.clone();
     config.thresholds.hold_uv = config.thresholds.start_uv;
     assert_eq!(
         session
@@ -399,7 +404,7 @@ fn a_protocol_major_mismatch_stops_with_both_versions() {
     let err = run_port(&mut recorder, &path, 115_200, &stop, &mut observer)
         .unwrap_err()
         .to_string();
-    assert!(err.contains("9.1") && err.contains("1.0"), "{err}");
+    assert!(err.contains("9.1") && err.contains("2.0"), "{err}");
 }
 
 #[test]

@@ -36,6 +36,8 @@ fn message(i: u32) -> Uplink {
             from: CutoffState::Harvesting,
             to: CutoffState::Sagging,
             cause: TransitionCause::InputNearHold,
+            trigger_input_uv: 0,
+            trigger_output_uv: 0,
             input_uv: 700_000 + i,
             output_uv: 3_000_000,
         }),
@@ -55,7 +57,10 @@ fn message(i: u32) -> Uplink {
                 ..Default::default()
             },
             input_cutoff_in_ms: None,
-            storage_runout_in_ms: None,
+            brownout_in_ms: None,
+            load_nw: 0,
+            net_nw: 0,
+            load_powered: true,
             load_shed: false,
             flags: ReportFlags::default(),
         }),
@@ -85,13 +90,16 @@ fn run(frames: u32, seed: u64) {
         let boundary_ok = stream.last().is_none_or(|&b| b == 0);
         let mut frame = encode_frame(&message(i), &mut buf).unwrap().to_vec();
         let mut damaged = false;
+        // Damage falls inside the frame: a lost delimiter followed by garbage
+        // that happens to start with 0x00 would arrive intact after all.
+        let body_len = frame.len() as u64 - 1;
         if rng.below(100) == 0 {
-            let at = rng.below(frame.len() as u64) as usize;
+            let at = rng.below(body_len) as usize;
             frame[at] ^= 1 << rng.below(8);
             damaged = true;
         }
         if rng.below(200) == 0 {
-            let at = rng.below(frame.len() as u64) as usize;
+            let at = rng.below(body_len) as usize;
             frame.remove(at);
             damaged = true;
         }

@@ -209,3 +209,48 @@ fn parquet_export_reads_back_with_the_report_totals() {
     assert!((cut_ms as f64 / 1e3 - cut_s).abs() < 1e-6);
     assert_eq!(done.events as usize, report.transitions.len());
 }
+
+/// Every field of `old` is in `new` with the same value (fields added since
+/// are allowed).
+fn old_fields_unchanged(old: &serde_json::Value, new: &serde_json::Value, path: &str) {
+    match (old, new) {
+        (serde_json::Value::Object(o), serde_json::Value::Object(n)) => {
+            for (k, v) in o {
+                let field = n.get(k).unwrap_or_else(|| panic!("{path}.{k} is gone"));
+                old_fields_unchanged(v, field, &format!("{path}.{k}"));
+            }
+        }
+        (serde_json::Value::Array(o), serde_json::Value::Array(n)) => {
+            assert_eq!(o.len(), n.len(), "{path} length");
+            for (i, (a, b)) in o.iter().zip(n).enumerate() {
+                old_fields_unchanged(a, b, &format!("{path}[{i}]"));
+            }
+        }
+        (serde_json::Value::Number(a), serde_json::Value::Number(b)) => {
+            let (a, b) = (a.as_f64().unwrap(), b.as_f64().unwrap());
+            assert!(
+                (a - b).abs() <= 1e-12 * a.abs().max(b.abs()),
+                "{path}: {a} vs {b}"
+            );
+        }
+        _ => assert_eq!(old, new, "{path}"),
+    }
+}
+
+#[test]
+fn a_protocol_1_log_reports_as_it_did() {
+    // The log and its JSON report were made by the protocol 1 build of this
+    // tool (invented orchard-night scenario, 1.5 h); the report of today's
+    // build keeps every figure, and says the node is unknown.
+    let dir = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("data");
+    let report = analyze_file(&dir.join("protocol1-orchard-night.glog")).unwrap();
+    let new = serde_json::to_value(&report).unwrap();
+    let old: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(dir.join("protocol1-orchard-night.report.json")).unwrap(),
+    )
+    .unwrap();
+    old_fields_unchanged(&old, &new, "");
+    assert_eq!(report.boots[0].node_id, "0000000000000000");
+    assert_eq!(report.boots[0].protocol, "1.0");
+    assert!(report.load_outages.is_empty());
+}

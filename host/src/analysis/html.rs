@@ -229,14 +229,26 @@ pub fn render(r: &RunReport) -> Result<String, Box<dyn std::error::Error>> {
             svg
         );
     }
-    page.push_str("<h2>Outages</h2>\n<table><tr><th>start</th><th>duration</th><th>cause</th><th>input before</th><th>storage before</th></tr>\n");
+    page.push_str("<h2>Load outages</h2>\n<table><tr><th>start</th><th>duration</th><th>cause</th><th>what happened</th></tr>\n");
+    for o in &r.load_outages {
+        let _ = writeln!(
+            page,
+            "<tr><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
+            duration(o.start_s),
+            duration(o.duration_s),
+            escape(&o.cause),
+            escape(&o.chain)
+        );
+    }
+    page.push_str("</table>\n");
+    page.push_str("<h2>Converter outages</h2>\n<table><tr><th>start</th><th>duration</th><th>cause</th><th>input before</th><th>storage before</th></tr>\n");
     for o in &r.outages {
         let _ = writeln!(
             page,
-            "<tr><td>{}</td><td>{}</td><td>{:?}</td><td>{:.3} V</td><td>{:.3} V</td></tr>",
+            "<tr><td>{}</td><td>{}</td><td>{}</td><td>{:.3} V</td><td>{:.3} V</td></tr>",
             duration(o.start_s),
             duration(o.duration_s),
-            o.cause,
+            o.cause.words(),
             o.input_v_before,
             o.storage_v_before
         );

@@ -7,6 +7,7 @@
 //! ([`REPORT_SCHEMA`]) or an HTML page with SVG plots.
 
 pub mod html;
+pub mod load_outages;
 pub mod series;
 pub mod sizing;
 pub mod text;
@@ -19,6 +20,7 @@ use serde::Serialize;
 
 use crate::link::{LinkStats, LinkTracker, Tracked};
 use crate::log::{LogHeader, MarkerKind, Record, RecordBody};
+use load_outages::{LoadOutage, LoadOutages};
 use series::{Sample, Series};
 use sizing::{advise, Figures, SizingAdvice, DEFAULT_MARGIN};
 
@@ -33,6 +35,11 @@ pub const EFFICIENCY_BIN_V: f64 = 0.05;
 pub struct BootInfo {
     /// 0 for the first boot in the log.
     pub index: u32,
+    /// The node's stable id, 16 hex digits ("0000000000000000": not known,
+    /// as in protocol 1 logs).
+    pub node_id: String,
+    /// The user's name for the node (empty when unset).
+    pub node_name: String,
     /// The node's boot id.
     pub boot_id: u32,
     /// Firmware version.
@@ -47,6 +54,8 @@ pub struct BootInfo {
     pub hold_v: f64,
     /// Output-down threshold (lowest useful storage voltage), V.
     pub output_down_v: f64,
+    /// The load's minimum supply voltage (brown-out), V.
+    pub load_min_v: f64,
     /// Report interval, s.
     pub report_interval_s: f64,
     /// Output storage, F.
@@ -72,6 +81,16 @@ pub enum OutageCause {
     StarvedOfInput,
     /// The converter stopped with healthy input (`Stalled`).
     ConverterFault,
+}
+
+impl OutageCause {
+    /// The cause in words, the same in every output.
+    pub const fn words(self) -> &'static str {
+        match self {
+            OutageCause::StarvedOfInput => "starved of input",
+            OutageCause::ConverterFault => "converter fault",
+        }
+    }
 }
 
 /// One outage.
@@ -177,8 +196,10 @@ pub struct RunReport {
     pub recording_gaps: u32,
     /// Time in each state.
     pub states: Vec<StateShare>,
-    /// Every outage.
+    /// Every outage of the converter.
     pub outages: Vec<Outage>,
+    /// Every time the load itself lost power, with the cause chain.
+    pub load_outages: Vec<LoadOutage>,
     /// Energy totals.
     pub energy: EnergyTotals,
     /// Efficiency by input voltage.
@@ -214,7 +235,7 @@ impl RunReport {
 const MAX_TRANSITIONS: usize = 10_000;
 
 /// Names of the message kinds, in wire order, for `message_counts`.
-const MESSAGE_KINDS: [&str; 5] = ["hello", "report", "event", "samples", "reply"];
+const MESSAGE_KINDS: [&str; UplinkBody::KIND_NAMES.len()] = UplinkBody::KIND_NAMES;
 
 #[derive(Debug, Clone, Default)]
 struct Bin {
@@ -254,6 +275,7 @@ pub struct Analyzer {
     state: Option<CutoffState>,
     open_outage: Option<Outage>,
     outages: Vec<Outage>,
+    load_outages: LoadOutages,
     last_input_v: f64,
     last_output_v: f64,
     max_output_v: f64,
@@ -263,7 +285,7 @@ pub struct Analyzer {
     supplied_delivered_j: f64,
     transitions: Vec<Transition>,
     transitions_not_listed: u64,
-    counts: [u64; 5],
+    counts: [u64; MESSAGE_KINDS.len()],
     series: Series,
     warnings: Vec<String>,
 }
@@ -305,6 +327,7 @@ impl Analyzer {
             state: None,
             open_outage: None,
             outages: Vec::new(),
+            load_outages: LoadOutages::new(),
             last_input_v: 0.0,
             last_output_v: 0.0,
             max_output_v: 0.0,
@@ -314,7 +337,7 @@ impl Analyzer {
             supplied_delivered_j: 0.0,
             transitions: Vec::new(),
             transitions_not_listed: 0,
-            counts: [0; 5],
+            counts: [0; MESSAGE_KINDS.len()],
             series: Series::new(),
             warnings: Vec::new(),
         }
@@ -376,6 +399,7 @@ impl Analyzer {
                 let host_gap_s = host_time_us.saturating_sub(self.last_host_us) as f64 / 1e6;
                 self.boot_base_s = self.last_t_s + (host_gap_s - uptime_s).max(0.0) - uptime_s;
                 self.close_outage_at(self.last_t_s, false);
+                self.load_outages.close_at(self.last_t_s, false);
                 self.state = None;
             }
             self.current_boot = Some(tracked.boot_index);
@@ -383,29 +407,25 @@ impl Analyzer {
         let t_s = self.boot_base_s + uptime_s;
         self.last_t_s = self.last_t_s.max(t_s);
         self.last_host_us = host_time_us;
-        let kind = match &tracked.message.body {
-            UplinkBody::Hello(h) => {
-                self.add_hello(tracked.boot_index, h);
-                0
-            }
-            UplinkBody::Report(r) => {
-                self.add_report(t_s, r);
-                1
-            }
-            UplinkBody::Event(e) => {
-                self.add_event(t_s, e);
-                2
-            }
-            UplinkBody::Samples(_) => 3,
-            UplinkBody::Reply(_) => 4,
-        };
-        self.counts[kind] += 1;
+        let body = &tracked.message.body;
+        match body {
+            UplinkBody::Hello(h) => self.add_hello(tracked.boot_index, h),
+            UplinkBody::Report(r) => self.add_report(t_s, r),
+            UplinkBody::Event(e) => self.add_event(t_s, e),
+            UplinkBody::Load(e) => self.load_outages.push(t_s, e),
+            UplinkBody::Samples(_) | UplinkBody::Reply(_) => {}
+        }
+        if let Some(count) = self.counts.get_mut(body.kind_index()) {
+            *count += 1;
+        }
     }
 
     fn add_hello(&mut self, index: u32, h: &Hello) {
         let t = &h.config.thresholds;
         let info = BootInfo {
             index,
+            node_id: format!("{:016x}", h.node_id),
+            node_name: h.config.name.to_string(),
             boot_id: h.boot_id,
             firmware: h.firmware.to_string(),
             protocol: h.protocol.to_string(),
@@ -413,6 +433,7 @@ impl Analyzer {
             start_v: f64::from(t.start_uv) / 1e6,
             hold_v: f64::from(t.hold_uv) / 1e6,
             output_down_v: f64::from(t.output_down_uv) / 1e6,
+            load_min_v: f64::from(t.load_min_uv) / 1e6,
             report_interval_s: f64::from(h.config.report_interval_ms) / 1e3,
             storage_f: f64::from(h.config.output_storage_uf) / 1e6,
         };
@@ -554,6 +575,7 @@ impl Analyzer {
     pub fn finish(mut self) -> RunReport {
         let end = self.last_t_s;
         self.close_outage_at(end, true);
+        let load_outages = std::mem::take(&mut self.load_outages).finish(end);
         let first = self.first_t_s.unwrap_or(end);
         let duration_s = (end - first).max(0.0);
         let covered: f64 = self.state_s.iter().sum::<f64>().max(self.covered_s);
@@ -629,7 +651,7 @@ impl Analyzer {
             } else {
                 0.0
             };
-            let v_min = f64::from(hello.config.thresholds.output_down_uv) / 1e6;
+            let v_min = f64::from(hello.config.thresholds.load_min_uv) / 1e6;
             advise(Figures {
                 outage_s: longest,
                 load_w,
@@ -662,6 +684,7 @@ impl Analyzer {
             recording_gaps: self.gaps,
             states,
             outages: self.outages,
+            load_outages,
             energy,
             efficiency_by_input,
             days,

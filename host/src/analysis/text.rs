@@ -2,7 +2,7 @@
 
 use std::fmt::Write;
 
-use super::{OutageCause, RunReport};
+use super::RunReport;
 
 /// Formats seconds as `1d 02:03:04`, `02:03:04` or `12.3 s`.
 pub fn duration(seconds: f64) -> String {
@@ -24,6 +24,38 @@ pub fn duration(seconds: f64) -> String {
     } else {
         format!("{h:02}:{m:02}:{s:02}")
     }
+}
+
+/// The load's outages, each with its cause chain.
+fn write_load_outages(o: &mut String, r: &RunReport) -> std::fmt::Result {
+    writeln!(o, "LOAD OUTAGES ({})", r.load_outages.len())?;
+    if r.load_outages.is_empty() {
+        writeln!(o, "  none: the load kept its supply throughout")?;
+    }
+    for (i, out) in r.load_outages.iter().enumerate().take(50) {
+        writeln!(
+            o,
+            "  {:>2}. at {:>11} for {:>11}  {:<15} {}{}",
+            i + 1,
+            duration(out.start_s),
+            duration(out.duration_s),
+            out.cause,
+            out.chain,
+            if out.ongoing {
+                "; ongoing at end of log"
+            } else {
+                ""
+            }
+        )?;
+    }
+    if r.load_outages.len() > 50 {
+        writeln!(
+            o,
+            "  ... and {} more (see --json)",
+            r.load_outages.len() - 50
+        )?;
+    }
+    writeln!(o)
 }
 
 /// Formats joules with a fitting prefix.
@@ -73,8 +105,18 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
     for b in &r.boots {
         writeln!(
             o,
-            "  boot {}       id {:08x}, firmware {}, protocol {}, config {} (start {:.3} V, hold {:.3} V, storage {} F)",
-            b.index, b.boot_id, b.firmware, b.protocol, b.config_source, b.start_v, b.hold_v, b.storage_f
+            "  boot {}       node {}{}, id {:08x}, firmware {}, protocol {}, config {} (start {:.3} V, hold {:.3} V, load minimum {:.3} V, storage {} F)",
+            b.index,
+            b.node_id,
+            if b.node_name.is_empty() { String::new() } else { format!(" \"{}\"", b.node_name) },
+            b.boot_id,
+            b.firmware,
+            b.protocol,
+            b.config_source,
+            b.start_v,
+            b.hold_v,
+            b.load_min_v,
+            b.storage_f
         )?;
     }
     writeln!(o, "  duration     {}", duration(r.duration_s))?;
@@ -112,15 +154,13 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
         )?;
     }
     writeln!(o)?;
-    writeln!(o, "OUTAGES ({})", r.outages.len())?;
+    write_load_outages(o, r)?;
+    writeln!(o, "CONVERTER OUTAGES ({})", r.outages.len())?;
     if r.outages.is_empty() {
-        writeln!(o, "  none: the load was supplied throughout")?;
+        writeln!(o, "  none: the converter ran throughout")?;
     }
     for (i, out) in r.outages.iter().enumerate().take(50) {
-        let cause = match out.cause {
-            OutageCause::StarvedOfInput => "starved of input",
-            OutageCause::ConverterFault => "converter fault",
-        };
+        let cause = out.cause.words();
         writeln!(
             o,
             "  {:>2}. at {:>11} for {:>11}  {:<17} ({}); input {:.3} V, storage {:.3} V before{}",

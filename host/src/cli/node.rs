@@ -248,7 +248,8 @@ impl Cmd {
                     .hello
                     .as_ref()
                     .context("the node sent no Hello")?
-                    .config;
+                    .config
+                    .clone();
                 let config = settings.apply(&current)?;
                 explain(session.request(Command::SetConfig(config), Duration::ZERO)?)?;
                 println!("configuration accepted and stored");

@@ -3,7 +3,7 @@
 //! framing errors with nothing good is most likely a wrong baud rate.
 
 use gleaner_protocol::{
-    decode_frame, FrameError, ProtocolVersion, Uplink, UplinkBody, VersionMismatch,
+    v1, FrameError, ProtocolVersion, Uplink, UplinkBody, VersionMismatch, PROTOCOL_VERSION,
 };
 use serde::Serialize;
 
@@ -60,12 +60,25 @@ pub struct LinkTracker {
     boot_index: Option<u32>,
     last_seq: Option<u16>,
     last_uptime_ms: u64,
+    /// The major protocol version of the present boot, from its `Hello`.
+    boot_major: Option<u8>,
 }
 
 impl LinkTracker {
     /// A tracker that has seen nothing.
     pub fn new() -> Self {
         Self::default()
+    }
+
+    /// The major protocol version the node of the present boot speaks, once
+    /// its `Hello` was seen (commands need it to be [`PROTOCOL_VERSION`]'s).
+    pub fn boot_major(&self) -> Option<u8> {
+        self.boot_major
+    }
+
+    /// True when commands can be sent to the node of the present boot.
+    pub fn speaks_current_protocol(&self) -> bool {
+        self.boot_major.is_none_or(|m| m == PROTOCOL_VERSION.major)
     }
 
     /// The counters so far.
@@ -82,8 +95,8 @@ impl LinkTracker {
 
     /// As [`Self::accept_encoded`], decoding in place (the bytes are overwritten).
     pub fn accept_in_place(&mut self, encoded: &mut [u8]) -> Result<Option<Tracked>, TrackError> {
-        match decode_frame::<Uplink>(encoded) {
-            Ok(message) => self.accept(message),
+        match v1::decode_uplink_any(encoded, self.boot_major) {
+            Ok((message, _)) => self.accept(message),
             Err(error) => {
                 self.count_error(error);
                 Err(TrackError::Frame(error))
@@ -106,7 +119,11 @@ impl LinkTracker {
     pub fn accept(&mut self, message: Uplink) -> Result<Option<Tracked>, TrackError> {
         let mut reboot = false;
         if let UplinkBody::Hello(hello) = &message.body {
-            ProtocolVersion::check_compatible(hello.protocol).map_err(TrackError::Version)?;
+            // Protocol 1 is still read (converted); any other major must match ours.
+            if hello.protocol.major != 1 {
+                ProtocolVersion::check_compatible(hello.protocol).map_err(TrackError::Version)?;
+            }
+            self.boot_major = Some(hello.protocol.major);
             if self.boot_id.is_some_and(|id| id != hello.boot_id) {
                 reboot = true;
             }

@@ -62,6 +62,7 @@ pub struct VirtualNode {
     truth: GroundTruth,
     last: Option<StepOutcome>,
     load_powered: bool,
+    shed_pin_wired: bool,
 }
 
 impl VirtualNode {
@@ -72,6 +73,7 @@ impl VirtualNode {
         let node = Node::new(NodeParts {
             config,
             config_source: ConfigSource::Stored,
+            node_id: scenario.node_id(),
             boot_id,
             sample_period_us: scenario.sample_period_ms.saturating_mul(1000),
             load_pin: pin.clone(),
@@ -93,8 +95,15 @@ impl VirtualNode {
             truth: GroundTruth::default(),
             last: None,
             load_powered: false,
+            shed_pin_wired: true,
             scenario,
         })
+    }
+
+    /// Whether the load obeys the node's load-shed pin (true unless told
+    /// otherwise), to compare runs with and without shedding.
+    pub fn wire_shed_pin(&mut self, wired: bool) {
+        self.shed_pin_wired = wired;
     }
 
     /// The scenario.
@@ -123,7 +132,7 @@ impl VirtualNode {
             dt,
             &self.source,
             &self.scenario.load,
-            self.pin.is_shed(),
+            self.shed_pin_wired && self.pin.is_shed(),
             self.load_powered,
         );
         self.load_powered = self

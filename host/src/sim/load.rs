@@ -2,6 +2,10 @@
 
 use serde::{Deserialize, Serialize};
 
+/// A browned-out sensor node restarts this far above its minimum, V (a
+/// microcontroller's brown-out reset hysteresis; common practice).
+pub const RESTART_MARGIN_V: f64 = 0.15;
+
 /// What the converter feeds.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 #[serde(tag = "kind", rename_all = "kebab-case", deny_unknown_fields)]
@@ -82,10 +86,19 @@ impl LoadParams {
                 if powered {
                     v > min_v + 1e-6
                 } else {
-                    v >= min_v + 0.15
+                    v >= min_v + RESTART_MARGIN_V
                 }
             }
             LoadParams::Led { .. } => true,
+        }
+    }
+
+    /// The load's minimum supply voltage and its restart voltage, V, for a
+    /// load that browns out.
+    pub fn supply_window_v(&self) -> Option<(f64, f64)> {
+        match *self {
+            LoadParams::SensorNode { min_v, .. } => Some((min_v, min_v + RESTART_MARGIN_V)),
+            LoadParams::Led { .. } => None,
         }
     }
 

@@ -289,11 +289,31 @@ impl Scenario {
     pub fn node_config(&self) -> Result<gleaner_protocol::NodeConfig> {
         let mut base = gleaner_firmware::config::default_config();
         base.calibration = self.front_end.calibration().context("front_end")?;
+        // The node is told the storage on the output and the load's own
+        // supply window, unless [node] says otherwise.
+        base.output_storage_uf = (self.converter.output_capacitance_f * 1e6).round() as u32;
+        if let Some((min_v, restart_v)) = self.load.supply_window_v() {
+            base.thresholds.load_min_uv = (min_v * 1e6).round() as u32;
+            base.thresholds.load_restart_uv = (restart_v * 1e6).round() as u32;
+        }
         let config = self.node.apply(&base).context("[node] settings")?;
         gleaner_firmware::config::validate(&config).map_err(|reason| {
             anyhow::anyhow!("[node] settings are refused by the node: {reason}")
         })?;
         Ok(config)
+    }
+
+    /// The virtual node's stable id: FNV-1a (64 bit) of the scenario's name
+    /// and seed, so two runs of one scenario are one node.
+    pub fn node_id(&self) -> u64 {
+        const FNV_OFFSET: u64 = 0xcbf2_9ce4_8422_2325;
+        const FNV_PRIME: u64 = 0x0000_0100_0000_01b3;
+        self.name
+            .bytes()
+            .chain(self.seed.to_le_bytes())
+            .fold(FNV_OFFSET, |h, b| {
+                (h ^ u64::from(b)).wrapping_mul(FNV_PRIME)
+            })
     }
 
     /// Simulated length in seconds.

@@ -54,6 +54,8 @@ fn messages_at(t: u64, interval_s: u64, seq: &mut u16) -> Vec<Uplink> {
                 from,
                 to,
                 cause,
+                trigger_input_uv: 699_000,
+                trigger_output_uv: 3_000_000,
                 input_uv: 700_000,
                 output_uv: 3_000_000,
             }),
@@ -94,13 +96,22 @@ fn messages_at(t: u64, interval_s: u64, seq: &mut u16) -> Vec<Uplink> {
         state,
         state_ms,
         input_cutoff_in_ms: None,
-        storage_runout_in_ms: None,
+        brownout_in_ms: None,
+        load_nw: (drawn_nj * 7 / 10)
+            .saturating_mul(1_000_000)
+            .checked_div(u64::from(ms) * 1000)
+            .unwrap_or(0),
+        net_nw: 0,
+        load_powered: true,
         load_shed: !day,
         flags: ReportFlags::default(),
     };
     push(UplinkBody::Report(report), t * 1000 + 1000, seq);
     out
 }
+
+/// The node id of synthetic logs (invented).
+pub const SYNTHETIC_NODE_ID: u64 = 0x5157_0000_0000_0001;
 
 /// Streams a synthetic log of `seconds` of reports as bytes, generated on demand.
 pub struct SyntheticLog {
@@ -147,6 +158,7 @@ impl SyntheticLog {
             body: UplinkBody::Hello(Hello {
                 protocol: PROTOCOL_VERSION,
                 firmware: gleaner_firmware::FIRMWARE_VERSION,
+                node_id: SYNTHETIC_NODE_ID,
                 boot_id: 0x5157_0001,
                 sample_period_us: 10_000,
                 config: gleaner_firmware::config::default_config(),

@@ -41,6 +41,10 @@ pub struct GroundTruth {
     pub load_brownouts: u32,
     /// Time without power after it first had it, s.
     pub load_unpowered_s: f64,
+    /// When the load lost power (after it first had it), s from the start.
+    pub brownouts_s: Vec<f64>,
+    /// When the load got power (the first time and after each brown-out), s.
+    pub load_powered_s: Vec<f64>,
     #[serde(skip)]
     load_powered: bool,
     #[serde(skip)]
@@ -53,9 +57,13 @@ impl GroundTruth {
         if powered && self.load_first_powered_s.is_none() {
             self.load_first_powered_s = Some(t_s);
         }
+        if powered && !self.load_powered {
+            self.load_powered_s.push(t_s);
+        }
         if self.load_first_powered_s.is_some() {
             if self.load_powered && !powered {
                 self.load_brownouts += 1;
+                self.brownouts_s.push(t_s);
             }
             if !powered {
                 self.load_unpowered_s += dt_s;
@@ -94,6 +102,19 @@ impl GroundTruth {
                 reason: step.off,
             });
         }
+    }
+
+    /// When the converter stopped for lack of input (cutoffs), s.
+    pub fn cutoffs_s(&self) -> impl Iterator<Item = f64> + '_ {
+        self.changes
+            .iter()
+            .filter(|c| !c.converting && c.reason == Some(OffReason::Starved))
+            .map(|c| c.t_s)
+    }
+
+    /// When the converter started converting, s.
+    pub fn starts_s(&self) -> impl Iterator<Item = f64> + '_ {
+        self.changes.iter().filter(|c| c.converting).map(|c| c.t_s)
     }
 
     /// True run efficiency: (delivered + storage gain) / drawn.

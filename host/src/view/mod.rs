@@ -41,6 +41,8 @@ pub struct LiveState {
     pub stored_nj: i128,
     /// Totals since the node's last reset, from its `Hello` plus what came after.
     pub since_reset: Option<(u128, u128, i128)>,
+    /// The latest change of the load's supply, with uptime in ms.
+    pub last_load: Option<(u64, gleaner_protocol::LoadEvent)>,
     /// Latest events, newest last, with uptime in ms.
     pub events: VecDeque<(u64, Event)>,
     /// (uptime s, input V, output V, input mW, output mW) of recent reports.
@@ -105,6 +107,7 @@ impl LiveState {
                     self.events.pop_front();
                 }
             }
+            UplinkBody::Load(e) => self.last_load = Some((tracked.message.uptime_ms, *e)),
             UplinkBody::Samples(_) | UplinkBody::Reply(_) => {}
         }
     }

@@ -5,7 +5,7 @@ use std::time::{Duration, Instant};
 
 use ratatui::DefaultTerminal;
 
-use super::plain::{event_line, report_line};
+use super::plain::{event_line, load_line, report_line};
 use super::{tui, LiveState};
 use crate::link::{LinkStats, Tracked};
 use crate::recorder::PortObserver;
@@ -77,6 +77,9 @@ impl PortObserver for LiveObserver<'_> {
             match &tracked.message.body {
                 gleaner_protocol::UplinkBody::Event(e) => {
                     let _ = writeln!(self.out, "{}", event_line(tracked.message.uptime_ms, e));
+                }
+                gleaner_protocol::UplinkBody::Load(e) => {
+                    let _ = writeln!(self.out, "{}", load_line(tracked.message.uptime_ms, e));
                 }
                 gleaner_protocol::UplinkBody::Report(_) => {
                     let due = match (every, self.last_line) {

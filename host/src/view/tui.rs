@@ -146,13 +146,18 @@ fn draw_status(frame: &mut Frame, area: Rect, s: &LiveState) {
                 .map_or("-".into(), |ms| duration(f64::from(ms) / 1e3))
         )));
         lines.push(Line::from(format!(
-            "storage for {}",
-            r.storage_runout_in_ms
-                .map_or("-".into(), |ms| duration(f64::from(ms) / 1e3))
+            "brown-out   {}",
+            match (r.load_powered, r.brownout_in_ms) {
+                (false, _) => "NO POWER".into(),
+                (true, None) => "not while charging".into(),
+                (true, Some(ms)) => format!("in {}", duration(f64::from(ms) / 1e3)),
+            }
         )));
         lines.push(Line::from(format!(
-            "load        {}",
-            if r.load_shed { "SHED" } else { "on" }
+            "load        {} {:.3} mW, net {:+.3} mW",
+            if r.load_shed { "SHED" } else { "on" },
+            r.load_nw as f64 / 1e6,
+            r.net_nw as f64 / 1e6
         )));
     }
     lines.push(Line::from(format!(
@@ -281,7 +286,10 @@ mod tests {
                 ..Default::default()
             },
             input_cutoff_in_ms: Some(125_000),
-            storage_runout_in_ms: None,
+            brownout_in_ms: None,
+            load_nw: 0,
+            net_nw: 0,
+            load_powered: true,
             load_shed: true,
             flags: ReportFlags::default(),
         }

@@ -14,6 +14,7 @@ fuzz_target!(|data: &[u8]| {
     let mut node = Node::new(NodeParts {
         config: default_config(),
         config_source: ConfigSource::Defaults,
+        node_id: 1,
         boot_id: 1,
         sample_period_us: 10_000,
         load_pin: NoPin,

@@ -102,6 +102,9 @@ fn main() -> ! {
         config.calibration = front_end::calibration();
     }
     let boot_id = Rng::new(p.RNG).random_u32();
+    // The factory-programmed device id (FICR DEVICEID, two words): the node's identity.
+    let node_id = (u64::from(p.FICR.deviceid[1].read().bits()) << 32)
+        | u64::from(p.FICR.deviceid[0].read().bits());
 
     let mut adc = FourChannelAdc::new(p.SAADC);
     let Some(mut clock) = SampleClock::start(p.RTC1) else {
@@ -119,6 +122,7 @@ fn main() -> ! {
     let mut node = Node::new(NodeParts {
         config,
         config_source: loaded.source,
+        node_id,
         boot_id,
         sample_period_us: SAMPLE_PERIOD_US,
         load_pin,

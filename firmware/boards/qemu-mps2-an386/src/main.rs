@@ -33,6 +33,8 @@ const RUN_AFTER_CUTOFF_S: u64 = 10;
 const RUN_AT_MOST_S: u64 = 300;
 /// Line rate.
 const BAUD: u32 = 115_200;
+/// The emulated node's fixed identity (the emulator has no factory id).
+const EMULATED_NODE_ID: u64 = 0x0E4D_0000_0000_0001;
 
 static TICKS: AtomicU32 = AtomicU32::new(0);
 
@@ -101,6 +103,7 @@ fn main() -> ! {
     let mut node = Node::new(NodeParts {
         config,
         config_source: ConfigSource::Defaults,
+        node_id: EMULATED_NODE_ID,
         boot_id: 0x0E4D_0001,
         sample_period_us: SAMPLE_PERIOD_US,
         load_pin: NoPin,
