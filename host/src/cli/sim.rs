@@ -54,6 +54,22 @@ pub enum Action {
         #[arg(long)]
         out: PathBuf,
     },
+    /// Judge the node's forecasts against the truth over a corpus of
+    /// randomized, invented scenarios: coverage, share within ±20 %, median
+    /// signed error (positive: optimistic) and flapping, today's (protocol 1,
+    /// replayed) and the node's side by side.
+    Score {
+        /// Scenarios in the corpus.
+        #[arg(long, default_value_t = 200)]
+        scenarios: usize,
+        /// Seed of the corpus.
+        #[arg(long, default_value_t = 1)]
+        seed: u64,
+        /// Also run every scenario with the load ignoring the shed pin and
+        /// compare the minutes without power.
+        #[arg(long)]
+        compare_shedding: bool,
+    },
 }
 
 /// Conditions for a curve.
@@ -185,6 +201,14 @@ impl Cmd {
                 let scenario = Scenario::load(&scenario)?;
                 simulate_to_log(scenario, 1, &out, crate::log::now_us())?;
                 println!("simulated to {}", out.display());
+            }
+            Action::Score {
+                scenarios,
+                seed,
+                compare_shedding,
+            } => {
+                let score = crate::sim::score::score_corpus(seed, scenarios, compare_shedding)?;
+                print!("{}", score.render());
             }
         }
         Ok(())

@@ -7,12 +7,14 @@
 pub mod adc;
 pub mod cell;
 pub mod converter;
+pub mod corpus;
 pub mod engine;
 pub mod environment;
 pub mod load;
 pub mod numeric;
 pub mod port;
 pub mod scenario;
+pub mod score;
 pub mod solar;
 pub mod source;
 pub mod supercap;
