@@ -76,6 +76,21 @@ pub fn wanted_transition(
     }
 }
 
+/// Share of the forecast horizon a short forecast must last before it raises
+/// `Sagging`: a passing cloud's dip is over before then, a sunset is not.
+pub const FORECAST_CONFIRM_DIVISOR: u32 = 4;
+
+/// How long the condition for a transition with `cause` must hold: the
+/// debounce time, and for a forecast a quarter of the horizon.
+pub fn hold_time_ms(cause: TransitionCause, t: &Thresholds) -> u32 {
+    match cause {
+        TransitionCause::ForecastUnderHorizon => t
+            .debounce_ms
+            .max(t.forecast_horizon_ms / FORECAST_CONFIRM_DIVISOR),
+        _ => t.debounce_ms,
+    }
+}
+
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 struct Pending {
     to: CutoffState,
@@ -135,7 +150,7 @@ impl CutoffDetector {
                 trigger: *seen,
             },
         };
-        if now_ms.saturating_sub(pending.since_ms) < u64::from(t.debounce_ms) {
+        if now_ms.saturating_sub(pending.since_ms) < u64::from(hold_time_ms(pending.cause, t)) {
             self.pending = Some(pending);
             return None;
         }
@@ -276,6 +291,26 @@ mod tests {
             wanted_transition(Sagging, 0, &seen, &T),
             Some((Harvesting, Recovered))
         );
+    }
+
+    #[test]
+    fn a_short_forecast_must_last_a_quarter_horizon_before_sagging() {
+        // Default horizon 60 s, debounce 200 ms: the forecast needs 15 s.
+        let mut detector = CutoffDetector::new(0);
+        let mut seen = obs(GOOD, OUT_UP);
+        for ms in (0..=300).step_by(100) {
+            detector.update(ms, &seen, &T);
+        }
+        assert_eq!(detector.state(), Harvesting);
+        seen.input_cutoff_in_ms = Some(30_000);
+        let confirm = u64::from(T.forecast_horizon_ms / FORECAST_CONFIRM_DIVISOR);
+        assert!(confirm > u64::from(T.debounce_ms));
+        // A dip of the forecast shorter than that (a passing cloud) does nothing.
+        for ms in (1_000..1_000 + confirm).step_by(100) {
+            assert_eq!(detector.update(ms, &seen, &T), None);
+        }
+        let event = detector.update(1_000 + confirm, &seen, &T).unwrap();
+        assert_eq!((event.to, event.cause), (Sagging, ForecastUnderHorizon));
     }
 
     #[test]

@@ -7,9 +7,10 @@
 //!   fit is exact there; for the accelerating falls of a sunset or a cell's
 //!   knee it answers earlier than a line through V would (the safe side). No
 //!   forecast when flat, rising, or too noisy (r² below one half).
-//! * [`CutoffForecaster`]: two trends, one over the last reports and one over
-//!   the last half hour, answering with the earlier of the two; the long one
-//!   sees a slow decline long before the short one can tell it from noise.
+//! * [`CutoffForecaster`]: the input voltage's trend over the last reports and
+//!   over the last half hour, and the input power's over the last half hour,
+//!   answering with the earliest; the long ones see a slow decline long before
+//!   the short one can tell it from noise, and the power sees a fading source.
 //! * [`PowerAverage`]: the mean power of a stream of interval energies,
 //!   exponentially weighted (EWMA) over a time constant, so a load that draws
 //!   in short bursts is averaged over many of its periods.
@@ -26,6 +27,8 @@ pub const TREND_POINTS: usize = 16;
 pub const MIN_TREND_POINTS: usize = 4;
 /// Block length of the long trend: 16 blocks of 2 minutes span 32 minutes.
 pub const LONG_TREND_BLOCK_MS: u32 = 120_000;
+/// Block length of the input power's trend: 16 blocks of 40 s span 10.7 minutes.
+pub const POWER_TREND_BLOCK_MS: u32 = 40_000;
 /// Time constant of the load's power average (10 minutes): long enough to
 /// span many periods of a duty-cycled load (a burst a minute gives ten), short
 /// enough to follow a load that is shed.
@@ -99,45 +102,70 @@ impl Sums {
     }
 }
 
-/// A sliding window of `(time, input voltage)` points, each the mean over a
-/// block of at least `block_ms` (0: every pushed value is a point).
+/// How a trend's values are fitted.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Fit {
+    /// A line through the squares of voltages (µV): linear in stored energy.
+    Squared,
+    /// A line through the values themselves.
+    Linear,
+}
+
+impl Fit {
+    fn apply(self, value: u32) -> i128 {
+        match self {
+            Fit::Squared => squared(value),
+            Fit::Linear => i128::from(value),
+        }
+    }
+}
+
+/// A sliding window of `(time, value)` points, each the mean over a block of
+/// at least `block_ms` (0: every pushed value is a point).
 #[derive(Debug, Clone)]
 pub struct InputTrend {
+    fit: Fit,
     block_ms: u32,
-    points: HistoryBuf<(u64, u32), TREND_POINTS>,
+    /// (time in ms, wrapping at 2^32, value): differences of times stay
+    /// right over any window shorter than 24 days.
+    points: HistoryBuf<(u32, u32), TREND_POINTS>,
     block_start_ms: Option<u64>,
-    block_sum_uv: u64,
+    block_sum: u64,
     block_count: u32,
 }
 
 impl InputTrend {
-    /// An empty window of blocks of `block_ms`.
-    pub const fn new(block_ms: u32) -> Self {
+    /// An empty window of blocks of `block_ms`, fitted as `fit` says.
+    pub const fn new(fit: Fit, block_ms: u32) -> Self {
         InputTrend {
+            fit,
             block_ms,
             points: HistoryBuf::new(),
             block_start_ms: None,
-            block_sum_uv: 0,
+            block_sum: 0,
             block_count: 0,
         }
     }
 
-    /// Adds the mean input voltage of an interval that ended at `t_ms`.
-    pub fn push(&mut self, t_ms: u64, input_uv: u32) {
+    /// Adds the mean value of an interval that ended at `t_ms`.
+    pub fn push(&mut self, t_ms: u64, value: u32) {
         let start = *self.block_start_ms.get_or_insert(t_ms);
-        self.block_sum_uv = self.block_sum_uv.saturating_add(u64::from(input_uv));
+        self.block_sum = self.block_sum.saturating_add(u64::from(value));
         self.block_count = self.block_count.saturating_add(1);
         if t_ms.saturating_sub(start) < u64::from(self.block_ms) {
             return;
         }
         let mean = self
-            .block_sum_uv
+            .block_sum
             .checked_div(u64::from(self.block_count))
             .unwrap_or(0);
+        // Wrapping on purpose: only differences of times are used.
+        #[allow(clippy::cast_possible_truncation)]
+        let t_wrapped = t_ms as u32;
         self.points
-            .write((t_ms, u32::try_from(mean).unwrap_or(u32::MAX)));
+            .write((t_wrapped, u32::try_from(mean).unwrap_or(u32::MAX)));
         self.block_start_ms = None;
-        self.block_sum_uv = 0;
+        self.block_sum = 0;
         self.block_count = 0;
     }
 
@@ -145,13 +173,13 @@ impl InputTrend {
     pub fn clear(&mut self) {
         self.points.clear();
         self.block_start_ms = None;
-        self.block_sum_uv = 0;
+        self.block_sum = 0;
         self.block_count = 0;
     }
 
     /// Milliseconds from the newest point until the fitted line reaches
-    /// `threshold_uv`: Some(0) when it already has, None when not falling or too noisy.
-    pub fn time_to_reach(&self, threshold_uv: u32) -> Option<u32> {
+    /// `threshold`: Some(0) when it already has, None when not falling or too noisy.
+    pub fn time_to_reach(&self, threshold: u32) -> Option<u32> {
         if self.points.len() < MIN_TREND_POINTS {
             return None;
         }
@@ -159,17 +187,35 @@ impl InputTrend {
         let mut sums = Sums::default();
         for &(t, v) in self.points.oldest_ordered() {
             // Time relative to the newest point (so "now" is t = 0), in ms.
-            sums.add(i128::from(t).saturating_sub(i128::from(t_now)), squared(v));
+            // Wrapping difference read as signed: at most 24 days back.
+            #[allow(clippy::cast_possible_wrap)]
+            let dt = t.wrapping_sub(t_now) as i32;
+            sums.add(i128::from(dt), self.fit.apply(v));
         }
-        sums.time_to(squared(threshold_uv))
+        sums.time_to(self.fit.apply(threshold))
     }
 }
 
-/// Time to input cutoff from a short and a long trend, the earlier answer of the two.
+/// What the cutoff forecast looks at, per interval.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct InputSeen {
+    /// Mean input voltage.
+    pub input_uv: u32,
+    /// Mean input power (energy drawn over the interval).
+    pub input_nw: u32,
+}
+
+/// Time to input cutoff, the earliest answer of three trends: the input
+/// voltage (fitted in V²) over the last reports and over the last half hour,
+/// and the input power over the last half hour. While the converter draws all
+/// a fading source can give (a sunset, a failing cell), the power falls
+/// steadily long before the voltage does; the converter stops when the current
+/// it can draw at the hold voltage is no more than its idle current.
 #[derive(Debug, Clone)]
 pub struct CutoffForecaster {
     short: InputTrend,
     long: InputTrend,
+    power: InputTrend,
 }
 
 impl Default for CutoffForecaster {
@@ -182,32 +228,40 @@ impl CutoffForecaster {
     /// Empty trends.
     pub const fn new() -> Self {
         CutoffForecaster {
-            short: InputTrend::new(0),
-            long: InputTrend::new(LONG_TREND_BLOCK_MS),
+            short: InputTrend::new(Fit::Squared, 0),
+            long: InputTrend::new(Fit::Squared, LONG_TREND_BLOCK_MS),
+            power: InputTrend::new(Fit::Linear, POWER_TREND_BLOCK_MS),
         }
     }
 
-    /// Adds an interval's mean input voltage.
-    pub fn push(&mut self, t_ms: u64, input_uv: u32) {
-        self.short.push(t_ms, input_uv);
-        self.long.push(t_ms, input_uv);
+    /// Adds an interval's means.
+    pub fn push(&mut self, t_ms: u64, seen: InputSeen) {
+        self.short.push(t_ms, seen.input_uv);
+        self.long.push(t_ms, seen.input_uv);
+        self.power.push(t_ms, seen.input_nw);
     }
 
     /// Forgets everything (the converter restarted).
     pub fn clear(&mut self) {
         self.short.clear();
         self.long.clear();
+        self.power.clear();
     }
 
-    /// Milliseconds until the input falls to `hold_uv`, the earlier of the two trends.
-    pub fn time_to_reach(&self, hold_uv: u32) -> Option<u32> {
-        match (
+    /// Milliseconds until the input is cut off at `hold_uv` (with the
+    /// converter idle below `idle_na`), the earliest of the trends.
+    pub fn time_to_cutoff(&self, hold_uv: u32, idle_na: u32) -> Option<u32> {
+        // µV · nA = 1e-15 W = 1e-6 nW.
+        let idle_nw = u64::from(hold_uv).saturating_mul(u64::from(idle_na)) / 1_000_000;
+        [
             self.short.time_to_reach(hold_uv),
             self.long.time_to_reach(hold_uv),
-        ) {
-            (Some(a), Some(b)) => Some(a.min(b)),
-            (a, b) => a.or(b),
-        }
+            self.power
+                .time_to_reach(u32::try_from(idle_nw).unwrap_or(u32::MAX)),
+        ]
+        .into_iter()
+        .flatten()
+        .min()
     }
 }
 
@@ -347,7 +401,7 @@ mod tests {
         // A capacitor under constant power falls linearly in V² (any physics
         // text: C (V1² - V2²) = 2 P t). 1 F at 2 mW: V² falls 0.004 V²/s.
         // From 1.2 V, 0.7 V is reached after (1.44 - 0.49) / 0.004 = 237.5 s.
-        let mut trend = InputTrend::new(0);
+        let mut trend = InputTrend::new(Fit::Squared, 0);
         let v_at = |s: f64| (1.44 - 0.004 * (s - 15.0)).sqrt();
         for s in 0..16u64 {
             trend.push(s * 1000, (v_at(s as f64) * 1e6).round() as u32);
@@ -359,15 +413,15 @@ mod tests {
 
     #[test]
     fn rising_flat_or_short_input_gives_none() {
-        let mut rising = InputTrend::new(0);
-        let mut flat = InputTrend::new(0);
+        let mut rising = InputTrend::new(Fit::Squared, 0);
+        let mut flat = InputTrend::new(Fit::Squared, 0);
         for s in 0..10u64 {
             rising.push(s * 1000, 800_000 + 500 * s as u32);
             flat.push(s * 1000, 800_000);
         }
         assert_eq!(rising.time_to_reach(700_000), None);
         assert_eq!(flat.time_to_reach(700_000), None);
-        let mut short = InputTrend::new(0);
+        let mut short = InputTrend::new(Fit::Squared, 0);
         for s in 0..3u64 {
             short.push(s * 1000, 900_000 - 1000 * s as u32);
         }
@@ -377,7 +431,7 @@ mod tests {
     #[test]
     fn noise_without_a_trend_gives_none() {
         // Alternating +-20 mV around a 1 uV/s fall: r² is tiny.
-        let mut trend = InputTrend::new(0);
+        let mut trend = InputTrend::new(Fit::Squared, 0);
         for s in 0..16u64 {
             let wobble: i64 = if s % 2 == 0 { 20_000 } else { -20_000 };
             trend.push(s * 1000, (900_000 - s as i64 + wobble) as u32);
@@ -389,12 +443,20 @@ mod tests {
     fn blocks_average_their_intervals() {
         // Blocks of 2 min from 10 s intervals: one point per 13 pushes (the
         // block closes on the first interval at or past 120 s from its start).
-        let mut trend = InputTrend::new(LONG_TREND_BLOCK_MS);
+        let mut trend = InputTrend::new(Fit::Squared, LONG_TREND_BLOCK_MS);
         for i in 0..13u64 {
             trend.push(i * 10_000, 1_000_000 + (i as u32) * 1000);
         }
         assert_eq!(trend.points.len(), 1);
         assert_eq!(trend.points.recent(), Some(&(120_000, 1_006_000)));
+        // Times wrap at 2^32 ms (49.7 days); a window across the wrap still fits.
+        let mut wrapped = InputTrend::new(Fit::Linear, 0);
+        let start = u64::from(u32::MAX) - 35_000;
+        for i in 0..8u64 {
+            wrapped.push(start + i * 10_000, 800_000 - 1_000 * i as u32);
+        }
+        // Newest 793 mV, falling 0.1 mV/s: 700 mV in 930 s.
+        assert_eq!(wrapped.time_to_reach(700_000), Some(930_000));
     }
 
     #[test]
@@ -402,15 +464,21 @@ mod tests {
         // A 10 µV per 10 s fall, under ±1 mV of alternating noise: 16 short
         // points see mostly noise, 16 blocks of 2 min see the fall.
         let mut f = CutoffForecaster::new();
-        let mut short_only = InputTrend::new(0);
+        let mut short_only = InputTrend::new(Fit::Squared, 0);
         for i in 0..400u64 {
             let wobble: i64 = if i % 2 == 0 { 1000 } else { -1000 };
             let v = (900_000 - 10 * i as i64 + wobble) as u32;
-            f.push(i * 10_000, v);
+            f.push(
+                i * 10_000,
+                InputSeen {
+                    input_uv: v,
+                    input_nw: 100_000,
+                },
+            );
             short_only.push(i * 10_000, v);
         }
         assert_eq!(short_only.time_to_reach(700_000), None);
-        let ms = f.time_to_reach(700_000).unwrap();
+        let ms = f.time_to_cutoff(700_000, 2_000).unwrap();
         // The line through V: (0.896 - 0.7) V at 1 µV/s = 196,000 s. The V²
         // fit answers earlier (the safe side): (0.896² - 0.7²) / (2 · 0.896 · 1e-6)
         // = 174,560 s.

@@ -16,7 +16,7 @@ use crate::config::validate;
 use crate::config_store;
 use crate::cutoff::{CutoffDetector, Observation};
 use crate::forecast::{
-    brownout_ms, storage_level_nj, CutoffForecaster, DrainOutlook, PowerAverage,
+    brownout_ms, storage_level_nj, CutoffForecaster, DrainOutlook, InputSeen, PowerAverage,
     HARVEST_AVERAGE_MS, LOAD_AVERAGE_MS,
 };
 use crate::interval::IntervalStats;
@@ -92,6 +92,14 @@ struct IntervalStart {
     drawn_nj: u64,
     delivered_nj: u64,
     stored_level_nj: i64,
+}
+
+/// Energies of one report interval.
+#[derive(Debug, Clone, Copy)]
+struct IntervalEnergy {
+    drawn_nj: u64,
+    delivered_nj: u64,
+    stored_nj: i64,
 }
 
 /// The node. `P` drives the load switch, `S` keeps the configuration.
@@ -356,13 +364,12 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
         };
         let state = self.detector.state();
         let length_ms = length_us / 1000;
-        self.update_forecasts(
-            t_us / 1000,
-            length_us,
-            summary.input_uv.mean,
+        let energy = IntervalEnergy {
+            drawn_nj,
             delivered_nj,
             stored_nj,
-        );
+        };
+        self.update_forecasts(t_us / 1000, length_us, summary.input_uv.mean, &energy);
         let report = Report {
             interval_ms: u32::try_from(length_ms).unwrap_or(u32::MAX),
             sample_count: summary.count,
@@ -435,11 +442,19 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
         now_ms: u64,
         length_us: u64,
         input_uv: u32,
-        delivered_nj: u64,
-        stored_nj: i64,
+        energy: &IntervalEnergy,
     ) {
+        let IntervalEnergy {
+            drawn_nj,
+            delivered_nj,
+            stored_nj,
+        } = *energy;
         let delivered = i64::try_from(delivered_nj).unwrap_or(i64::MAX);
-        self.load_power.push(delivered, length_us, LOAD_AVERAGE_MS);
+        // A browned-out load draws nothing because it has no power: that says
+        // nothing of what it draws when it runs, so it is not averaged in.
+        if self.load_watch.is_powered() {
+            self.load_power.push(delivered, length_us, LOAD_AVERAGE_MS);
+        }
         self.output_power.push(
             delivered.saturating_add(stored_nj),
             length_us,
@@ -451,8 +466,17 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             CutoffState::Harvesting | CutoffState::Sagging
         );
         self.input_cutoff_in_ms = if converting {
-            self.cutoff_forecast.push(now_ms, input_uv);
-            self.cutoff_forecast.time_to_reach(t.hold_uv)
+            let input_nw = drawn_nj
+                .saturating_mul(1_000_000)
+                .checked_div(length_us)
+                .unwrap_or(0);
+            let seen = InputSeen {
+                input_uv,
+                input_nw: u32::try_from(input_nw).unwrap_or(u32::MAX),
+            };
+            self.cutoff_forecast.push(now_ms, seen);
+            self.cutoff_forecast
+                .time_to_cutoff(t.hold_uv, t.input_idle_na)
         } else {
             None
         };

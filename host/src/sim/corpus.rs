@@ -94,8 +94,15 @@ output_shunt_milliohm = 10000
 output_gain = 20
 "#;
 
-fn sensor_load(rng: &mut Pcg64Mcg, heavy: bool) -> String {
-    let (active_a, period_s, active_s) = if heavy {
+fn sensor_load(rng: &mut Pcg64Mcg, kind: CorpusKind) -> String {
+    // A cell's node keeps a receiver listening (a steady milliamp or two), so
+    // the cell reaches its knee within the run.
+    let sleep_a = if kind == CorpusKind::CellKnee {
+        rng.random_range(0.5e-3..2e-3)
+    } else {
+        rng.random_range(5e-6..20e-6)
+    };
+    let (active_a, period_s, active_s) = if kind == CorpusKind::HeavyLoad {
         (
             rng.random_range(4e-3..9e-3),
             rng.random_range(10.0..30.0),
@@ -109,8 +116,7 @@ fn sensor_load(rng: &mut Pcg64Mcg, heavy: bool) -> String {
         )
     };
     format!(
-        "[load]\nkind = \"sensor-node\"\nsleep_a = {:e}\nactive_a = {active_a:e}\nperiod_s = {period_s}\nactive_s = {active_s}\nmin_v = {}\nsheddable_a = {:e}\n",
-        rng.random_range(5e-6..20e-6),
+        "[load]\nkind = \"sensor-node\"\nsleep_a = {sleep_a:e}\nactive_a = {active_a:e}\nperiod_s = {period_s}\nactive_s = {active_s}\nmin_v = {}\nsheddable_a = {:e}\n",
         rng.random_range(1.8..2.0),
         rng.random_range(0.0..80e-6),
     )
@@ -175,8 +181,8 @@ pub fn corpus_entry(seed: u64, index: usize) -> Result<CorpusEntry> {
         CorpusKind::CellKnee => {
             let source = format!(
                 "[source]\nkind = \"cell\"\ncapacity_mah = {}\nfresh_resistance_ohm = 0.15\ninitial_depth = {}\n",
-                rng.random_range(100.0..600.0),
-                rng.random_range(0.8..0.93),
+                rng.random_range(100.0..300.0),
+                rng.random_range(0.85..0.95),
             );
             let input = format!(
                 "{{ kind = \"resistive\", ohms = {} }}",
@@ -207,7 +213,7 @@ pub fn corpus_entry(seed: u64, index: usize) -> Result<CorpusEntry> {
             (6.0, start, format!("{source}\n{conv}"))
         }
     };
-    let load = sensor_load(&mut rng, kind == CorpusKind::HeavyLoad);
+    let load = sensor_load(&mut rng, kind);
     let text = format!(
         "name = \"corpus-{}-{index}\"\ndescription = \"Invented: corpus scenario {index} ({}) drawn from seed {seed}, for judging forecasts.\"\nduration_h = {hours}\nstart_hour = {start_hour}\nsample_period_ms = {CORPUS_SAMPLE_MS}\nseed = {scenario_seed}\n\n{body}\n{load}\n{FRONT_END}\n{NODE}",
         kind.name(),

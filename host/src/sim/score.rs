@@ -9,7 +9,7 @@
 
 use gleaner_protocol::{CutoffState, Report, Uplink, UplinkBody};
 
-use super::corpus::corpus_entry;
+use super::corpus::{corpus_entry, CorpusKind};
 use super::engine::VirtualNode;
 use super::GroundTruth;
 
@@ -34,8 +34,10 @@ pub struct ForecastPoint {
 }
 
 /// What one scenario run gives the scorer.
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone)]
 pub struct ScenarioRun {
+    /// The corpus kind.
+    pub kind: CorpusKind,
     /// Forecasts of every report.
     pub points: Vec<ForecastPoint>,
     /// (time, entered Sagging?) of the node's transitions into and out of Sagging,
@@ -118,13 +120,19 @@ pub fn run_corpus_scenario(
     shed_pin_wired: bool,
 ) -> anyhow::Result<ScenarioRun> {
     let entry = corpus_entry(seed, index)?;
+    let kind = entry.kind;
     let config = entry.scenario.node_config()?;
     let c_f = f64::from(config.output_storage_uf) / 1e6;
     let hold_v = f64::from(config.thresholds.hold_uv) / 1e6;
     let down_v = f64::from(config.thresholds.output_down_uv) / 1e6;
     let mut node = VirtualNode::new(entry.scenario, 1)?;
     node.wire_shed_pin(shed_pin_wired);
-    let mut run = ScenarioRun::default();
+    let mut run = ScenarioRun {
+        kind,
+        points: Vec::new(),
+        sagging: Vec::new(),
+        truth: GroundTruth::default(),
+    };
     let mut old = OldForecasts::default();
     let mut bytes = Vec::new();
     let mut stop_at_s = f64::INFINITY;
@@ -285,17 +293,32 @@ pub fn sagging_leads(run: &ScenarioRun) -> (Vec<f64>, usize) {
                 false_alarms += 1;
             }
             None => {
-                // Left Sagging for an outage: match the true cutoff just before.
-                if let (Some(s), Some(&c)) = (since, cutoffs.iter().rfind(|&&c| c <= t + 1.0)) {
-                    if t - c < 120.0 {
-                        leads.push((c - s).max(0.0));
-                    }
+                // Left Sagging for an outage: match the true cutoff within two
+                // minutes either side (the node may see the converter idle first).
+                let near = cutoffs.iter().find(|&&c| (c - t).abs() <= 120.0);
+                if let (Some(s), Some(&c)) = (since, near) {
+                    leads.push((c - s).max(0.0));
                 }
                 since = None;
             }
         }
     }
     (leads, false_alarms)
+}
+
+/// The node's figures for one kind of corpus scenario.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct KindScore {
+    /// The kind.
+    pub kind: CorpusKind,
+    /// Time to brown-out, last 2 h.
+    pub brownout: Metrics,
+    /// Time to cutoff, last hour.
+    pub cutoff: Metrics,
+    /// Share of cutoffs with Sagging raised at least 15 minutes before.
+    pub sagging_early_share: f64,
+    /// Sagging that ended back in Harvesting, per simulated day.
+    pub false_sagging_per_day: f64,
 }
 
 /// Figures of a whole corpus, today's (replayed) and the node's side by side.
@@ -319,6 +342,8 @@ pub struct CorpusScore {
     pub sagging_early_share: f64,
     /// Sagging that ended back in Harvesting, per simulated day.
     pub false_sagging_per_day: f64,
+    /// The node's figures by corpus kind.
+    pub by_kind: Vec<KindScore>,
     /// Minutes the load was without power: (shedding on, shedding off), when compared.
     pub brownout_minutes: Option<(f64, f64)>,
 }
@@ -393,6 +418,10 @@ pub fn score_corpus(
         leads.extend(l);
         false_alarms += f;
     }
+    score.by_kind = CorpusKind::ALL
+        .iter()
+        .map(|&kind| kind_score(kind, &runs))
+        .collect();
     score.brownout = (metrics(&b_old), metrics(&b_new));
     score.cutoff_2h = (metrics(&c_old), metrics(&c_new));
     score.cutoff_1h = (metrics(&h_old), metrics(&h_new));
@@ -409,6 +438,41 @@ pub fn score_corpus(
         score.brownout_minutes = Some((minutes(&runs), minutes(&unshed)));
     }
     Ok(score)
+}
+
+/// The node's figures over the runs of one kind.
+fn kind_score(kind: CorpusKind, runs: &[ScenarioRun]) -> KindScore {
+    let (mut b, mut c, mut leads) = (Vec::new(), Vec::new(), Vec::new());
+    let (mut cutoffs_n, mut false_alarms, mut days) = (0usize, 0usize, 0.0);
+    for (k, run) in runs.iter().enumerate().filter(|(_, r)| r.kind == kind) {
+        let t = &run.truth;
+        let starts: Vec<f64> = t.starts_s().collect();
+        let cutoffs: Vec<f64> = t.cutoffs_s().collect();
+        let first = k * 1000;
+        let (bo, lp) = (&t.brownouts_s, &t.load_powered_s);
+        b.extend(judge(&run.points, bo, lp, 7200.0, |p| p.brownout_s, first));
+        c.extend(judge(
+            &run.points,
+            &cutoffs,
+            &starts,
+            3600.0,
+            |p| p.cutoff_s,
+            first,
+        ));
+        let (l, f) = sagging_leads(run);
+        leads.extend(l);
+        false_alarms += f;
+        cutoffs_n += cutoffs.len();
+        days += t.elapsed_s / 86_400.0;
+    }
+    KindScore {
+        kind,
+        brownout: metrics(&b),
+        cutoff: metrics(&c),
+        sagging_early_share: leads.iter().filter(|&&l| l >= SAGGING_LEAD_S).count() as f64
+            / cutoffs_n.max(1) as f64,
+        false_sagging_per_day: false_alarms as f64 / f64::max(days, 1e-9),
+    }
 }
 
 /// `f(0..count)` on `workers` threads, in order.
@@ -484,6 +548,19 @@ impl CorpusScore {
             self.sagging_early_share * 100.0,
             self.false_sagging_per_day
         );
+        for k in &self.by_kind {
+            let _ = writeln!(
+                o,
+                "  {:<17} brown-out {:>5.1}% within, {:>+6.1}% err | cutoff (last hour) {:>5.1}% within, {:>+6.1}% err | Sagging >= 15 min {:>5.1}%, false {:.2}/day",
+                k.kind.name(),
+                k.brownout.alpha_accuracy * 100.0,
+                k.brownout.median_signed_error * 100.0,
+                k.cutoff.alpha_accuracy * 100.0,
+                k.cutoff.median_signed_error * 100.0,
+                k.sagging_early_share * 100.0,
+                k.false_sagging_per_day
+            );
+        }
         if let Some((on, off)) = self.brownout_minutes {
             let _ = writeln!(
                 o,
@@ -549,8 +626,9 @@ mod tests {
             })
             .collect();
         let judged = judge(&points, &[1000.0], &[250.0], 700.0, |p| p.cutoff_s, 0);
-        // From 300 s (after the start at 250 s) to 900 s.
-        assert_eq!(judged.len(), 7);
+        // After 300 s (the window's start, later than the start at 250 s) and
+        // before the event: 400 s to 900 s.
+        assert_eq!(judged.len(), 6);
         assert_eq!(metrics(&judged).alpha_accuracy, 1.0);
     }
 }
