@@ -129,7 +129,9 @@ pub struct InputTrend {
     /// (time in ms, wrapping at 2^32, value): differences of times stay
     /// right over any window shorter than 24 days.
     points: HistoryBuf<(u32, u32), TREND_POINTS>,
-    block_start_ms: Option<u64>,
+    /// Start of the block being gathered (wrapping ms); meaningful while
+    /// `block_count` is not zero.
+    block_start_ms: u32,
     block_sum: u64,
     block_count: u32,
 }
@@ -141,7 +143,7 @@ impl InputTrend {
             fit,
             block_ms,
             points: HistoryBuf::new(),
-            block_start_ms: None,
+            block_start_ms: 0,
             block_sum: 0,
             block_count: 0,
         }
@@ -149,22 +151,23 @@ impl InputTrend {
 
     /// Adds the mean value of an interval that ended at `t_ms`.
     pub fn push(&mut self, t_ms: u64, value: u32) {
-        let start = *self.block_start_ms.get_or_insert(t_ms);
+        // Wrapping on purpose: only differences of times are used.
+        #[allow(clippy::cast_possible_truncation)]
+        let t_wrapped = t_ms as u32;
+        if self.block_count == 0 {
+            self.block_start_ms = t_wrapped;
+        }
         self.block_sum = self.block_sum.saturating_add(u64::from(value));
         self.block_count = self.block_count.saturating_add(1);
-        if t_ms.saturating_sub(start) < u64::from(self.block_ms) {
+        if t_wrapped.wrapping_sub(self.block_start_ms) < self.block_ms {
             return;
         }
         let mean = self
             .block_sum
             .checked_div(u64::from(self.block_count))
             .unwrap_or(0);
-        // Wrapping on purpose: only differences of times are used.
-        #[allow(clippy::cast_possible_truncation)]
-        let t_wrapped = t_ms as u32;
         self.points
             .write((t_wrapped, u32::try_from(mean).unwrap_or(u32::MAX)));
-        self.block_start_ms = None;
         self.block_sum = 0;
         self.block_count = 0;
     }
@@ -172,7 +175,6 @@ impl InputTrend {
     /// Forgets every point (after a restart of the converter, say).
     pub fn clear(&mut self) {
         self.points.clear();
-        self.block_start_ms = None;
         self.block_sum = 0;
         self.block_count = 0;
     }

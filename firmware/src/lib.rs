@@ -8,6 +8,7 @@
 //! * [`cutoff`]: the debounced cutoff state machine with a cause for each transition;
 //! * [`forecast`]: time to input cutoff from the input's trends, averaged load and net
 //!   power, and time to the load's brown-out;
+//! * [`harvest_profile`]: tomorrow's harvest per hour of the day (EWMA and WCMA);
 //! * [`interval`]: per-report aggregation (min / mean / max, time in each state);
 //! * [`config`]: defaults and validation of the configuration the host may send;
 //! * [`config_store`]: two alternating records that survive a power cut mid-write;
@@ -70,6 +71,7 @@ pub mod config_store;
 pub mod cutoff;
 pub mod flash_slots;
 pub mod forecast;
+pub mod harvest_profile;
 pub mod interval;
 pub mod load_shed;
 pub mod load_watch;

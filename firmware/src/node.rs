@@ -6,8 +6,8 @@ use embedded_storage::Storage;
 use gleaner_protocol::{
     encode_frame, Command, ConfigSource, CutoffState, Decoder, DecoderStats, Downlink,
     EnergyTotals, FirmwareVersion, Hello, LoadEvent, NodeConfig, Outcome, Refusal, Reply, Report,
-    Sample, SampleBlock, Uplink, UplinkBody, MAX_BURST_SAMPLES, MAX_DOWNLINK_FRAME_LEN,
-    MAX_UPLINK_FRAME_LEN, PROTOCOL_VERSION, SAMPLES_PER_BLOCK,
+    Sample, SampleBlock, SlotHarvest, Uplink, UplinkBody, MAX_BURST_SAMPLES,
+    MAX_DOWNLINK_FRAME_LEN, MAX_UPLINK_FRAME_LEN, PROTOCOL_VERSION, SAMPLES_PER_BLOCK,
 };
 use heapless::{Deque, HistoryBuf, Vec};
 
@@ -19,6 +19,7 @@ use crate::forecast::{
     brownout_ms, storage_level_nj, CutoffForecaster, DrainOutlook, InputSeen, PowerAverage,
     HARVEST_AVERAGE_MS, LOAD_AVERAGE_MS,
 };
+use crate::harvest_profile::{HarvestProfile, SLOT_MS};
 use crate::interval::IntervalStats;
 use crate::load_shed::{LoadShedder, Risk};
 use crate::load_watch::LoadWatch;
@@ -94,6 +95,28 @@ struct IntervalStart {
     stored_level_nj: i64,
 }
 
+/// An outbox entry. A `Hello` waits as its energy totals only (the largest
+/// message would otherwise set the size of every entry); the rest is filled
+/// in when it is sent.
+#[derive(Debug, Clone)]
+enum QueuedBody {
+    Hello { totals: EnergyTotals },
+    Report(Report),
+    Event(gleaner_protocol::Event),
+    Samples(SampleBlock),
+    Reply(Reply),
+    Load(LoadEvent),
+    Harvest(SlotHarvest),
+}
+
+/// A message waiting to be sent, with its sequence number and time.
+#[derive(Debug, Clone)]
+struct Queued {
+    seq: u16,
+    uptime_ms: u64,
+    body: QueuedBody,
+}
+
 /// Energies of one report interval.
 #[derive(Debug, Clone, Copy)]
 struct IntervalEnergy {
@@ -119,6 +142,9 @@ pub struct Node<P, S> {
     output_power: PowerAverage,
     load_watch: LoadWatch,
     brownout_in_ms: Option<u32>,
+    harvest: HarvestProfile,
+    /// Start of the present harvest slot: (time µs, energy drawn until then nJ).
+    slot_start: Option<(u64, u64)>,
     interval: IntervalStats,
     interval_start: Option<IntervalStart>,
     stored_level_nj: i64,
@@ -131,7 +157,7 @@ pub struct Node<P, S> {
     last_sample: Sample,
     now_us: u64,
     seq: u16,
-    outbox: Deque<Uplink, OUTBOX_LEN>,
+    outbox: Deque<Queued, OUTBOX_LEN>,
     rx: Decoder<Downlink, MAX_DOWNLINK_FRAME_LEN>,
     burst: Option<Burst>,
     stats: NodeStats,
@@ -155,6 +181,8 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             output_power: PowerAverage::new(),
             load_watch: LoadWatch::new(),
             brownout_in_ms: None,
+            harvest: HarvestProfile::new(),
+            slot_start: None,
             interval: IntervalStats::default(),
             interval_start: None,
             stored_level_nj: 0,
@@ -215,6 +243,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             self.enqueue(UplinkBody::Event(event));
         }
         self.watch_load(now_ms, &sample);
+        self.close_slot_if_due(t_us);
         self.add_to_burst(sample);
         self.close_interval_if_due(t_us);
     }
@@ -247,7 +276,8 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
     /// Encodes the oldest queued message into `buf` and returns the frame, or
     /// None when nothing is queued.
     pub fn next_frame<'b>(&mut self, buf: &'b mut [u8; MAX_UPLINK_FRAME_LEN]) -> Option<&'b [u8]> {
-        let message = self.outbox.pop_front()?;
+        let queued = self.outbox.pop_front()?;
+        let message = self.uplink_of(queued);
         match encode_frame(&message, buf) {
             Ok(frame) => Some(frame),
             // Cannot happen with a buffer of MAX_UPLINK_FRAME_LEN; counted if it does.
@@ -393,6 +423,28 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
         self.enqueue(UplinkBody::Report(report));
         self.interval.restart();
         self.interval_start = Some(self.interval_marker(t_us));
+    }
+
+    /// Ends the harvest slot when an hour has passed: learns it and sends it
+    /// with what had been predicted for it.
+    fn close_slot_if_due(&mut self, t_us: u64) {
+        let drawn_nj = self.meter.input.total_nj();
+        let (start_us, start_nj) = *self.slot_start.get_or_insert((t_us, drawn_nj));
+        if t_us.saturating_sub(start_us) < u64::from(SLOT_MS).saturating_mul(1000) {
+            return;
+        }
+        let harvested_uj =
+            u32::try_from(drawn_nj.saturating_sub(start_nj) / 1000).unwrap_or(u32::MAX);
+        let outcome = self.harvest.end_slot(harvested_uj);
+        self.slot_start = Some((t_us, drawn_nj));
+        self.enqueue(UplinkBody::Harvest(SlotHarvest {
+            slot: outcome.slot,
+            slot_ms: SLOT_MS,
+            harvested_uj,
+            ewma_predicted_uj: outcome.ewma_predicted_uj,
+            wcma_predicted_uj: outcome.wcma_predicted_uj,
+            next_day_uj: outcome.next_day_uj,
+        }));
     }
 
     /// Converter output less load power, both averaged, nW.
@@ -568,28 +620,60 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
     }
 
     fn enqueue_hello(&mut self) {
-        let hello = Hello {
-            protocol: PROTOCOL_VERSION,
-            firmware: FIRMWARE_VERSION,
-            node_id: self.node_id,
-            boot_id: self.boot_id,
-            sample_period_us: self.sample_period_us,
-            config: self.config.clone(),
-            config_source: self.config_source,
-            totals: self.totals(),
-        };
-        self.enqueue(UplinkBody::Hello(hello));
+        let totals = self.totals();
+        self.push_queued(QueuedBody::Hello { totals });
     }
 
     fn enqueue(&mut self, body: UplinkBody) {
-        let message = Uplink {
+        let queued = match body {
+            UplinkBody::Hello(h) => QueuedBody::Hello { totals: h.totals },
+            UplinkBody::Report(r) => QueuedBody::Report(r),
+            UplinkBody::Event(e) => QueuedBody::Event(e),
+            UplinkBody::Samples(s) => QueuedBody::Samples(s),
+            UplinkBody::Reply(r) => QueuedBody::Reply(r),
+            UplinkBody::Load(e) => QueuedBody::Load(e),
+            UplinkBody::Harvest(h) => QueuedBody::Harvest(h),
+        };
+        self.push_queued(queued);
+    }
+
+    fn push_queued(&mut self, body: QueuedBody) {
+        let queued = Queued {
             seq: self.seq,
             uptime_ms: self.now_us / 1000,
             body,
         };
         self.seq = self.seq.wrapping_add(1);
-        if self.outbox.push_back(message).is_err() {
+        if self.outbox.push_back(queued).is_err() {
             self.stats.dropped_messages = self.stats.dropped_messages.saturating_add(1);
+        }
+    }
+
+    /// The message a queued entry stands for; a `Hello` is completed here
+    /// with the configuration active now.
+    fn uplink_of(&self, queued: Queued) -> Uplink {
+        let body = match queued.body {
+            QueuedBody::Hello { totals } => UplinkBody::Hello(Hello {
+                protocol: PROTOCOL_VERSION,
+                firmware: FIRMWARE_VERSION,
+                node_id: self.node_id,
+                boot_id: self.boot_id,
+                sample_period_us: self.sample_period_us,
+                config: self.config.clone(),
+                config_source: self.config_source,
+                totals,
+            }),
+            QueuedBody::Report(r) => UplinkBody::Report(r),
+            QueuedBody::Event(e) => UplinkBody::Event(e),
+            QueuedBody::Samples(s) => UplinkBody::Samples(s),
+            QueuedBody::Reply(r) => UplinkBody::Reply(r),
+            QueuedBody::Load(e) => UplinkBody::Load(e),
+            QueuedBody::Harvest(h) => UplinkBody::Harvest(h),
+        };
+        Uplink {
+            seq: queued.seq,
+            uptime_ms: queued.uptime_ms,
+            body,
         }
     }
 }

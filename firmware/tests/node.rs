@@ -341,8 +341,10 @@ fn node_state_is_small() {
     let bytes = core::mem::size_of::<Node<NoPin, MemoryStorage<STORE_LEN>>>();
     let storage = core::mem::size_of::<MemoryStorage<STORE_LEN>>();
     println!("Node: {bytes} bytes, of which {storage} simulated flash");
+    // Protocol 1's Node was 2,600 bytes on this host; the brown-out watch and
+    // forecast, the three cutoff trends and the harvest profile may add 1 KiB.
     assert!(
-        bytes - storage < 4096,
+        bytes - storage <= 2_600 + 1_024,
         "Node without its flash is {} bytes",
         bytes - storage
     );

@@ -2,7 +2,7 @@
 //! node and the host.
 //!
 //! * [`Uplink`] messages go from the node to the host: [`Hello`], [`Report`],
-//!   [`Event`], [`SampleBlock`], [`Reply`] and [`LoadEvent`],
+//!   [`Event`], [`SampleBlock`], [`Reply`], [`LoadEvent`] and [`SlotHarvest`],
 //!   each wrapped with a wrapping sequence number and the node's uptime.
 //! * [`Downlink`] messages go from the host to the node: a request id and a
 //!   [`Command`].
@@ -29,7 +29,7 @@
 //!
 //! Protocol 2 (this crate) added the node's identity and name, the load's
 //! supply thresholds, load events, the brown-out forecast with averaged load
-//! and net power, and the trigger values of transitions.
+//! and net power, hourly harvest slots with their predictions, and the trigger values of transitions.
 //!
 //! Golden-byte tests pin the encoding of every message kind.
 //!
@@ -87,7 +87,7 @@ pub use frame::{
 };
 pub use uplink::{
     ChannelStats, ConfigSource, CutoffState, EnergyTotals, Event, Hello, LoadCause, LoadEvent,
-    Outcome, Refusal, Reply, Report, ReportFlags, Sample, SampleBlock, StateDurations,
+    Outcome, Refusal, Reply, Report, ReportFlags, Sample, SampleBlock, SlotHarvest, StateDurations,
     TransitionCause, Uplink, UplinkBody, SAMPLES_PER_BLOCK,
 };
 pub use version::{FirmwareVersion, ProtocolVersion, VersionMismatch, PROTOCOL_VERSION};

@@ -39,12 +39,15 @@ pub enum UplinkBody {
     Reply(Reply),
     /// The load lost or regained its supply (since protocol 2).
     Load(LoadEvent),
+    /// An hour slot of harvest ended: what it brought and what was predicted (since protocol 2).
+    Harvest(SlotHarvest),
 }
 
 impl UplinkBody {
     /// Short names of the kinds, in wire order; their number is the number of kinds.
-    pub const KIND_NAMES: [&'static str; 6] =
-        ["hello", "report", "event", "samples", "reply", "load"];
+    pub const KIND_NAMES: [&'static str; 7] = [
+        "hello", "report", "event", "samples", "reply", "load", "harvest",
+    ];
 
     /// Position of this message's kind in wire order (an index into [`Self::KIND_NAMES`]).
     pub const fn kind_index(&self) -> usize {
@@ -55,6 +58,7 @@ impl UplinkBody {
             UplinkBody::Samples(_) => 3,
             UplinkBody::Reply(_) => 4,
             UplinkBody::Load(_) => 5,
+            UplinkBody::Harvest(_) => 6,
         }
     }
 
@@ -552,4 +556,23 @@ pub struct LoadEvent {
     pub converter_state_ms: u32,
     /// Net power (converter output less load) averaged as in [`Report::net_nw`].
     pub net_nw: i64,
+}
+
+/// One time-of-day slot of harvest: what it brought, and what the node's two
+/// predictors had said of it before it began.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct SlotHarvest {
+    /// The slot of the day that ended, counted from boot modulo a day's slots.
+    pub slot: u16,
+    /// Length of a slot.
+    pub slot_ms: u32,
+    /// Energy drawn from the harvester in the slot.
+    pub harvested_uj: u32,
+    /// The EWMA profile's prediction for this slot (None until a day is learned).
+    pub ewma_predicted_uj: Option<u32>,
+    /// The WCMA prediction for this slot (None until learned).
+    pub wcma_predicted_uj: Option<u32>,
+    /// Harvest the EWMA profile predicts for the next 24 hours.
+    pub next_day_uj: Option<u64>,
 }

@@ -117,6 +117,22 @@ pub fn example_event() -> Uplink {
     }
 }
 
+/// An hour of harvest with both predictions.
+pub fn example_harvest() -> Uplink {
+    Uplink {
+        seq: 4_401,
+        uptime_ms: 7_200_000,
+        body: UplinkBody::Harvest(SlotHarvest {
+            slot: 1,
+            slot_ms: 3_600_000,
+            harvested_uj: 180_000,
+            ewma_predicted_uj: Some(200_000),
+            wcma_predicted_uj: Some(185_000),
+            next_day_uj: Some(1_900_000),
+        }),
+    }
+}
+
 /// The load browned out 31 minutes after the input was cut off.
 pub fn example_load_event() -> Uplink {
     Uplink {

@@ -6,6 +6,7 @@ pv.py desoto JSON: for each {g, t, alpha_sc, a_ref, il_ref, i0_ref, rsh_ref, rs}
   print pvlib.pvsystem.calcparams_desoto -> {il, i0, rs, rsh, a}.
 pv.py tmy DAY: the day-of-year's 24 hourly GHI values from the TMY3 file
   shipped in pvlib's wheel (723170TYA.CSV, public NSRDB data).
+pv.py tmy_year: the 8760 hourly GHI values of the same file.
 pv.py day_energy JSON: given cell reference parameters, the hourly GHI list,
   the cell temperature, the converter's fractional-Voc setting and the
   intervals it ran, the energy drawn at that operating point (pvlib), J.
@@ -47,6 +48,13 @@ def tmy_day(day_of_year):
     return [float(v) for v in ghi[start:start + 24]]
 
 
+def tmy_year():
+    """All 8760 hourly GHI values of the TMY3 file, W/m²."""
+    path = os.path.join(os.path.dirname(pvlib.__file__), "data", "723170TYA.CSV")
+    data, _ = pvlib.iotools.read_tmy3(path, map_variables=True)
+    return [float(v) for v in data["ghi"].to_numpy()]
+
+
 def day_energy(spec):
     hourly = np.array(spec["hourly"], dtype=float)
     t = np.arange(0.0, 24 * 3600.0 + 1.0, 10.0)  # every 10 s
@@ -75,6 +83,8 @@ if __name__ == "__main__":
         print(json.dumps(desoto(json.loads(sys.argv[2]))))
     elif what == "tmy":
         print(json.dumps(tmy_day(int(sys.argv[2]))))
+    elif what == "tmy_year":
+        print(json.dumps(tmy_year()))
     elif what == "day_energy":
         print(json.dumps(day_energy(json.load(open(sys.argv[2])))))
     elif what == "constants":

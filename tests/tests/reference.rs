@@ -406,3 +406,29 @@ fn the_parquet_export_gives_the_report_totals_in_pyarrow_and_duckdb() {
         report.transitions.len()
     );
 }
+
+#[test]
+fn harvest_prediction_on_a_real_year_of_sunlight() {
+    // The TMY3 year shipped in pvlib's wheel (723170TYA.CSV, public NSRDB data,
+    // from memory) through our indoor module at 25 °C, hour by hour, into the
+    // node's own profile. The WCMA paper (Piorno et al., 2009) reports WCMA
+    // ahead of EWMA on solar traces, and both beat "same as yesterday".
+    let ghi: Vec<f64> = serde_json::from_value(python("pv.py", &["tmy_year"])).unwrap();
+    assert_eq!(ghi.len(), 8760);
+    let hours = gleaner::sim::harvest_eval::hourly_energy_uj(&ghi, &PvCell::indoor_module(), 25.0);
+    let eval = gleaner::sim::harvest_eval::evaluate(&hours, 7);
+    println!(
+        "TMY3 year, {} hour slots, {} days: slot MAPE EWMA {:.1} %, WCMA {:.1} %, same-as-yesterday {:.1} %; day-ahead MAPE EWMA {:.1} %, same-as-yesterday {:.1} %",
+        eval.slots,
+        eval.days,
+        eval.ewma.slot_mape * 100.0,
+        eval.wcma.slot_mape * 100.0,
+        eval.naive.slot_mape * 100.0,
+        eval.ewma.daily_mape.unwrap() * 100.0,
+        eval.naive.daily_mape.unwrap() * 100.0
+    );
+    assert!(eval.days > 350 && eval.slots > 3000);
+    assert!(eval.wcma.slot_mape <= eval.ewma.slot_mape, "{eval:?}");
+    assert!(eval.ewma.slot_mape < eval.naive.slot_mape, "{eval:?}");
+    assert!(eval.ewma.daily_mape < eval.naive.daily_mape, "{eval:?}");
+}

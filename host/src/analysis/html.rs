@@ -229,6 +229,18 @@ pub fn render(r: &RunReport) -> Result<String, Box<dyn std::error::Error>> {
             svg
         );
     }
+    if !r.harvest.slots.is_empty() {
+        let h = &r.harvest;
+        let pct = |x: Option<f64>| x.map_or("-".to_string(), |v| format!("{:.1} %", v * 100.0));
+        let _ = writeln!(
+            page,
+            "<h2>Harvest prediction</h2>\n<p>Mean error over slots with harvest: EWMA {}, WCMA {}; next 24 h predicted {}; energy-neutral duty cycle {}.</p>",
+            pct(h.ewma_mape),
+            pct(h.wcma_mape),
+            h.next_day_j.map_or("-".to_string(), energy),
+            pct(h.energy_neutral_duty)
+        );
+    }
     page.push_str("<h2>Load outages</h2>\n<table><tr><th>start</th><th>duration</th><th>cause</th><th>what happened</th></tr>\n");
     for o in &r.load_outages {
         let _ = writeln!(

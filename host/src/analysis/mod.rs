@@ -6,6 +6,7 @@
 //! [`Analyzer::finish`] gives a [`RunReport`], which renders as text, JSON
 //! ([`REPORT_SCHEMA`]) or an HTML page with SVG plots.
 
+pub mod harvest;
 pub mod html;
 pub mod load_outages;
 pub mod series;
@@ -20,6 +21,7 @@ use serde::Serialize;
 
 use crate::link::{LinkStats, LinkTracker, Tracked};
 use crate::log::{LogHeader, MarkerKind, Record, RecordBody};
+use harvest::{HarvestForecast, HarvestSlots};
 use load_outages::{LoadOutage, LoadOutages};
 use series::{Sample, Series};
 use sizing::{advise, Figures, SizingAdvice, DEFAULT_MARGIN};
@@ -200,6 +202,8 @@ pub struct RunReport {
     pub outages: Vec<Outage>,
     /// Every time the load itself lost power, with the cause chain.
     pub load_outages: Vec<LoadOutage>,
+    /// Hourly harvest against the node's predictions, and tomorrow's harvest.
+    pub harvest: HarvestForecast,
     /// Energy totals.
     pub energy: EnergyTotals,
     /// Efficiency by input voltage.
@@ -276,6 +280,7 @@ pub struct Analyzer {
     open_outage: Option<Outage>,
     outages: Vec<Outage>,
     load_outages: LoadOutages,
+    harvest: HarvestSlots,
     last_input_v: f64,
     last_output_v: f64,
     max_output_v: f64,
@@ -328,6 +333,7 @@ impl Analyzer {
             open_outage: None,
             outages: Vec::new(),
             load_outages: LoadOutages::new(),
+            harvest: HarvestSlots::new(),
             last_input_v: 0.0,
             last_output_v: 0.0,
             max_output_v: 0.0,
@@ -413,6 +419,7 @@ impl Analyzer {
             UplinkBody::Report(r) => self.add_report(t_s, r),
             UplinkBody::Event(e) => self.add_event(t_s, e),
             UplinkBody::Load(e) => self.load_outages.push(t_s, e),
+            UplinkBody::Harvest(h) => self.harvest.push(t_s, h),
             UplinkBody::Samples(_) | UplinkBody::Reply(_) => {}
         }
         if let Some(count) = self.counts.get_mut(body.kind_index()) {
@@ -663,6 +670,11 @@ impl Analyzer {
                 active_w: self.active_w,
             })
         });
+        let harvest = std::mem::take(&mut self.harvest).finish(
+            self.sleep_w.unwrap_or(0.0),
+            self.active_w,
+            energy.efficiency,
+        );
         let link = *self.tracker.stats();
         if link.likely_wrong_baud() {
             self.warnings.push(
@@ -685,6 +697,7 @@ impl Analyzer {
             states,
             outages: self.outages,
             load_outages,
+            harvest,
             energy,
             efficiency_by_input,
             days,

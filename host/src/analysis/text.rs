@@ -58,6 +58,45 @@ fn write_load_outages(o: &mut String, r: &RunReport) -> std::fmt::Result {
     writeln!(o)
 }
 
+/// Hourly harvest against the node's predictions (the last day of slots).
+fn write_harvest(o: &mut String, r: &RunReport) -> std::fmt::Result {
+    let h = &r.harvest;
+    if h.slots.is_empty() {
+        return Ok(());
+    }
+    writeln!(o, "HARVEST PREDICTION (hour slots from the node's boot)")?;
+    let pct = |x: Option<f64>| x.map_or("-".to_string(), |v| format!("{:.1} %", v * 100.0));
+    writeln!(
+        o,
+        "  mean error over slots with harvest: EWMA {}, WCMA {}",
+        pct(h.ewma_mape),
+        pct(h.wcma_mape)
+    )?;
+    if let Some(day) = h.next_day_j {
+        writeln!(o, "  next 24 h predicted    {}", energy(day))?;
+    }
+    if let Some(duty) = h.energy_neutral_duty {
+        writeln!(
+            o,
+            "  energy-neutral duty    {:.2} % (largest duty cycle that harvest sustains)",
+            duty * 100.0
+        )?;
+    }
+    let opt = |x: Option<f64>| x.map_or("-".to_string(), energy);
+    for s in h.slots.iter().rev().take(24).rev() {
+        writeln!(
+            o,
+            "  at {:>11} slot {:>2}  harvested {:>11}  EWMA {:>11}  WCMA {:>11}",
+            duration(s.t_s),
+            s.slot,
+            energy(s.harvested_j),
+            opt(s.ewma_j),
+            opt(s.wcma_j)
+        )?;
+    }
+    writeln!(o)
+}
+
 /// Formats joules with a fitting prefix.
 pub fn energy(joules: f64) -> String {
     let a = joules.abs();
@@ -215,8 +254,9 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
             }
         )?;
     }
+    writeln!(o)?;
+    write_harvest(o, r)?;
     if let Some(s) = &r.sizing {
-        writeln!(o)?;
         writeln!(o, "STORAGE AND DUTY CYCLE")?;
         if s.outage_s > 0.0 {
             writeln!(o, "  longest outage        {}", duration(s.outage_s))?;

@@ -10,6 +10,7 @@ pub mod converter;
 pub mod corpus;
 pub mod engine;
 pub mod environment;
+pub mod harvest_eval;
 pub mod load;
 pub mod numeric;
 pub mod port;

@@ -108,7 +108,7 @@ impl LiveState {
                 }
             }
             UplinkBody::Load(e) => self.last_load = Some((tracked.message.uptime_ms, *e)),
-            UplinkBody::Samples(_) | UplinkBody::Reply(_) => {}
+            UplinkBody::Samples(_) | UplinkBody::Reply(_) | UplinkBody::Harvest(_) => {}
         }
     }
 
