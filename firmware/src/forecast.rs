@@ -317,6 +317,25 @@ pub fn storage_level_nj(c_uf: u32, v_uv: u32) -> i64 {
     i64::try_from(nj).unwrap_or(i64::MAX)
 }
 
+/// Storage energy that a constant-current load can use between `v_uv` and
+/// `min_uv`, counted at the present power: `C V (V - Vmin)`, nJ (negative
+/// below the minimum).
+///
+/// A load drawing a constant current (a microcontroller on the storage
+/// directly or behind a linear regulator; common practice) takes power in
+/// proportion to the voltage, so from `C V dV/dt = -P V / V0` storage lasts
+/// `t = C V0 (V0 - Vmin) / P0`: the same as this energy over the present
+/// power. (`C (V² - Vmin²) / 2` over it would be a constant-power load's time,
+/// shorter by `(V + Vmin) / 2V`.)
+pub fn usable_at_constant_current_nj(c_uf: u32, v_uv: u32, min_uv: u32) -> i64 {
+    let above = i128::from(v_uv).saturating_sub(i128::from(min_uv));
+    let nj = i128::from(c_uf)
+        .saturating_mul(i128::from(v_uv))
+        .saturating_mul(above)
+        / 1_000_000_000;
+    i64::try_from(nj).unwrap_or(if nj < 0 { i64::MIN } else { i64::MAX })
+}
+
 /// Milliseconds that `c_uf` of storage at `from_uv` can supply `load_nw` before
 /// falling to `to_uv`. None without storage or load; Some(0) when already below.
 pub fn storage_runout_ms(c_uf: u32, from_uv: u32, to_uv: u32, load_nw: u64) -> Option<u32> {
@@ -519,6 +538,23 @@ mod tests {
         let usable =
             storage_level_nj(10_000_000, 2_700_000) - storage_level_nj(10_000_000, 900_000);
         assert_eq!(usable, 32_400_000_000);
+    }
+
+    #[test]
+    fn constant_current_run_out_worked_example() {
+        // Any physics text: 10 F from 2.7 V to 0.9 V at a constant 10 mA lasts
+        // t = C dV / I = 1800 s. At 2.7 V the load takes 27 mW.
+        let usable = usable_at_constant_current_nj(10_000_000, 2_700_000, 900_000);
+        assert_eq!(usable, 48_600_000_000);
+        let stopped = DrainOutlook {
+            usable_nj: usable,
+            load_nw: 27_000_000,
+            net_nw: -27_000_000,
+            converting: false,
+            input_cutoff_in_ms: None,
+        };
+        assert_eq!(brownout_ms(&stopped), Some(1_800_000));
+        assert!(usable_at_constant_current_nj(10, 800_000, 900_000) < 0);
     }
 
     #[test]

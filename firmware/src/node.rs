@@ -16,8 +16,8 @@ use crate::config::validate;
 use crate::config_store;
 use crate::cutoff::{CutoffDetector, Observation};
 use crate::forecast::{
-    brownout_ms, storage_level_nj, CutoffForecaster, DrainOutlook, InputSeen, PowerAverage,
-    HARVEST_AVERAGE_MS, LOAD_AVERAGE_MS,
+    brownout_ms, storage_level_nj, usable_at_constant_current_nj, CutoffForecaster, DrainOutlook,
+    InputSeen, PowerAverage, HARVEST_AVERAGE_MS, LOAD_AVERAGE_MS,
 };
 use crate::harvest_profile::{HarvestProfile, SLOT_MS};
 use crate::interval::IntervalStats;
@@ -536,8 +536,8 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
         self.brownout_in_ms = if c_uf == 0 || !self.load_watch.is_powered() {
             None
         } else {
-            let usable = storage_level_nj(c_uf, self.smoothed_output_uv)
-                .saturating_sub(storage_level_nj(c_uf, t.load_min_uv));
+            let usable =
+                usable_at_constant_current_nj(c_uf, self.smoothed_output_uv, t.load_min_uv);
             brownout_ms(&DrainOutlook {
                 usable_nj: usable,
                 load_nw: self.load_power.mean_nw(),
