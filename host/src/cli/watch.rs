@@ -110,7 +110,10 @@ pub fn replay(
                     if observer.tick(tracker.stats(), Duration::ZERO) {
                         return Ok(());
                     }
-                    std::thread::sleep((due - started.elapsed()).min(Duration::from_millis(50)));
+                    std::thread::sleep(
+                        due.saturating_sub(started.elapsed())
+                            .min(Duration::from_millis(50)),
+                    );
                 }
             }
             if let Ok(Some(tracked)) = tracker.accept_encoded(bytes) {

@@ -48,7 +48,9 @@ impl<'a> LiveObserver<'a> {
             display,
             title: title.into(),
             last_line: None,
-            last_draw: Instant::now() - Duration::from_secs(1),
+            last_draw: Instant::now()
+                .checked_sub(Duration::from_secs(1))
+                .unwrap_or_else(Instant::now),
             out,
             done,
             quit: false,
