@@ -33,6 +33,9 @@ pub struct CommandScript {
     waiting: Option<(u16, Step, Instant)>,
     timeout: Duration,
     hello: Option<Hello>,
+    /// When the script began, and whether the node has been heard from since.
+    started: Instant,
+    heard: bool,
     /// Each step with its outcome (None: no answer in time).
     pub results: Vec<(Step, Option<Outcome>)>,
     /// Problems preparing a step (bad settings for this node).
@@ -48,6 +51,8 @@ impl CommandScript {
             waiting: None,
             timeout,
             hello: None,
+            started: Instant::now(),
+            heard: false,
             results: Vec::new(),
             errors: Vec::new(),
         }
@@ -60,6 +65,7 @@ impl CommandScript {
 
     /// Takes a received message.
     pub fn message(&mut self, tracked: &Tracked) {
+        self.heard = true;
         match &tracked.message.body {
             UplinkBody::Hello(h) => self.hello = Some(h.clone()),
             UplinkBody::Reply(r) => {
@@ -75,8 +81,14 @@ impl CommandScript {
         }
     }
 
-    /// The next command's bytes, when one is due.
+    /// The next command's bytes, when one is due. The first waits until the
+    /// node has been heard from (a node still booting may drop what it is
+    /// sent: an emulated UART before its firmware runs, say), or one timeout
+    /// of silence.
     pub fn outgoing(&mut self) -> Option<Vec<u8>> {
+        if !self.heard && self.started.elapsed() < self.timeout {
+            return None;
+        }
         if let Some((_, _, sent)) = &self.waiting {
             if sent.elapsed() < self.timeout {
                 return None;
