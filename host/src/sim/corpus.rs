@@ -61,11 +61,9 @@ pub struct CorpusEntry {
 pub const CORPUS_SAMPLE_MS: u32 = 1000;
 
 /// The node settings every corpus scenario shares (report every 10 s, the
-/// Sagging horizon 20 minutes, shedding when brown-out is within 30 minutes).
+/// Sagging horizon 20 minutes, shedding when brown-out is within 30 minutes);
+/// they follow `[node]` and the converter's own start and hold voltages.
 const NODE: &str = r#"
-[node]
-start_v = 0.8
-hold_v = 0.7
 report_interval_ms = 10000
 debounce_ms = 1000
 output_up_v = 2.0
@@ -168,6 +166,8 @@ pub fn corpus_entry(seed: u64, index: usize) -> Result<CorpusEntry> {
         "{{ kind = \"fractional-voc\", fraction = {} }}",
         rng.random_range(0.75..0.9)
     );
+    // The node is told the converter's real start voltage (hold is 0.7 V for all).
+    let start_v = if kind == CorpusKind::CellKnee { 0.8 } else { 0.95 };
     let (hours, start_hour, body) = match kind {
         CorpusKind::SolarEvening => {
             let start = rng.random_range(13.0..16.0);
@@ -175,7 +175,7 @@ pub fn corpus_entry(seed: u64, index: usize) -> Result<CorpusEntry> {
             let storage = rng.random_range(0.05..0.5);
             let drawn = rng.random_range(60.0..200.0);
             let source = solar(&mut rng, drawn, sunset);
-            let conv = converter(&mut rng, 0.95, &fractional, storage);
+            let conv = converter(&mut rng, start_v, &fractional, storage);
             (sunset - start + 10.0, start, format!("{source}\n{conv}"))
         }
         CorpusKind::CellKnee => {
@@ -189,7 +189,7 @@ pub fn corpus_entry(seed: u64, index: usize) -> Result<CorpusEntry> {
                 rng.random_range(20.0..60.0)
             );
             let drawn = rng.random_range(0.02..0.3);
-            let conv = converter(&mut rng, 0.8, &input, drawn);
+            let conv = converter(&mut rng, start_v, &input, drawn);
             (10.0, 9.0, format!("{source}\n{conv}"))
         }
         CorpusKind::CapacitorSource => {
@@ -201,7 +201,7 @@ pub fn corpus_entry(seed: u64, index: usize) -> Result<CorpusEntry> {
                 rng.random_range(1.5..2.7),
             );
             let drawn = rng.random_range(0.01..0.2);
-            let conv = converter(&mut rng, 0.95, &fractional, drawn);
+            let conv = converter(&mut rng, start_v, &fractional, drawn);
             (10.0, 20.0, format!("{source}\n{conv}"))
         }
         CorpusKind::HeavyLoad => {
@@ -209,13 +209,13 @@ pub fn corpus_entry(seed: u64, index: usize) -> Result<CorpusEntry> {
             let drawn = rng.random_range(25.0..60.0);
             let source = solar(&mut rng, drawn, 19.0);
             let drawn = rng.random_range(0.05..0.3);
-            let conv = converter(&mut rng, 0.95, &fractional, drawn);
+            let conv = converter(&mut rng, start_v, &fractional, drawn);
             (6.0, start, format!("{source}\n{conv}"))
         }
     };
     let load = sensor_load(&mut rng, kind);
     let text = format!(
-        "name = \"corpus-{}-{index}\"\ndescription = \"Invented: corpus scenario {index} ({}) drawn from seed {seed}, for judging forecasts.\"\nduration_h = {hours}\nstart_hour = {start_hour}\nsample_period_ms = {CORPUS_SAMPLE_MS}\nseed = {scenario_seed}\n\n{body}\n{load}\n{FRONT_END}\n{NODE}",
+        "name = \"corpus-{}-{index}\"\ndescription = \"Invented: corpus scenario {index} ({}) drawn from seed {seed}, for judging forecasts.\"\nduration_h = {hours}\nstart_hour = {start_hour}\nsample_period_ms = {CORPUS_SAMPLE_MS}\nseed = {scenario_seed}\n\n{body}\n{load}\n{FRONT_END}\n[node]\nstart_v = {start_v}\nhold_v = 0.7\n{NODE}",
         kind.name(),
         kind.name(),
     );
