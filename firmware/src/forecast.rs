@@ -21,6 +21,8 @@
 
 use heapless::HistoryBuf;
 
+use crate::wide::Wide;
+
 /// Points kept by each trend.
 pub const TREND_POINTS: usize = 16;
 /// Fewest points for a forecast.
@@ -36,6 +38,135 @@ pub const LOAD_AVERAGE_MS: u32 = 600_000;
 /// Time constant of the converter output's power average (2 minutes): the
 /// harvest changes with clouds and sunset, so it is followed more closely.
 pub const HARVEST_AVERAGE_MS: u32 = 120_000;
+/// Fewest points for the logarithmic decline (a curvature needs more than a line).
+pub const MIN_LOG_DECLINE_POINTS: usize = 6;
+/// Voltages enter the logarithmic-decline fit in units of 10 µV, times in seconds.
+const LOG_V_UNIT_UV: u32 = 10;
+/// One in Q16 fixed point.
+const Q16: i128 = 1 << 16;
+
+/// Sums for a least-squares parabola `v = a + b t + c t²` (t relative to the
+/// newest point, which is t = 0).
+#[derive(Debug, Default)]
+struct QuadSums {
+    n: i128,
+    t: i128,
+    t2: i128,
+    t3: i128,
+    t4: i128,
+    v: i128,
+    tv: i128,
+    t2v: i128,
+}
+
+impl QuadSums {
+    fn add(&mut self, t: i128, v: i128) {
+        let t2 = t.sat_mul(t);
+        self.n = self.n.sat_add(1);
+        self.t = self.t.sat_add(t);
+        self.t2 = self.t2.sat_add(t2);
+        self.t3 = self.t3.sat_add(t2.sat_mul(t));
+        self.t4 = self.t4.sat_add(t2.sat_mul(t2));
+        self.v = self.v.sat_add(v);
+        self.tv = self.tv.sat_add(t.sat_mul(v));
+        self.t2v = self.t2v.sat_add(t2.sat_mul(v));
+    }
+
+    /// Determinant of the 3x3 matrix with rows `r`.
+    fn det(r: [[i128; 3]; 3]) -> Option<i128> {
+        let [[a, b, c], [d, e, f], [g, h, i]] = r;
+        let m1 = e.wide_mul(i)?.wide_sub(f.wide_mul(h)?)?;
+        let m2 = d.wide_mul(i)?.wide_sub(f.wide_mul(g)?)?;
+        let m3 = d.wide_mul(h)?.wide_sub(e.wide_mul(g)?)?;
+        a.wide_mul(m1)?
+            .wide_sub(b.wide_mul(m2)?)?
+            .wide_add(c.wide_mul(m3)?)
+    }
+
+    /// Cramer's rule: the determinant of the normal equations and the three
+    /// numerators, so that `a = d0 / d`, `b = d1 / d`, `c = d2 / d`.
+    fn solve(&self) -> Option<(i128, [i128; 3])> {
+        let m = [
+            [self.n, self.t, self.t2],
+            [self.t, self.t2, self.t3],
+            [self.t2, self.t3, self.t4],
+        ];
+        let y = [self.v, self.tv, self.t2v];
+        let d = Self::det(m)?;
+        let mut numerators = [0i128; 3];
+        for (k, out) in numerators.iter_mut().enumerate() {
+            let mut mk = m;
+            for (row, &yi) in mk.iter_mut().zip(&y) {
+                *row.get_mut(k)? = yi;
+            }
+            *out = Self::det(mk)?;
+        }
+        Some((d, numerators))
+    }
+}
+
+/// `e^(-x)` for `x` in Q16, in Q16: `2^(-x log2 e)`, the fraction by its
+/// Taylor polynomial to the fifth power (error below 2e-4).
+fn exp_neg_q16(x_q16: i128) -> i128 {
+    if x_q16 <= 0 {
+        return Q16;
+    }
+    // log2(e) = 1.442695 in Q16.
+    let y = x_q16.sat_mul(94_548) >> 16;
+    let whole = y >> 16;
+    if whole >= 32 {
+        return 0;
+    }
+    let u = y & 0xFFFF; // fraction of a halving, Q16
+                        // 2^(-u) = e^(-u ln2): 1 - k u + (k u)²/2 - (k u)³/6 + (k u)⁴/24, k u in Q16.
+    let ku = u.sat_mul(45_426) >> 16; // ln 2 in Q16
+    let ku2 = ku.sat_mul(ku) >> 16;
+    let ku3 = ku2.sat_mul(ku) >> 16;
+    let ku4 = ku3.sat_mul(ku) >> 16;
+    let ku5 = ku4.sat_mul(ku) >> 16;
+    let frac = Q16
+        .sat_sub(ku)
+        .sat_add(ku2 / 2)
+        .sat_sub(ku3 / 6)
+        .sat_add(ku4 / 24)
+        .sat_sub(ku5 / 120);
+    frac >> whole
+}
+
+/// Time until a value falling along a logarithmic curve reaches `level`.
+///
+/// A solar cell's voltage (and a converter input held at a fraction of it)
+/// goes as `V = c + b ln(G)`; towards sunset the light `G` falls about
+/// linearly, so `V(t) = V0 + b ln(1 - t / τ)`: a fall that speeds up. From a
+/// parabola fitted to the window, slope `V'` and curvature `V''` (both
+/// negative) give `τ = V' / V''` and `b = -V' τ`, and the level is reached at
+/// `t = τ (1 - e^(-(V0 - level) / b))`. A capacitor emptied at constant power
+/// (`V² = A - B t`) gives nearly the same time by this formula, so it serves
+/// there too. None when not falling, or not speeding up (a line is the
+/// other trends' case).
+fn log_decline_ms(sums: &QuadSums, level: i128) -> Option<u32> {
+    let (d, [d0, d1, d2]) = sums.solve()?;
+    if d <= 0 || d1 >= 0 || d2 >= 0 {
+        return None;
+    }
+    // τ = V'/V'' = b / (2 c) = d1 / (2 d2), seconds.
+    let tau_s = d1.wide_div(d2.wide_mul(2)?)?;
+    // b_log = -V' τ, in value units.
+    let slope_q16 = d1.wide_mul(Q16)?.wide_div(d)?;
+    let b_log = slope_q16.checked_neg()?.wide_mul(tau_s)? >> 16;
+    let v0 = d0.wide_div(d)?;
+    if v0 <= level {
+        return Some(0);
+    }
+    if b_log <= 0 {
+        return None;
+    }
+    let x_q16 = v0.wide_sub(level)?.wide_mul(Q16)?.wide_div(b_log)?;
+    let remaining_q16 = Q16.wide_sub(exp_neg_q16(x_q16))?;
+    let ms = tau_s.wide_mul(1000)?.wide_mul(remaining_q16)? >> 16;
+    u32::try_from(ms).ok()
+}
+
 /// Input voltages are fitted in units of 256 µV, squared, so the sums of a
 /// window stay well inside 128 bits.
 const V_UNIT_UV: u64 = 256;
@@ -43,7 +174,7 @@ const V_UNIT_UV: u64 = 256;
 /// The square of `uv` in (256 µV)² units.
 fn squared(uv: u32) -> i128 {
     let v = i128::from(u64::from(uv) / V_UNIT_UV);
-    v.saturating_mul(v)
+    v.sat_mul(v)
 }
 
 /// Least-squares sums of `(t, y)` points with `t` relative to the newest point.
@@ -59,45 +190,39 @@ struct Sums {
 
 impl Sums {
     fn add(&mut self, t: i128, y: i128) {
-        self.n = self.n.saturating_add(1);
-        self.t = self.t.saturating_add(t);
-        self.y = self.y.saturating_add(y);
-        self.tt = self.tt.saturating_add(t.saturating_mul(t));
-        self.ty = self.ty.saturating_add(t.saturating_mul(y));
-        self.yy = self.yy.saturating_add(y.saturating_mul(y));
+        self.n = self.n.sat_add(1);
+        self.t = self.t.sat_add(t);
+        self.y = self.y.sat_add(y);
+        self.tt = self.tt.sat_add(t.sat_mul(t));
+        self.ty = self.ty.sat_add(t.sat_mul(y));
+        self.yy = self.yy.sat_add(y.sat_mul(y));
     }
 
     /// Time from t = 0 until the fitted line falls to `level`; None when not
     /// falling or r² < 1/2.
     fn time_to(&self, level: i128) -> Option<u32> {
         let n = self.n;
-        let sxx = n
-            .checked_mul(self.tt)?
-            .checked_sub(self.t.checked_mul(self.t)?)?;
-        let sxy = n
-            .checked_mul(self.ty)?
-            .checked_sub(self.t.checked_mul(self.y)?)?;
-        let syy = n
-            .checked_mul(self.yy)?
-            .checked_sub(self.y.checked_mul(self.y)?)?;
+        let sxx = n.wide_mul(self.tt)?.wide_sub(self.t.wide_mul(self.t)?)?;
+        let sxy = n.wide_mul(self.ty)?.wide_sub(self.t.wide_mul(self.y)?)?;
+        let syy = n.wide_mul(self.yy)?.wide_sub(self.y.wide_mul(self.y)?)?;
         if sxx <= 0 || sxy >= 0 {
             return None; // all points at one time, or not falling
         }
         // r² = sxy² / (sxx syy) >= 1/2, compared without division.
-        if sxy.checked_mul(sxy)?.checked_mul(2)? < sxx.checked_mul(syy)? {
+        if sxy.wide_mul(sxy)?.wide_mul(2)? < sxx.wide_mul(syy)? {
             return None;
         }
         // Fitted value at t = 0 minus the level, over the falling rate:
         // t = (sy sxx - st sxy - level n sxx) / (n (-sxy)).
         let above = self
             .y
-            .checked_mul(sxx)?
-            .checked_sub(self.t.checked_mul(sxy)?)?
-            .checked_sub(level.checked_mul(n)?.checked_mul(sxx)?)?;
+            .wide_mul(sxx)?
+            .wide_sub(self.t.wide_mul(sxy)?)?
+            .wide_sub(level.wide_mul(n)?.wide_mul(sxx)?)?;
         if above <= 0 {
             return Some(0);
         }
-        let ms = above.checked_div(n.checked_mul(sxy.checked_neg()?)?)?;
+        let ms = above.wide_div(n.wide_mul(sxy.checked_neg()?)?)?;
         Some(u32::try_from(ms).unwrap_or(u32::MAX))
     }
 }
@@ -179,6 +304,31 @@ impl InputTrend {
         self.block_count = 0;
     }
 
+    /// Milliseconds from the newest point to `now_ms` (wrapping times).
+    fn age_ms(&self, now_ms: u64) -> u32 {
+        #[allow(clippy::cast_possible_truncation)]
+        let now = now_ms as u32;
+        self.points
+            .recent()
+            .map_or(0, |&(t, _)| now.wrapping_sub(t))
+    }
+
+    /// Milliseconds from the newest point until a logarithmic decline fitted
+    /// to the values reaches `threshold`; see [`log_decline_ms`].
+    pub fn log_decline_to(&self, threshold: u32) -> Option<u32> {
+        if self.points.len() < MIN_LOG_DECLINE_POINTS {
+            return None;
+        }
+        let &(t_now, _) = self.points.recent()?;
+        let mut sums = QuadSums::default();
+        for &(t, v) in self.points.oldest_ordered() {
+            #[allow(clippy::cast_possible_wrap)]
+            let dt_ms = t.wrapping_sub(t_now) as i32;
+            sums.add(i128::from(dt_ms / 1000), i128::from(v / LOG_V_UNIT_UV));
+        }
+        log_decline_ms(&sums, i128::from(threshold / LOG_V_UNIT_UV))
+    }
+
     /// Milliseconds from the newest point until the fitted line reaches
     /// `threshold`: Some(0) when it already has, None when not falling or too noisy.
     pub fn time_to_reach(&self, threshold: u32) -> Option<u32> {
@@ -250,16 +400,24 @@ impl CutoffForecaster {
         self.power.clear();
     }
 
-    /// Milliseconds until the input is cut off at `hold_uv` (with the
-    /// converter idle below `idle_na`), the earliest of the trends.
-    pub fn time_to_cutoff(&self, hold_uv: u32, idle_na: u32) -> Option<u32> {
+    /// Milliseconds from `now_ms` until the input is cut off at `hold_uv`
+    /// (with the converter idle below `idle_na`), the earliest of the trends.
+    pub fn time_to_cutoff(&self, now_ms: u64, hold_uv: u32, idle_na: u32) -> Option<u32> {
         // µV · nA = 1e-15 W = 1e-6 nW.
         let idle_nw = u64::from(hold_uv).saturating_mul(u64::from(idle_na)) / 1_000_000;
+        let idle_nw = u32::try_from(idle_nw).unwrap_or(u32::MAX);
+        let from_now = |trend: &InputTrend, ms: Option<u32>| {
+            ms.map(|ms| ms.saturating_sub(trend.age_ms(now_ms)))
+        };
+        let long = self.long.time_to_reach(hold_uv);
+        // The curve is read only where the half hour is a steady fall (the
+        // line through it is good): a cloud's dip and recovery is no sunset.
+        let curve = long.and_then(|_| self.long.log_decline_to(hold_uv));
         [
-            self.short.time_to_reach(hold_uv),
-            self.long.time_to_reach(hold_uv),
-            self.power
-                .time_to_reach(u32::try_from(idle_nw).unwrap_or(u32::MAX)),
+            from_now(&self.short, self.short.time_to_reach(hold_uv)),
+            from_now(&self.long, long),
+            from_now(&self.long, curve),
+            from_now(&self.power, self.power.time_to_reach(idle_nw)),
         ]
         .into_iter()
         .flatten()
@@ -292,15 +450,15 @@ impl PowerAverage {
         let tau_us = u64::from(time_constant_ms).saturating_mul(1000).max(1);
         self.weight_us = self.weight_us.saturating_add(length_us).min(tau_us);
         let power = i128::from(energy_nj)
-            .saturating_mul(1_000_000)
-            .checked_div(i128::from(length_us))
+            .sat_mul(1_000_000)
+            .wide_div(i128::from(length_us))
             .unwrap_or(0);
         let step = power
-            .saturating_sub(i128::from(self.mean_nw))
-            .saturating_mul(i128::from(length_us.min(self.weight_us)))
-            .checked_div(i128::from(self.weight_us))
+            .sat_sub(i128::from(self.mean_nw))
+            .sat_mul(i128::from(length_us.min(self.weight_us)))
+            .wide_div(i128::from(self.weight_us))
             .unwrap_or(0);
-        let mean = i128::from(self.mean_nw).saturating_add(step);
+        let mean = i128::from(self.mean_nw).sat_add(step);
         self.mean_nw = i64::try_from(mean).unwrap_or(if mean < 0 { i64::MIN } else { i64::MAX });
     }
 
@@ -328,11 +486,8 @@ pub fn storage_level_nj(c_uf: u32, v_uv: u32) -> i64 {
 /// power. (`C (V² - Vmin²) / 2` over it would be a constant-power load's time,
 /// shorter by `(V + Vmin) / 2V`.)
 pub fn usable_at_constant_current_nj(c_uf: u32, v_uv: u32, min_uv: u32) -> i64 {
-    let above = i128::from(v_uv).saturating_sub(i128::from(min_uv));
-    let nj = i128::from(c_uf)
-        .saturating_mul(i128::from(v_uv))
-        .saturating_mul(above)
-        / 1_000_000_000;
+    let above = i128::from(v_uv).sat_sub(i128::from(min_uv));
+    let nj = i128::from(c_uf).sat_mul(i128::from(v_uv)).sat_mul(above) / 1_000_000_000;
     i64::try_from(nj).unwrap_or(if nj < 0 { i64::MIN } else { i64::MAX })
 }
 
@@ -375,8 +530,8 @@ fn drain_ms(energy_nj: i64, drain_nw: i64) -> Option<u64> {
     }
     // nJ / nW = s.
     let ms = i128::from(energy_nj.max(0))
-        .saturating_mul(1000)
-        .checked_div(i128::from(drain_nw))?;
+        .sat_mul(1000)
+        .wide_div(i128::from(drain_nw))?;
     Some(u64::try_from(ms).unwrap_or(u64::MAX))
 }
 
@@ -397,10 +552,10 @@ pub fn brownout_ms(o: &DrainOutlook) -> Option<u32> {
         drain_ms(o.usable_nj, net_drain.max(o.load_nw))?
     } else if let Some(cutoff_ms) = o.input_cutoff_in_ms {
         let until_cutoff_nj = i128::from(net_drain.max(0))
-            .saturating_mul(i128::from(cutoff_ms))
-            .checked_div(1000)
+            .sat_mul(i128::from(cutoff_ms))
+            .wide_div(1000)
             .unwrap_or(0);
-        let left = i128::from(o.usable_nj).saturating_sub(until_cutoff_nj);
+        let left = i128::from(o.usable_nj).sat_sub(until_cutoff_nj);
         if left <= 0 {
             drain_ms(o.usable_nj, net_drain)?
         } else {
@@ -499,11 +654,47 @@ mod tests {
             short_only.push(i * 10_000, v);
         }
         assert_eq!(short_only.time_to_reach(700_000), None);
-        let ms = f.time_to_cutoff(700_000, 2_000).unwrap();
+        let ms = f.time_to_cutoff(399 * 10_000, 700_000, 2_000).unwrap();
         // The line through V: (0.896 - 0.7) V at 1 µV/s = 196,000 s. The V²
         // fit answers earlier (the safe side): (0.896² - 0.7²) / (2 · 0.896 · 1e-6)
         // = 174,560 s.
         assert!((173_000_000..=176_000_000).contains(&ms), "{ms}");
+    }
+
+    #[test]
+    fn exp_matches_the_float_function() {
+        for x in [0.0f64, 0.1, 0.5, 1.0, 2.0, 3.3, 7.0] {
+            let got = exp_neg_q16((x * 65536.0) as i128) as f64 / 65536.0;
+            assert!((got - (-x).exp()).abs() < 2e-4, "{x}: {got}");
+        }
+        assert_eq!(exp_neg_q16(40 * Q16), 0);
+    }
+
+    #[test]
+    fn a_logarithmic_decline_is_extrapolated_along_its_curve() {
+        // V(t) = 1.0 V + 0.08 V ln(1 - t / 3000 s), sampled every 120 s from
+        // t = 0 to 1800 s (16 blocks): reaches 0.7 V at
+        // t = 3000 (1 - e^(-0.3 / 0.08)) = 2929.45 s, i.e. 1129.45 s after the
+        // newest point. The same formula in f64 (numpy.polyfit for the
+        // parabola) gives 2153.3 s: a parabola over the window sees less
+        // curvature than the curve has at its end, so the model still errs
+        // late on a pure logarithm, though far less than a line does.
+        let v = |t: f64| 1.0 + 0.08 * (1.0 - t / 3000.0).ln();
+        let mut trend = InputTrend::new(Fit::Squared, 0);
+        for i in 0..16u64 {
+            let t = i as f64 * 120.0;
+            trend.push(i * 120_000, (v(t) * 1e6).round() as u32);
+        }
+        let got = trend.log_decline_to(700_000).unwrap() as f64 / 1e3;
+        assert!((got - 2153.3).abs() < 5.0, "{got}");
+        let line = trend.time_to_reach(700_000).unwrap() as f64 / 1e3;
+        assert!(line > got, "{line} vs {got}");
+        // A straight fall has no curvature: no answer from this model.
+        let mut straight = InputTrend::new(Fit::Squared, 0);
+        for i in 0..16u64 {
+            straight.push(i * 120_000, 1_000_000 - 1_000 * i as u32);
+        }
+        assert_eq!(straight.log_decline_to(700_000), None);
     }
 
     #[test]

@@ -78,6 +78,7 @@ pub mod load_watch;
 pub mod meter;
 mod node;
 pub mod sampler;
+mod wide;
 
 pub use calibration::RawSample;
 pub use node::{Node, NodeParts, NodeStats, FIRMWARE_VERSION, OUTBOX_LEN};

@@ -427,6 +427,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
 
     /// Ends the harvest slot when an hour has passed: learns it and sends it
     /// with what had been predicted for it.
+    #[inline(never)]
     fn close_slot_if_due(&mut self, t_us: u64) {
         let drawn_nj = self.meter.input.total_nj();
         let (start_us, start_nj) = *self.slot_start.get_or_insert((t_us, drawn_nj));
@@ -456,6 +457,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
 
     /// Watches the load's supply on every sample; a change is sent at once
     /// and the load-shed decision revisited.
+    #[inline(never)]
     fn watch_load(&mut self, now_ms: u64, sample: &Sample) {
         let converter = self.detector.state();
         let Some((powered, cause)) =
@@ -489,6 +491,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
     }
 
     /// Updates the averages and both forecasts at the end of an interval.
+    #[inline(never)]
     fn update_forecasts(
         &mut self,
         now_ms: u64,
@@ -528,7 +531,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             };
             self.cutoff_forecast.push(now_ms, seen);
             self.cutoff_forecast
-                .time_to_cutoff(t.hold_uv, t.input_idle_na)
+                .time_to_cutoff(now_ms, t.hold_uv, t.input_idle_na)
         } else {
             None
         };

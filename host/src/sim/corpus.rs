@@ -167,7 +167,11 @@ pub fn corpus_entry(seed: u64, index: usize) -> Result<CorpusEntry> {
         rng.random_range(0.75..0.9)
     );
     // The node is told the converter's real start voltage (hold is 0.7 V for all).
-    let start_v = if kind == CorpusKind::CellKnee { 0.8 } else { 0.95 };
+    let start_v = if kind == CorpusKind::CellKnee {
+        0.8
+    } else {
+        0.95
+    };
     let (hours, start_hour, body) = match kind {
         CorpusKind::SolarEvening => {
             let start = rng.random_range(13.0..16.0);
