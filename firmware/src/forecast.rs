@@ -313,17 +313,25 @@ impl InputTrend {
             .map_or(0, |&(t, _)| now.wrapping_sub(t))
     }
 
+    /// The points oldest first, each as (ms relative to the newest point, so
+    /// "now" is 0 and the rest negative; value). The wrapping difference is
+    /// read as signed: at most 24 days back.
+    fn since_newest(&self) -> impl Iterator<Item = (i32, u32)> + '_ {
+        let t_now = self.points.recent().map_or(0, |&(t, _)| t);
+        #[allow(clippy::cast_possible_wrap)]
+        self.points
+            .oldest_ordered()
+            .map(move |&(t, v)| (t.wrapping_sub(t_now) as i32, v))
+    }
+
     /// Milliseconds from the newest point until a logarithmic decline fitted
     /// to the values reaches `threshold`; see [`log_decline_ms`].
     pub fn log_decline_to(&self, threshold: u32) -> Option<u32> {
         if self.points.len() < MIN_LOG_DECLINE_POINTS {
             return None;
         }
-        let &(t_now, _) = self.points.recent()?;
         let mut sums = QuadSums::default();
-        for &(t, v) in self.points.oldest_ordered() {
-            #[allow(clippy::cast_possible_wrap)]
-            let dt_ms = t.wrapping_sub(t_now) as i32;
+        for (dt_ms, v) in self.since_newest() {
             sums.add(i128::from(dt_ms / 1000), i128::from(v / LOG_V_UNIT_UV));
         }
         log_decline_ms(&sums, i128::from(threshold / LOG_V_UNIT_UV))
@@ -335,14 +343,9 @@ impl InputTrend {
         if self.points.len() < MIN_TREND_POINTS {
             return None;
         }
-        let &(t_now, _) = self.points.recent()?;
         let mut sums = Sums::default();
-        for &(t, v) in self.points.oldest_ordered() {
-            // Time relative to the newest point (so "now" is t = 0), in ms.
-            // Wrapping difference read as signed: at most 24 days back.
-            #[allow(clippy::cast_possible_wrap)]
-            let dt = t.wrapping_sub(t_now) as i32;
-            sums.add(i128::from(dt), self.fit.apply(v));
+        for (dt_ms, v) in self.since_newest() {
+            sums.add(i128::from(dt_ms), self.fit.apply(v));
         }
         sums.time_to(self.fit.apply(threshold))
     }
