@@ -325,7 +325,8 @@ impl InputTrend {
     }
 
     /// Milliseconds from the newest point until a logarithmic decline fitted
-    /// to the values reaches `threshold`; see [`log_decline_ms`].
+    /// to the values reaches `threshold`: `V0 + b ln(1 - t / τ)`, read from the
+    /// window's slope and curvature (the fall of a solar input towards sunset).
     pub fn log_decline_to(&self, threshold: u32) -> Option<u32> {
         if self.points.len() < MIN_LOG_DECLINE_POINTS {
             return None;
