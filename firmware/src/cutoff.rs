@@ -294,7 +294,7 @@ mod tests {
     }
 
     #[test]
-    fn a_short_forecast_must_last_a_quarter_horizon_before_sagging() {
+    fn a_short_forecast_must_last_a_quarter_horizon_before_sagging() -> Result<(), &'static str> {
         // Default horizon 60 s, debounce 200 ms: the forecast needs 15 s.
         let mut detector = CutoffDetector::new(0);
         let mut seen = obs(GOOD, OUT_UP);
@@ -309,8 +309,11 @@ mod tests {
         for ms in (1_000..1_000 + confirm).step_by(100) {
             assert_eq!(detector.update(ms, &seen, &T), None);
         }
-        let event = detector.update(1_000 + confirm, &seen, &T).unwrap();
+        let event = detector
+            .update(1_000 + confirm, &seen, &T)
+            .ok_or("Sagging after a quarter horizon")?;
         assert_eq!((event.to, event.cause), (Sagging, ForecastUnderHorizon));
+        Ok(())
     }
 
     #[test]

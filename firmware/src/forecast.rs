@@ -577,7 +577,7 @@ mod tests {
     use super::*;
 
     #[test]
-    fn capacitor_discharge_at_constant_power_gives_the_exact_time() {
+    fn capacitor_discharge_at_constant_power_gives_the_exact_time() -> Result<(), &'static str> {
         // A capacitor under constant power falls linearly in V² (any physics
         // text: C (V1² - V2²) = 2 P t). 1 F at 2 mW: V² falls 0.004 V²/s.
         // From 1.2 V, 0.7 V is reached after (1.44 - 0.49) / 0.004 = 237.5 s.
@@ -586,9 +586,10 @@ mod tests {
         for s in 0..16u64 {
             trend.push(s * 1000, (v_at(s as f64) * 1e6).round() as u32);
         }
-        let got = trend.time_to_reach(700_000).unwrap();
+        let got = trend.time_to_reach(700_000).ok_or("a forecast")?;
         assert!((got as f64 - 237_500.0).abs() < 500.0, "{got}");
         assert_eq!(trend.time_to_reach(1_300_000), Some(0));
+        Ok(())
     }
 
     #[test]
@@ -640,7 +641,7 @@ mod tests {
     }
 
     #[test]
-    fn the_long_trend_sees_a_slow_fall_the_short_one_cannot() {
+    fn the_long_trend_sees_a_slow_fall_the_short_one_cannot() -> Result<(), &'static str> {
         // A 10 µV per 10 s fall, under ±1 mV of alternating noise: 16 short
         // points see mostly noise, 16 blocks of 2 min see the fall.
         let mut f = CutoffForecaster::new();
@@ -658,11 +659,14 @@ mod tests {
             short_only.push(i * 10_000, v);
         }
         assert_eq!(short_only.time_to_reach(700_000), None);
-        let ms = f.time_to_cutoff(399 * 10_000, 700_000, 2_000).unwrap();
+        let ms = f
+            .time_to_cutoff(399 * 10_000, 700_000, 2_000)
+            .ok_or("a forecast")?;
         // The line through V: (0.896 - 0.7) V at 1 µV/s = 196,000 s. The V²
         // fit answers earlier (the safe side): (0.896² - 0.7²) / (2 · 0.896 · 1e-6)
         // = 174,560 s.
         assert!((173_000_000..=176_000_000).contains(&ms), "{ms}");
+        Ok(())
     }
 
     #[test]
@@ -675,7 +679,7 @@ mod tests {
     }
 
     #[test]
-    fn a_logarithmic_decline_is_extrapolated_along_its_curve() {
+    fn a_logarithmic_decline_is_extrapolated_along_its_curve() -> Result<(), &'static str> {
         // V(t) = 1.0 V + 0.08 V ln(1 - t / 3000 s), sampled every 120 s from
         // t = 0 to 1800 s (16 blocks): reaches 0.7 V at
         // t = 3000 (1 - e^(-0.3 / 0.08)) = 2929.45 s, i.e. 1129.45 s after the
@@ -689,9 +693,9 @@ mod tests {
             let t = i as f64 * 120.0;
             trend.push(i * 120_000, (v(t) * 1e6).round() as u32);
         }
-        let got = trend.log_decline_to(700_000).unwrap() as f64 / 1e3;
+        let got = f64::from(trend.log_decline_to(700_000).ok_or("a curve")?) / 1e3;
         assert!((got - 2153.3).abs() < 5.0, "{got}");
-        let line = trend.time_to_reach(700_000).unwrap() as f64 / 1e3;
+        let line = f64::from(trend.time_to_reach(700_000).ok_or("a line")?) / 1e3;
         assert!(line > got, "{line} vs {got}");
         // A straight fall has no curvature: no answer from this model.
         let mut straight = InputTrend::new(Fit::Squared, 0);
@@ -699,6 +703,7 @@ mod tests {
             straight.push(i * 120_000, 1_000_000 - 1_000 * i as u32);
         }
         assert_eq!(straight.log_decline_to(700_000), None);
+        Ok(())
     }
 
     #[test]
