@@ -7,6 +7,7 @@ fn main() -> std::process::ExitCode {
     let cli = gleaner::cli::Cli::parse();
     match cli.run() {
         Ok(()) => std::process::ExitCode::SUCCESS,
+        Err(err) if gleaner::cli::is_closed_pipe(&err) => std::process::ExitCode::SUCCESS,
         Err(err) => {
             eprintln!("error: {err:#}");
             std::process::ExitCode::FAILURE

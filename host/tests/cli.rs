@@ -187,3 +187,34 @@ fn a_missing_port_says_how_to_find_the_node() {
     assert!(!ok);
     assert!(err.contains("gleaner ports"), "{err}");
 }
+
+#[test]
+fn a_report_into_a_pipe_closed_early_ends_quietly() {
+    // `gleaner report --json LOG | head`: the reader goes after a few bytes;
+    // the JSON (hundreds of kB with its plot series) no longer fits the pipe.
+    let dir = tempfile::tempdir().unwrap();
+    let log = dir.path().join("synthetic.glog");
+    let (ok, _, err) = run(&[
+        "sim",
+        "synthetic",
+        "--days",
+        "0.2",
+        "--out",
+        log.to_str().unwrap(),
+    ]);
+    assert!(ok, "{err}");
+    let mut child = gleaner()
+        .args(["report", "--json", log.to_str().unwrap()])
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    let mut first = [0u8; 16];
+    std::io::Read::read_exact(child.stdout.as_mut().unwrap(), &mut first).unwrap();
+    assert_eq!(first[0], b'{');
+    drop(child.stdout.take());
+    let out = child.wait_with_output().unwrap();
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(out.status.success(), "{:?} {stderr}", out.status);
+    assert!(!stderr.contains("panicked"), "{stderr}");
+}

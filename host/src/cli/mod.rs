@@ -48,6 +48,17 @@ pub enum Command {
     Sim(sim::Cmd),
 }
 
+/// True when `err` comes from writing to a pipe whose reader has gone
+/// (`gleaner report --json LOG | head`): the command ends quietly, as shell
+/// tools do.
+pub fn is_closed_pipe(err: &anyhow::Error) -> bool {
+    err.chain().any(|cause| {
+        cause
+            .downcast_ref::<std::io::Error>()
+            .is_some_and(|io| io.kind() == std::io::ErrorKind::BrokenPipe)
+    })
+}
+
 impl Cli {
     /// Runs the chosen command.
     pub fn run(self) -> anyhow::Result<()> {

@@ -1,5 +1,6 @@
 //! `gleaner report`: what happened in recorded runs.
 
+use std::io::Write;
 use std::path::PathBuf;
 
 use anyhow::{Context, Result};
@@ -38,27 +39,32 @@ impl Cmd {
                 .with_context(|| format!("cannot write {}", path.display()))?;
             eprintln!("wrote {}", path.display());
         }
+        // Written with errors returned, so a reader that closes the pipe
+        // early (`| head`) ends the command quietly (see `cli::is_closed_pipe`).
+        let mut out = std::io::stdout().lock();
         if self.json {
             if reports.len() == 1 {
-                println!("{}", serde_json::to_string_pretty(&reports[0].1)?);
+                writeln!(out, "{}", serde_json::to_string_pretty(&reports[0].1)?)?;
             } else {
                 let all: Vec<&RunReport> = reports.iter().map(|(_, r)| r).collect();
-                println!("{}", serde_json::to_string_pretty(&all)?);
+                writeln!(out, "{}", serde_json::to_string_pretty(&all)?)?;
             }
             return Ok(());
         }
         if reports.len() == 1 {
-            print!("{}", text::render(&reports[0].1));
+            write!(out, "{}", text::render(&reports[0].1))?;
             return Ok(());
         }
-        println!(
+        writeln!(
+            out,
             "{:<40} {:>12} {:>12} {:>12} {:>9} {:>8} {:>6}",
             "log", "duration", "drawn", "delivered", "eff.", "outages", "lost"
-        );
+        )?;
         let (mut drawn, mut delivered, mut stored, mut outages, mut lost) =
             (0.0, 0.0, 0.0, 0usize, 0u64);
         for (path, r) in &reports {
-            println!(
+            writeln!(
+                out,
                 "{:<40} {:>12} {:>12} {:>12} {:>9} {:>8} {:>6}",
                 path.file_name()
                     .map_or("?".into(), |n| n.to_string_lossy().into_owned()),
@@ -70,7 +76,7 @@ impl Cmd {
                     .map_or("-".into(), |e| format!("{:.1} %", e * 100.0)),
                 r.outages.len(),
                 r.link.lost_frames
-            );
+            )?;
             drawn += r.energy.drawn_j;
             delivered += r.energy.delivered_j;
             stored += r.energy.stored_j;
@@ -82,7 +88,8 @@ impl Cmd {
         } else {
             "-".into()
         };
-        println!(
+        writeln!(
+            out,
             "{:<40} {:>12} {:>12} {:>12} {:>9} {:>8} {:>6}",
             "FLEET",
             "",
@@ -91,7 +98,7 @@ impl Cmd {
             eff,
             outages,
             lost
-        );
+        )?;
         Ok(())
     }
 }
