@@ -240,7 +240,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
                 self.cutoff_forecast.clear();
                 self.input_cutoff_in_ms = None;
             }
-            self.enqueue(UplinkBody::Event(event));
+            self.enqueue(QueuedBody::Event(event));
         }
         self.watch_load(now_ms, &sample);
         self.close_slot_if_due(t_us);
@@ -268,7 +268,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
                     request_id: downlink.request_id,
                     outcome,
                 };
-                self.enqueue(UplinkBody::Reply(reply));
+                self.enqueue(QueuedBody::Reply(reply));
             }
         }
     }
@@ -420,7 +420,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             load_shed: self.shedder.is_shed(),
             flags: summary.flags,
         };
-        self.enqueue(UplinkBody::Report(report));
+        self.enqueue(QueuedBody::Report(report));
         self.interval.restart();
         self.interval_start = Some(self.interval_marker(t_us));
     }
@@ -438,7 +438,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             u32::try_from(drawn_nj.saturating_sub(start_nj) / 1000).unwrap_or(u32::MAX);
         let outcome = self.harvest.end_slot(harvested_uj);
         self.slot_start = Some((t_us, drawn_nj));
-        self.enqueue(UplinkBody::Harvest(SlotHarvest {
+        self.enqueue(QueuedBody::Harvest(SlotHarvest {
             slot: outcome.slot,
             slot_ms: SLOT_MS,
             harvested_uj,
@@ -476,7 +476,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             converter_state_ms: u32::try_from(in_state).unwrap_or(u32::MAX),
             net_nw: self.net_nw(),
         };
-        self.enqueue(UplinkBody::Load(event));
+        self.enqueue(QueuedBody::Load(event));
         self.revisit_load_shed(now_ms);
     }
 
@@ -574,7 +574,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
         if burst.remaining == 0 {
             self.burst = None;
         }
-        self.enqueue(UplinkBody::Samples(block));
+        self.enqueue(QueuedBody::Samples(block));
     }
 
     fn execute(&mut self, command: Command) -> Outcome {
@@ -624,23 +624,10 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
 
     fn enqueue_hello(&mut self) {
         let totals = self.totals();
-        self.push_queued(QueuedBody::Hello { totals });
+        self.enqueue(QueuedBody::Hello { totals });
     }
 
-    fn enqueue(&mut self, body: UplinkBody) {
-        let queued = match body {
-            UplinkBody::Hello(h) => QueuedBody::Hello { totals: h.totals },
-            UplinkBody::Report(r) => QueuedBody::Report(r),
-            UplinkBody::Event(e) => QueuedBody::Event(e),
-            UplinkBody::Samples(s) => QueuedBody::Samples(s),
-            UplinkBody::Reply(r) => QueuedBody::Reply(r),
-            UplinkBody::Load(e) => QueuedBody::Load(e),
-            UplinkBody::Harvest(h) => QueuedBody::Harvest(h),
-        };
-        self.push_queued(queued);
-    }
-
-    fn push_queued(&mut self, body: QueuedBody) {
+    fn enqueue(&mut self, body: QueuedBody) {
         let queued = Queued {
             seq: self.seq,
             uptime_ms: self.now_us / 1000,

@@ -9,6 +9,8 @@
 
 use gleaner_protocol::{CutoffState, Report, Uplink, UplinkBody};
 
+use gleaner_firmware::forecast::storage_runout_ms;
+
 use super::corpus::{corpus_entry, CorpusKind};
 use super::engine::VirtualNode;
 use super::GroundTruth;
@@ -58,9 +60,9 @@ impl OldForecasts {
         &mut self,
         t_s: f64,
         r: &Report,
-        c_f: f64,
+        c_uf: u32,
         hold_v: f64,
-        down_v: f64,
+        down_uv: u32,
     ) -> (Option<f64>, Option<f64>) {
         let converting = matches!(r.state, CutoffState::Harvesting | CutoffState::Sagging);
         if r.state == CutoffState::ColdStart {
@@ -76,10 +78,14 @@ impl OldForecasts {
         } else {
             None
         };
-        let load_w = r.delivered_nj as f64 / 1e9 / (f64::from(r.interval_ms) / 1e3).max(1e-9);
-        let v = f64::from(r.output_uv.mean) / 1e6;
-        let runout = (c_f > 0.0 && load_w > 0.0)
-            .then(|| (c_f * (v * v - down_v * down_v) / (2.0 * load_w)).max(0.0));
+        // Protocol 1's own formula: one interval's load power, down to output-down.
+        let load_nw = r
+            .delivered_nj
+            .saturating_mul(1000)
+            .checked_div(u64::from(r.interval_ms))
+            .unwrap_or(0);
+        let runout = storage_runout_ms(c_uf, r.output_uv.mean, down_uv, load_nw)
+            .map(|ms| f64::from(ms) / 1e3);
         (cutoff, runout)
     }
 }
@@ -122,9 +128,9 @@ pub fn run_corpus_scenario(
     let entry = corpus_entry(seed, index)?;
     let kind = entry.kind;
     let config = entry.scenario.node_config()?;
-    let c_f = f64::from(config.output_storage_uf) / 1e6;
+    let c_uf = config.output_storage_uf;
     let hold_v = f64::from(config.thresholds.hold_uv) / 1e6;
-    let down_v = f64::from(config.thresholds.output_down_uv) / 1e6;
+    let down_uv = config.thresholds.output_down_uv;
     let mut node = VirtualNode::new(entry.scenario, 1)?;
     node.wire_shed_pin(shed_pin_wired);
     let mut run = ScenarioRun {
@@ -146,7 +152,7 @@ pub fn run_corpus_scenario(
             let t_s = message.uptime_ms as f64 / 1e3;
             match &message.body {
                 UplinkBody::Report(r) => {
-                    let (old_cutoff_s, old_brownout_s) = old.push(t_s, r, c_f, hold_v, down_v);
+                    let (old_cutoff_s, old_brownout_s) = old.push(t_s, r, c_uf, hold_v, down_uv);
                     run.points.push(ForecastPoint {
                         t_s,
                         cutoff_s: r.input_cutoff_in_ms.map(|ms| f64::from(ms) / 1e3),
