@@ -11,7 +11,7 @@
 //!   over the last half hour, and the input power's over the last half hour,
 //!   answering with the earliest; the long ones see a slow decline long before
 //!   the short one can tell it from noise, and the power sees a fading source.
-//! * [`PowerAverage`]: the mean power of a stream of interval energies,
+//! * [`TimeAverage`]: the mean of a current or power held over intervals,
 //!   exponentially weighted (EWMA) over a time constant, so a load that draws
 //!   in short bursts is averaged over many of its periods.
 //! * [`storage_runout_ms`]: how long storage carries a constant power down to
@@ -31,7 +31,7 @@ pub const MIN_TREND_POINTS: usize = 4;
 pub const LONG_TREND_BLOCK_MS: u32 = 120_000;
 /// Block length of the input power's trend: 16 blocks of 40 s span 10.7 minutes.
 pub const POWER_TREND_BLOCK_MS: u32 = 40_000;
-/// Time constant of the load's power average (10 minutes): long enough to
+/// Time constant of the load's current average (10 minutes): long enough to
 /// span many periods of a duty-cycled load (a burst a minute gives ten), short
 /// enough to follow a load that is shed.
 pub const LOAD_AVERAGE_MS: u32 = 600_000;
@@ -429,47 +429,66 @@ impl CutoffForecaster {
     }
 }
 
-/// Mean power of interval energies, exponentially weighted over a time
-/// constant; until one time constant has passed, the plain mean since the start.
+/// A quantity held over intervals of time (a current, a power), averaged
+/// with each interval weighted by its length and exponentially forgotten
+/// (EWMA) over a time constant; until one time constant has passed, the plain
+/// mean since the start (or since [`TimeAverage::clear`]).
 #[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
-pub struct PowerAverage {
-    mean_nw: i64,
+pub struct TimeAverage {
+    mean: i64,
     weight_us: u64,
 }
 
-impl PowerAverage {
+impl TimeAverage {
     /// No data yet.
     pub const fn new() -> Self {
-        PowerAverage {
-            mean_nw: 0,
+        TimeAverage {
+            mean: 0,
             weight_us: 0,
         }
     }
 
-    /// Adds `energy_nj` taken over `length_us`, averaging over `time_constant_ms`.
-    pub fn push(&mut self, energy_nj: i64, length_us: u64, time_constant_ms: u32) {
+    /// Adds `value` held over `length_us`, averaging over `time_constant_ms`.
+    pub fn push(&mut self, value: i64, length_us: u64, time_constant_ms: u32) {
         if length_us == 0 {
             return;
         }
         let tau_us = u64::from(time_constant_ms).saturating_mul(1000).max(1);
         self.weight_us = self.weight_us.saturating_add(length_us).min(tau_us);
+        let step = i128::from(value)
+            .sat_sub(i128::from(self.mean))
+            .sat_mul(i128::from(length_us.min(self.weight_us)))
+            .wide_div(i128::from(self.weight_us))
+            .unwrap_or(0);
+        let mean = i128::from(self.mean).sat_add(step);
+        self.mean = i64::try_from(mean).unwrap_or(if mean < 0 { i64::MIN } else { i64::MAX });
+    }
+
+    /// Adds the power of `energy_nj` taken over `length_us`: the mean is in nW.
+    pub fn push_energy(&mut self, energy_nj: i64, length_us: u64, time_constant_ms: u32) {
         let power = i128::from(energy_nj)
             .sat_mul(1_000_000)
             .wide_div(i128::from(length_us))
             .unwrap_or(0);
-        let step = power
-            .sat_sub(i128::from(self.mean_nw))
-            .sat_mul(i128::from(length_us.min(self.weight_us)))
-            .wide_div(i128::from(self.weight_us))
-            .unwrap_or(0);
-        let mean = i128::from(self.mean_nw).sat_add(step);
-        self.mean_nw = i64::try_from(mean).unwrap_or(if mean < 0 { i64::MIN } else { i64::MAX });
+        let power = i64::try_from(power).unwrap_or(if power < 0 { i64::MIN } else { i64::MAX });
+        self.push(power, length_us, time_constant_ms);
     }
 
-    /// The average, nW (0 before any data).
-    pub const fn mean_nw(&self) -> i64 {
-        self.mean_nw
+    /// Forgets everything (the next value starts a new plain mean).
+    pub fn clear(&mut self) {
+        *self = TimeAverage::new();
     }
+
+    /// The average (0 before any data).
+    pub const fn mean(&self) -> i64 {
+        self.mean
+    }
+}
+
+/// Power in nW of a current `na` at `uv` (nA µV = 1e-15 W).
+pub fn power_nw(na: i64, uv: u32) -> i64 {
+    let nw = i128::from(na).sat_mul(i128::from(uv)) / 1_000_000;
+    i64::try_from(nw).unwrap_or(if nw < 0 { i64::MIN } else { i64::MAX })
 }
 
 /// Stored energy `C V² / 2` in nJ (µF µV² = 1e-18 J).
@@ -707,21 +726,32 @@ mod tests {
     }
 
     #[test]
-    fn power_average_starts_as_a_plain_mean_then_forgets() {
-        let mut avg = PowerAverage::new();
+    fn time_average_starts_as_a_plain_mean_then_forgets() {
+        let mut avg = TimeAverage::new();
         // 1 mJ over 10 s = 100 µW, then nothing for 10 s: mean 50 µW.
-        avg.push(1_000_000, 10_000_000, 600_000);
-        assert_eq!(avg.mean_nw(), 100_000);
-        avg.push(0, 10_000_000, 600_000);
-        assert_eq!(avg.mean_nw(), 50_000);
+        avg.push_energy(1_000_000, 10_000_000, 600_000);
+        assert_eq!(avg.mean(), 100_000);
+        avg.push_energy(0, 10_000_000, 600_000);
+        assert_eq!(avg.mean(), 50_000);
+        // Cleared, it starts again from the next value.
+        avg.clear();
+        avg.push(7, 1_000_000, 600_000);
+        assert_eq!(avg.mean(), 7);
         // A burst load: 6 mJ in one 10 s interval of each minute, 100 µW mean.
-        let mut burst = PowerAverage::new();
+        let mut burst = TimeAverage::new();
         for i in 0..600 {
             let nj = if i % 6 == 0 { 6_000_000 } else { 0 };
-            burst.push(nj, 10_000_000, LOAD_AVERAGE_MS);
+            burst.push_energy(nj, 10_000_000, LOAD_AVERAGE_MS);
         }
-        let mean = burst.mean_nw();
+        let mean = burst.mean();
         assert!((80_000..=120_000).contains(&mean), "{mean}");
+    }
+
+    #[test]
+    fn power_of_a_current() {
+        // 50 µA at 2.6 V is 130 µW.
+        assert_eq!(power_nw(50_000, 2_600_000), 130_000);
+        assert_eq!(power_nw(-1_000, 3_000_000), -3_000);
     }
 
     #[test]

@@ -16,11 +16,11 @@ use crate::config::validate;
 use crate::config_store;
 use crate::cutoff::{CutoffDetector, Observation};
 use crate::forecast::{
-    brownout_ms, storage_level_nj, usable_at_constant_current_nj, CutoffForecaster, DrainOutlook,
-    InputSeen, PowerAverage, HARVEST_AVERAGE_MS, LOAD_AVERAGE_MS,
+    brownout_ms, power_nw, storage_level_nj, usable_at_constant_current_nj, CutoffForecaster,
+    DrainOutlook, InputSeen, TimeAverage, HARVEST_AVERAGE_MS, LOAD_AVERAGE_MS,
 };
 use crate::harvest_profile::{HarvestProfile, SLOT_MS};
-use crate::interval::IntervalStats;
+use crate::interval::{ChannelSummary, IntervalStats};
 use crate::load_shed::{LoadShedder, Risk};
 use crate::load_watch::LoadWatch;
 use crate::meter::Meter;
@@ -138,8 +138,11 @@ pub struct Node<P, S> {
     detector: CutoffDetector,
     meter: Meter,
     cutoff_forecast: CutoffForecaster,
-    load_power: PowerAverage,
-    output_power: PowerAverage,
+    /// The load's current, nA: a constant-current load's stays put while the
+    /// storage voltage (and so its power) falls.
+    load_current: TimeAverage,
+    /// The converter's output power (into the load and the storage), nW.
+    output_power: TimeAverage,
     load_watch: LoadWatch,
     brownout_in_ms: Option<u32>,
     harvest: HarvestProfile,
@@ -177,8 +180,8 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             detector: CutoffDetector::new(0),
             meter: Meter::new(),
             cutoff_forecast: CutoffForecaster::new(),
-            load_power: PowerAverage::new(),
-            output_power: PowerAverage::new(),
+            load_current: TimeAverage::new(),
+            output_power: TimeAverage::new(),
             load_watch: LoadWatch::new(),
             brownout_in_ms: None,
             harvest: HarvestProfile::new(),
@@ -399,7 +402,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             delivered_nj,
             stored_nj,
         };
-        self.update_forecasts(t_us / 1000, length_us, summary.input_uv.mean, &energy);
+        self.update_forecasts(t_us / 1000, length_us, &summary, &energy);
         let report = Report {
             interval_ms: u32::try_from(length_ms).unwrap_or(u32::MAX),
             sample_count: summary.count,
@@ -414,7 +417,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             state_ms: summary.state_ms,
             input_cutoff_in_ms: self.input_cutoff_in_ms,
             brownout_in_ms: self.brownout_in_ms,
-            load_nw: u64::try_from(self.load_power.mean_nw()).unwrap_or(0),
+            load_nw: u64::try_from(self.load_nw()).unwrap_or(0),
             net_nw: self.net_nw(),
             load_powered: self.load_watch.is_powered(),
             load_shed: self.shedder.is_shed(),
@@ -448,11 +451,15 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
         }));
     }
 
+    /// The load's power at the present storage voltage, from its averaged
+    /// current, nW.
+    fn load_nw(&self) -> i64 {
+        power_nw(self.load_current.mean(), self.smoothed_output_uv)
+    }
+
     /// Converter output less load power, both averaged, nW.
     fn net_nw(&self) -> i64 {
-        self.output_power
-            .mean_nw()
-            .saturating_sub(self.load_power.mean_nw())
+        self.output_power.mean().saturating_sub(self.load_nw())
     }
 
     /// Watches the load's supply on every sample; a change is sent at once
@@ -486,8 +493,14 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             self.load_watch.is_powered(),
             self.config.thresholds.brownout_horizon_ms,
         );
+        let was_shed = self.shedder.is_shed();
         self.shedder
             .update(risk, now_ms, self.config.load_restore_ms);
+        // Shedding or restoring changes what the load draws: its average
+        // starts again rather than lag the change by its time constant.
+        if self.shedder.is_shed() != was_shed {
+            self.load_current.clear();
+        }
     }
 
     /// Updates the averages and both forecasts at the end of an interval.
@@ -496,9 +509,10 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
         &mut self,
         now_ms: u64,
         length_us: u64,
-        input_uv: u32,
+        summary: &ChannelSummary,
         energy: &IntervalEnergy,
     ) {
+        let input_uv = summary.input_uv.mean;
         let IntervalEnergy {
             drawn_nj,
             delivered_nj,
@@ -508,9 +522,10 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
         // A browned-out load draws nothing because it has no power: that says
         // nothing of what it draws when it runs, so it is not averaged in.
         if self.load_watch.is_powered() {
-            self.load_power.push(delivered, length_us, LOAD_AVERAGE_MS);
+            let load_na = i64::from(summary.output_na.mean);
+            self.load_current.push(load_na, length_us, LOAD_AVERAGE_MS);
         }
-        self.output_power.push(
+        self.output_power.push_energy(
             delivered.saturating_add(stored_nj),
             length_us,
             HARVEST_AVERAGE_MS,
@@ -543,7 +558,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
                 usable_at_constant_current_nj(c_uf, self.smoothed_output_uv, t.load_min_uv);
             brownout_ms(&DrainOutlook {
                 usable_nj: usable,
-                load_nw: self.load_power.mean_nw(),
+                load_nw: self.load_nw(),
                 net_nw: self.net_nw(),
                 converting,
                 input_cutoff_in_ms: self.input_cutoff_in_ms,
