@@ -257,8 +257,13 @@ pub struct InputTrend {
     /// Start of the block being gathered (wrapping ms); meaningful while
     /// `block_count` is not zero.
     block_start_ms: u32,
+    /// Sum of the block's times after its start, ms: a point stands at the
+    /// mean time of its values, not at the block's end.
+    block_time_sum: u32,
     block_sum: u64,
-    block_count: u32,
+    /// Intervals in the block (saturating: a block of a few minutes holds
+    /// far fewer than 65,535).
+    block_count: u16,
 }
 
 impl InputTrend {
@@ -269,12 +274,13 @@ impl InputTrend {
             block_ms,
             points: HistoryBuf::new(),
             block_start_ms: 0,
+            block_time_sum: 0,
             block_sum: 0,
             block_count: 0,
         }
     }
 
-    /// Adds the mean value of an interval that ended at `t_ms`.
+    /// Adds the mean value of an interval centred on `t_ms`.
     pub fn push(&mut self, t_ms: u64, value: u32) {
         // Wrapping on purpose: only differences of times are used.
         #[allow(clippy::cast_possible_truncation)]
@@ -282,17 +288,23 @@ impl InputTrend {
         if self.block_count == 0 {
             self.block_start_ms = t_wrapped;
         }
+        let offset = t_wrapped.wrapping_sub(self.block_start_ms);
+        self.block_time_sum = self.block_time_sum.saturating_add(offset);
         self.block_sum = self.block_sum.saturating_add(u64::from(value));
         self.block_count = self.block_count.saturating_add(1);
-        if t_wrapped.wrapping_sub(self.block_start_ms) < self.block_ms {
+        if offset < self.block_ms {
             return;
         }
-        let mean = self
-            .block_sum
-            .checked_div(u64::from(self.block_count))
+        let count = u64::from(self.block_count);
+        let mean = self.block_sum.checked_div(count).unwrap_or(0);
+        let mean_offset = self
+            .block_time_sum
+            .checked_div(u32::from(self.block_count))
             .unwrap_or(0);
+        let t_point = self.block_start_ms.wrapping_add(mean_offset);
         self.points
-            .write((t_wrapped, u32::try_from(mean).unwrap_or(u32::MAX)));
+            .write((t_point, u32::try_from(mean).unwrap_or(u32::MAX)));
+        self.block_time_sum = 0;
         self.block_sum = 0;
         self.block_count = 0;
     }
@@ -300,6 +312,7 @@ impl InputTrend {
     /// Forgets every point (after a restart of the converter, say).
     pub fn clear(&mut self) {
         self.points.clear();
+        self.block_time_sum = 0;
         self.block_sum = 0;
         self.block_count = 0;
     }
@@ -357,9 +370,14 @@ impl InputTrend {
 pub struct InputSeen {
     /// Mean input voltage.
     pub input_uv: u32,
+    /// Lowest input voltage of the interval.
+    pub input_min_uv: u32,
     /// Mean input power (energy drawn over the interval).
     pub input_nw: u32,
 }
+
+/// Weight of the newest interval in the dip's average (1/4: a few reports).
+const DIP_AVERAGE_SHIFT: u32 = 2;
 
 /// Time to input cutoff, the earliest answer of three trends: the input
 /// voltage (fitted in V²) over the last reports and over the last half hour,
@@ -367,11 +385,18 @@ pub struct InputSeen {
 /// a fading source can give (a sunset, a failing cell), the power falls
 /// steadily long before the voltage does; the converter stops when the current
 /// it can draw at the hold voltage is no more than its idle current.
+///
+/// The hold comparator trips on the first sample under the hold voltage, not on
+/// an interval's mean, so the trends of the mean are read down to the hold
+/// voltage plus the input's usual dip below its mean within an interval (the
+/// load's bursts, the fall across the interval itself).
 #[derive(Debug, Clone)]
 pub struct CutoffForecaster {
     short: InputTrend,
     long: InputTrend,
     power: InputTrend,
+    /// Average of (mean - lowest) input voltage per interval, µV.
+    dip_uv: u32,
 }
 
 impl Default for CutoffForecaster {
@@ -387,14 +412,21 @@ impl CutoffForecaster {
             short: InputTrend::new(Fit::Squared, 0),
             long: InputTrend::new(Fit::Squared, LONG_TREND_BLOCK_MS),
             power: InputTrend::new(Fit::Linear, POWER_TREND_BLOCK_MS),
+            dip_uv: 0,
         }
     }
 
-    /// Adds an interval's means.
+    /// Adds the means of an interval centred on `t_ms`.
     pub fn push(&mut self, t_ms: u64, seen: InputSeen) {
+        let first = self.short.points.is_empty();
         self.short.push(t_ms, seen.input_uv);
         self.long.push(t_ms, seen.input_uv);
         self.power.push(t_ms, seen.input_nw);
+        let dip = seen.input_uv.saturating_sub(seen.input_min_uv);
+        let previous = if first { dip } else { self.dip_uv };
+        // An EWMA in integers: dip += (new - dip) / 4, rounded toward the new.
+        let step = i64::from(dip).saturating_sub(i64::from(previous)) >> DIP_AVERAGE_SHIFT;
+        self.dip_uv = u32::try_from(i64::from(previous).saturating_add(step)).unwrap_or(0);
     }
 
     /// Forgets everything (the converter restarted).
@@ -402,23 +434,25 @@ impl CutoffForecaster {
         self.short.clear();
         self.long.clear();
         self.power.clear();
+        self.dip_uv = 0;
     }
 
     /// Milliseconds from `now_ms` until the input is cut off at `hold_uv`
     /// (with the converter idle below `idle_na`), the earliest of the trends.
     pub fn time_to_cutoff(&self, now_ms: u64, hold_uv: u32, idle_na: u32) -> Option<u32> {
+        let trip_uv = hold_uv.saturating_add(self.dip_uv);
         // µV · nA = 1e-15 W = 1e-6 nW.
         let idle_nw = u64::from(hold_uv).saturating_mul(u64::from(idle_na)) / 1_000_000;
         let idle_nw = u32::try_from(idle_nw).unwrap_or(u32::MAX);
         let from_now = |trend: &InputTrend, ms: Option<u32>| {
             ms.map(|ms| ms.saturating_sub(trend.age_ms(now_ms)))
         };
-        let long = self.long.time_to_reach(hold_uv);
+        let long = self.long.time_to_reach(trip_uv);
         // The curve is read only where the half hour is a steady fall (the
         // line through it is good): a cloud's dip and recovery is no sunset.
-        let curve = long.and_then(|_| self.long.log_decline_to(hold_uv));
+        let curve = long.and_then(|_| self.long.log_decline_to(trip_uv));
         [
-            from_now(&self.short, self.short.time_to_reach(hold_uv)),
+            from_now(&self.short, self.short.time_to_reach(trip_uv)),
             from_now(&self.long, long),
             from_now(&self.long, curve),
             from_now(&self.power, self.power.time_to_reach(idle_nw)),
@@ -642,13 +676,14 @@ mod tests {
     #[test]
     fn blocks_average_their_intervals() {
         // Blocks of 2 min from 10 s intervals: one point per 13 pushes (the
-        // block closes on the first interval at or past 120 s from its start).
+        // block closes on the first interval at or past 120 s from its start),
+        // standing at the mean time of its intervals (60 s) with their mean.
         let mut trend = InputTrend::new(Fit::Squared, LONG_TREND_BLOCK_MS);
         for i in 0..13u64 {
             trend.push(i * 10_000, 1_000_000 + (i as u32) * 1000);
         }
         assert_eq!(trend.points.len(), 1);
-        assert_eq!(trend.points.recent(), Some(&(120_000, 1_006_000)));
+        assert_eq!(trend.points.recent(), Some(&(60_000, 1_006_000)));
         // Times wrap at 2^32 ms (49.7 days); a window across the wrap still fits.
         let mut wrapped = InputTrend::new(Fit::Linear, 0);
         let start = u64::from(u32::MAX) - 35_000;
@@ -672,6 +707,7 @@ mod tests {
                 i * 10_000,
                 InputSeen {
                     input_uv: v,
+                    input_min_uv: v,
                     input_nw: 100_000,
                 },
             );

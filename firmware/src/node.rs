@@ -150,7 +150,6 @@ pub struct Node<P, S> {
     slot_start: Option<(u64, u64)>,
     interval: IntervalStats,
     interval_start: Option<IntervalStart>,
-    stored_level_nj: i64,
     recent_output_uv: HistoryBuf<u32, STORAGE_SMOOTHING>,
     smoothed_output_uv: u32,
     boot_stored_level_nj: Option<i64>,
@@ -188,7 +187,6 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             slot_start: None,
             interval: IntervalStats::default(),
             interval_start: None,
-            stored_level_nj: 0,
             recent_output_uv: HistoryBuf::new(),
             smoothed_output_uv: 0,
             boot_stored_level_nj: None,
@@ -221,9 +219,8 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             .fold(0u64, |acc, &v| acc.saturating_add(u64::from(v)));
         let smoothed = u32::try_from(sum.checked_div(count).unwrap_or(0)).unwrap_or(u32::MAX);
         self.smoothed_output_uv = smoothed;
-        self.stored_level_nj = storage_level_nj(self.config.output_storage_uf, smoothed);
         if self.boot_stored_level_nj.is_none() {
-            self.boot_stored_level_nj = Some(self.stored_level_nj);
+            self.boot_stored_level_nj = Some(self.stored_level_nj());
         }
         let dt_us = self.advance_clock(t_us);
         self.meter.add(t_us, &sample);
@@ -351,8 +348,8 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
     }
 
     fn stored_since_boot(&self) -> i64 {
-        self.stored_level_nj
-            .saturating_sub(self.boot_stored_level_nj.unwrap_or(self.stored_level_nj))
+        let level = self.stored_level_nj();
+        level.saturating_sub(self.boot_stored_level_nj.unwrap_or(level))
     }
 
     /// Moves the clock to `t_us`; returns the time since the previous sample.
@@ -371,7 +368,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             t_us,
             drawn_nj: self.meter.input.total_nj(),
             delivered_nj: self.meter.output.total_nj(),
-            stored_level_nj: self.stored_level_nj,
+            stored_level_nj: self.stored_level_nj(),
         }
     }
 
@@ -393,7 +390,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
         let stored_nj = if self.config.output_storage_uf == 0 {
             0
         } else {
-            self.stored_level_nj.saturating_sub(start.stored_level_nj)
+            self.stored_level_nj().saturating_sub(start.stored_level_nj)
         };
         let state = self.detector.state();
         let length_ms = length_us / 1000;
@@ -449,6 +446,11 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             wcma_predicted_uj: outcome.wcma_predicted_uj,
             next_day_uj: outcome.next_day_uj,
         }));
+    }
+
+    /// Energy in the output storage at its smoothed voltage, nJ.
+    fn stored_level_nj(&self) -> i64 {
+        storage_level_nj(self.config.output_storage_uf, self.smoothed_output_uv)
     }
 
     /// The load's power at the present storage voltage, from its averaged
@@ -542,9 +544,12 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
                 .unwrap_or(0);
             let seen = InputSeen {
                 input_uv,
+                input_min_uv: summary.input_uv.min(),
                 input_nw: u32::try_from(input_nw).unwrap_or(u32::MAX),
             };
-            self.cutoff_forecast.push(now_ms, seen);
+            // The means stand for the middle of the interval.
+            let middle_ms = now_ms.saturating_sub(length_us / 2000);
+            self.cutoff_forecast.push(middle_ms, seen);
             self.cutoff_forecast
                 .time_to_cutoff(now_ms, t.hold_uv, t.input_idle_na)
         } else {
