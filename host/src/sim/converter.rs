@@ -147,11 +147,6 @@ impl Converter {
     }
 
     /// Advances by `dt_s` at time `t_s`.
-    ///
-    /// The hold comparator watches the input pin: while the output sits in
-    /// regulation the converter draws only what the output needs, the input
-    /// rises above the maximum-power point, and it holds on until that real
-    /// input voltage falls below `hold_v`.
     pub fn step(
         &mut self,
         t_s: f64,
@@ -166,57 +161,37 @@ impl Converter {
         if !self.running && !fault && voc >= self.params.start_v {
             self.running = true;
         }
-        let drive = Drive {
-            t_s,
-            dt_s,
-            source,
-            load,
-            shed,
-            powered,
-        };
+        let (mut v_in, mut i_in) = (voc, 0.0);
+        let mut off = None;
         if fault {
             self.running = false;
-            return self.settle(&drive, (voc, 0.0), Some(OffReason::Fault));
-        }
-        if self.running {
-            let v0 = self.output_v;
-            let outcome = self.settle(&drive, self.operating_point(source), None);
-            if outcome.input_v >= self.params.hold_v {
-                return outcome;
+            off = Some(OffReason::Fault);
+        } else if self.running {
+            (v_in, i_in) = self.operating_point(source);
+            if v_in < self.params.hold_v {
+                self.running = false;
+                (v_in, i_in) = (voc, 0.0);
             }
-            self.running = false;
-            self.output_v = v0;
         }
-        self.settle(&drive, (voc, 0.0), Some(OffReason::Starved))
-    }
-
-    /// Solves the output node for one step drawing `(v_in, i_in)` from the
-    /// source, throttling the input when the output reaches regulation.
-    fn settle(
-        &mut self,
-        d: &Drive,
-        (mut v_in, mut i_in): (f64, f64),
-        off: Option<OffReason>,
-    ) -> StepOutcome {
+        if !self.running && off.is_none() {
+            off = Some(OffReason::Starved);
+        }
         let p_in = v_in * i_in;
         // Efficiency at the available output power (one fixed-point pass).
         let eta = self.efficiency(v_in, self.efficiency(v_in, p_in) * p_in);
         let mut p_out = eta * p_in;
-        let load_at = |v: f64| {
-            d.load
-                .current_at(v, d.t_s + d.dt_s, d.dt_s, d.shed, d.powered)
-        };
 
         // Output node, backward Euler: C (v - v0) / dt = P / max(v, vin) - I_load(v).
         let c = self.params.output_capacitance_f;
         let v0 = self.output_v;
+        let t_next = t_s + dt_s;
         let balance = |v: f64, p: f64| {
             let supply = if p > 0.0 {
                 p / v.max(v_in).max(0.05)
             } else {
                 0.0
             };
-            c * (v - v0) / d.dt_s - supply + load_at(v)
+            c * (v - v0) / dt_s - supply + load.current_at(v, t_next, dt_s, shed, powered)
         };
         let mut v_out = bisect(0.0, v0.max(v_in).max(1.0) * 4.0 + 10.0, |v| {
             balance(v, p_out)
@@ -224,13 +199,15 @@ impl Converter {
         if let Some(v_reg) = self.params.regulation_v {
             if v_out > v_reg {
                 v_out = v_reg;
-                let needed = v_reg * (c * (v_reg - v0) / d.dt_s + load_at(v_reg));
+                let needed = v_reg
+                    * (c * (v_reg - v0) / dt_s
+                        + load.current_at(v_reg, t_next, dt_s, shed, powered));
                 p_out = needed.max(0.0);
                 // Throttle the input to what the output needs.
                 let p_in_needed = if eta > 0.0 { p_out / eta } else { 0.0 };
                 if p_in_needed < p_in && i_in > 0.0 {
-                    v_in = d.source.voltage_for_power(v_in, p_in_needed);
-                    i_in = d.source.current_at(v_in).max(0.0);
+                    v_in = source.voltage_for_power(v_in, p_in_needed);
+                    i_in = source.current_at(v_in).max(0.0);
                 }
             }
         }
@@ -242,8 +219,10 @@ impl Converter {
         } else {
             0.0
         };
-        let into_storage = c * (self.output_v - v0) / d.dt_s;
-        let load_a = load_at(self.output_v).min((supplied - into_storage).max(0.0));
+        let into_storage = c * (self.output_v - v0) / dt_s;
+        let load_a = load
+            .current_at(self.output_v, t_next, dt_s, shed, powered)
+            .min((supplied - into_storage).max(0.0));
         StepOutcome {
             input_v: v_in,
             input_a: i_in,
@@ -253,16 +232,6 @@ impl Converter {
             off,
         }
     }
-}
-
-/// What drives one step of the converter.
-struct Drive<'a> {
-    t_s: f64,
-    dt_s: f64,
-    source: &'a Source,
-    load: &'a LoadParams,
-    shed: bool,
-    powered: bool,
 }
 
 #[cfg(test)]
