@@ -218,3 +218,63 @@ fn a_report_into_a_pipe_closed_early_ends_quietly() {
     assert!(out.status.success(), "{:?} {stderr}", out.status);
     assert!(!stderr.contains("panicked"), "{stderr}");
 }
+
+#[test]
+fn a_file_that_is_not_a_log_is_an_error_naming_it() {
+    let dir = tempfile::tempdir().unwrap();
+    let text = dir.path().join("passwd");
+    std::fs::write(&text, "root:x:0:0:root:/root:/bin/sh\n").unwrap();
+    let empty = dir.path().join("empty.glog");
+    std::fs::write(&empty, b"").unwrap();
+    for (file, why) in [(&text, "not a Gleaner log"), (&empty, "is empty")] {
+        let (ok, out, err) = run(&["report", file.to_str().unwrap()]);
+        assert!(!ok, "{out}");
+        assert!(out.is_empty(), "no all-zero report: {out}");
+        assert!(
+            err.contains(file.to_str().unwrap()) && err.contains(why),
+            "{err}"
+        );
+    }
+}
+
+#[test]
+fn several_logs_with_a_bad_one_report_the_good_and_name_the_bad() {
+    let dir = tempfile::tempdir().unwrap();
+    let good = dir.path().join("good.glog");
+    let (ok, _, err) = run(&[
+        "sim",
+        "synthetic",
+        "--days",
+        "0.05",
+        "--out",
+        good.to_str().unwrap(),
+    ]);
+    assert!(ok, "{err}");
+    let bad = dir.path().join("notes.txt");
+    std::fs::write(&bad, "field notes, not a log\n").unwrap();
+    let (ok, out, err) = run(&[
+        "report",
+        "--json",
+        good.to_str().unwrap(),
+        bad.to_str().unwrap(),
+    ]);
+    assert!(!ok, "one log failed: the exit says so");
+    let json: serde_json::Value = serde_json::from_str(&out).expect("the good log's JSON");
+    assert!(json["duration_s"].as_f64().unwrap() > 0.0, "{out}");
+    assert!(
+        err.contains("notes.txt") && err.contains("1 of 2 logs"),
+        "{err}"
+    );
+    // --html draws one log: with two it refuses before any work.
+    let page = dir.path().join("page.html");
+    let (ok, _, err) = run(&[
+        "report",
+        "--html",
+        page.to_str().unwrap(),
+        good.to_str().unwrap(),
+        good.to_str().unwrap(),
+    ]);
+    assert!(!ok);
+    assert!(err.contains("once per log"), "{err}");
+    assert!(!page.exists());
+}

@@ -750,5 +750,20 @@ pub fn analyze_file(path: &std::path::Path) -> anyhow::Result<RunReport> {
     for w in reader.warnings() {
         analyzer.warn(w.to_string());
     }
-    Ok(analyzer.finish())
+    let report = analyzer.finish();
+    if report.message_counts.values().sum::<u64>() == 0 {
+        let not_a_log = reader
+            .warnings()
+            .iter()
+            .any(|w| matches!(w, crate::log::ReadWarning::NotALog));
+        let why = if size == 0 {
+            "is empty".to_string()
+        } else if not_a_log {
+            crate::log::ReadWarning::NotALog.to_string()
+        } else {
+            "holds no frames from a node (only the recorder's own marks)".to_string()
+        };
+        anyhow::bail!("{}: {why}", path.display());
+    }
+    Ok(report)
 }

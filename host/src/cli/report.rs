@@ -19,7 +19,7 @@ pub struct Cmd {
     /// Print JSON (schema `gleaner.report.v1`, see docs/report-json.md).
     #[arg(long)]
     pub json: bool,
-    /// Also write an HTML page with plots here (one log only).
+    /// Also write an HTML page with plots here (one log only; refused with several).
     #[arg(long)]
     pub html: Option<PathBuf>,
 }
@@ -27,10 +27,39 @@ pub struct Cmd {
 impl Cmd {
     /// Runs the command.
     pub fn run(self) -> Result<()> {
-        let mut reports: Vec<(PathBuf, RunReport)> = Vec::new();
-        for log in &self.logs {
-            reports.push((log.clone(), analyze_file(log)?));
+        if self.html.is_some() && self.logs.len() > 1 {
+            anyhow::bail!(
+                "--html draws one log's page, and {} logs were given: run `gleaner report --html PAGE LOG` once per log",
+                self.logs.len()
+            );
         }
+        let mut reports: Vec<(PathBuf, RunReport)> = Vec::new();
+        let mut failed = Vec::new();
+        for log in &self.logs {
+            match analyze_file(log) {
+                Ok(report) => reports.push((log.clone(), report)),
+                Err(err) => failed.push(format!("{err:#}")),
+            }
+        }
+        if reports.is_empty() {
+            anyhow::bail!("{}", failed.join("; "));
+        }
+        self.write(&reports)?;
+        if failed.is_empty() {
+            return Ok(());
+        }
+        for why in &failed {
+            eprintln!("error: {why}");
+        }
+        anyhow::bail!(
+            "{} of {} logs could not be reported (the others are above)",
+            failed.len(),
+            self.logs.len()
+        )
+    }
+
+    /// Writes the reports of the logs that could be read.
+    fn write(&self, reports: &[(PathBuf, RunReport)]) -> Result<()> {
         if let Some(path) = &self.html {
             let (_, first) = reports.first().context("no log given")?;
             let page =
@@ -55,50 +84,55 @@ impl Cmd {
             write!(out, "{}", text::render(&reports[0].1))?;
             return Ok(());
         }
-        writeln!(
-            out,
-            "{:<40} {:>12} {:>12} {:>12} {:>9} {:>8} {:>6}",
-            "log", "duration", "drawn", "delivered", "eff.", "outages", "lost"
-        )?;
-        let (mut drawn, mut delivered, mut stored, mut outages, mut lost) =
-            (0.0, 0.0, 0.0, 0usize, 0u64);
-        for (path, r) in &reports {
-            writeln!(
-                out,
-                "{:<40} {:>12} {:>12} {:>12} {:>9} {:>8} {:>6}",
-                path.file_name()
-                    .map_or("?".into(), |n| n.to_string_lossy().into_owned()),
-                text::duration(r.duration_s),
-                text::energy(r.energy.drawn_j),
-                text::energy(r.energy.delivered_j),
-                r.energy
-                    .efficiency
-                    .map_or("-".into(), |e| format!("{:.1} %", e * 100.0)),
-                r.outages.len(),
-                r.link.lost_frames
-            )?;
-            drawn += r.energy.drawn_j;
-            delivered += r.energy.delivered_j;
-            stored += r.energy.stored_j;
-            outages += r.outages.len();
-            lost += r.link.lost_frames;
-        }
-        let eff = if drawn > 0.0 {
-            format!("{:.1} %", (delivered + stored) / drawn * 100.0)
-        } else {
-            "-".into()
-        };
-        writeln!(
-            out,
-            "{:<40} {:>12} {:>12} {:>12} {:>9} {:>8} {:>6}",
-            "FLEET",
-            "",
-            text::energy(drawn),
-            text::energy(delivered),
-            eff,
-            outages,
-            lost
-        )?;
-        Ok(())
+        write_fleet_table(&mut out, reports)
     }
+}
+
+/// One line per log and a fleet total.
+fn write_fleet_table(out: &mut impl Write, reports: &[(PathBuf, RunReport)]) -> Result<()> {
+    writeln!(
+        out,
+        "{:<40} {:>12} {:>12} {:>12} {:>9} {:>8} {:>6}",
+        "log", "duration", "drawn", "delivered", "eff.", "outages", "lost"
+    )?;
+    let (mut drawn, mut delivered, mut stored, mut outages, mut lost) =
+        (0.0, 0.0, 0.0, 0usize, 0u64);
+    for (path, r) in reports {
+        writeln!(
+            out,
+            "{:<40} {:>12} {:>12} {:>12} {:>9} {:>8} {:>6}",
+            path.file_name()
+                .map_or("?".into(), |n| n.to_string_lossy().into_owned()),
+            text::duration(r.duration_s),
+            text::energy(r.energy.drawn_j),
+            text::energy(r.energy.delivered_j),
+            r.energy
+                .efficiency
+                .map_or("-".into(), |e| format!("{:.1} %", e * 100.0)),
+            r.outages.len(),
+            r.link.lost_frames
+        )?;
+        drawn += r.energy.drawn_j;
+        delivered += r.energy.delivered_j;
+        stored += r.energy.stored_j;
+        outages += r.outages.len();
+        lost += r.link.lost_frames;
+    }
+    let eff = if drawn > 0.0 {
+        format!("{:.1} %", (delivered + stored) / drawn * 100.0)
+    } else {
+        "-".into()
+    };
+    writeln!(
+        out,
+        "{:<40} {:>12} {:>12} {:>12} {:>9} {:>8} {:>6}",
+        "FLEET",
+        "",
+        text::energy(drawn),
+        text::energy(delivered),
+        eff,
+        outages,
+        lost
+    )?;
+    Ok(())
 }
