@@ -100,10 +100,16 @@ pub fn capacitor_energy_change_nj(c_uf: u32, from_uv: u32, to_uv: u32) -> i64 {
 pub const EFFICIENCY_FLOOR_NJ: u64 = 1_000;
 
 /// Conversion efficiency as an energy ratio, in parts per million:
-/// `(delivered + stored) / drawn`. None when less than `EFFICIENCY_FLOOR_NJ` was
-/// drawn (the ratio would be noise). Never a mean of instantaneous ratios.
+/// `(delivered + stored) / drawn`. Never a mean of instantaneous ratios.
+///
+/// None when it would be noise rather than a measurement: less than
+/// `EFFICIENCY_FLOOR_NJ` drawn; a storage change larger than what was drawn
+/// (while the converter idles, the load lives on storage, and the ratio is
+/// the small difference of two large terms over a small one); or a ratio above
+/// one, which no converter achieves (measurement noise, or the storage
+/// estimate from a smoothed voltage lagging a short window).
 pub fn efficiency_ppm(drawn_nj: u64, delivered_nj: u64, stored_nj: i64) -> Option<u32> {
-    if drawn_nj < EFFICIENCY_FLOOR_NJ {
+    if drawn_nj < EFFICIENCY_FLOOR_NJ || stored_nj.unsigned_abs() > drawn_nj {
         return None;
     }
     let out = i128::from(delivered_nj)
@@ -112,7 +118,10 @@ pub fn efficiency_ppm(drawn_nj: u64, delivered_nj: u64, stored_nj: i64) -> Optio
     let ppm = out
         .saturating_mul(1_000_000)
         .checked_div(i128::from(drawn_nj))?;
-    Some(u32::try_from(ppm).unwrap_or(u32::MAX))
+    if ppm > 1_000_000 {
+        return None;
+    }
+    u32::try_from(ppm).ok()
 }
 
 /// Input and output energy of the converter, integrated per sample.
@@ -249,5 +258,11 @@ mod tests {
         assert_eq!(efficiency_ppm(999, 500, 0), None);
         // A capacitor charging takes part of the output: still counted.
         assert_eq!(efficiency_ppm(1_000_000, 500_000, 300_000), Some(800_000));
+        // Idle: 5 µJ of noise drawn, the load fed 50 µJ from storage, whose
+        // estimate fell 40 µJ: 200 % is noise, not stated.
+        assert_eq!(efficiency_ppm(5_000, 50_000, -40_000), None);
+        // Above one without storage in it: noise as well.
+        assert_eq!(efficiency_ppm(5_000, 9_000, 0), None);
+        assert_eq!(efficiency_ppm(5_000, 5_000, 0), Some(1_000_000));
     }
 }

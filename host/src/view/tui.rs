@@ -296,6 +296,40 @@ mod tests {
     }
 
     #[test]
+    fn an_idle_window_shows_no_efficiency_above_100_percent() {
+        // Idle: noise draws 5 µJ, the load lives on storage (50 µJ delivered,
+        // the storage estimate 40 µJ lower): 200 % would be noise.
+        let mut state = LiveState::default();
+        let mut tracker = LinkTracker::new();
+        let idle = Report {
+            drawn_nj: 5_000,
+            delivered_nj: 50_000,
+            stored_nj: -40_000,
+            state: CutoffState::CutOff,
+            ..report()
+        };
+        let msg = Uplink {
+            seq: 0,
+            uptime_ms: 60_000,
+            body: UplinkBody::Report(idle),
+        };
+        let tracked: Tracked = tracker.accept(msg).unwrap().unwrap();
+        state.update(&tracked, tracker.stats());
+        assert_eq!(state.window_efficiency(), None);
+        assert_eq!(state.total_efficiency(), None);
+        let mut terminal = Terminal::new(TestBackend::new(140, 30)).unwrap();
+        terminal.draw(|f| draw(f, &state, "virtual node")).unwrap();
+        let screen: String = terminal
+            .backend()
+            .buffer()
+            .content()
+            .iter()
+            .map(|c| c.symbol())
+            .collect();
+        assert!(!screen.contains("200.0"), "{screen}");
+    }
+
+    #[test]
     fn the_screen_shows_state_efficiency_and_forecast() {
         let mut state = LiveState::default();
         let mut tracker = LinkTracker::new();
