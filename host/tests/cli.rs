@@ -140,6 +140,28 @@ fn the_planner_names_the_bad_field() {
         out.contains("1.6136 F") && out.contains("1.2412 F"),
         "{out}"
     );
+    // A negative value is a value (not a flag), refused in the unit it was given in.
+    let (ok, _, err) = run(&[
+        "plan",
+        "--harvest-w",
+        "0.001",
+        "--sleep-w",
+        "1e-5",
+        "--active-w",
+        "0.01",
+        "--outage-h",
+        "-1",
+        "--v-max",
+        "3.3",
+        "--v-min",
+        "1.8",
+    ]);
+    assert!(!ok);
+    assert!(
+        err.contains("--outage-h") && err.contains("got -1"),
+        "{err}"
+    );
+    assert!(!err.contains("3600"), "{err}");
 }
 
 #[test]

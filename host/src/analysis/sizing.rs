@@ -123,8 +123,8 @@ pub struct PlanInputs {
     pub active_w: f64,
     /// Planned duty cycle, 0 to 1 (for the mean load during an outage).
     pub duty_cycle: f64,
-    /// Longest outage to ride through, s.
-    pub outage_s: f64,
+    /// Longest outage to ride through, hours (as the user gives it).
+    pub outage_h: f64,
     /// Highest storage voltage, V.
     pub v_max: f64,
     /// Lowest usable storage voltage, V.
@@ -145,7 +145,7 @@ impl PlanInputs {
         nonneg("--harvest-w", self.harvest_w)?;
         nonneg("--sleep-w", self.sleep_w)?;
         nonneg("--active-w", self.active_w)?;
-        nonneg("--outage-h", self.outage_s)?;
+        nonneg("--outage-h", self.outage_h)?;
         if !(0.0..=1.0).contains(&self.duty_cycle) {
             bail!(
                 "--duty-cycle must be between 0 and 1, got {}",
@@ -180,7 +180,7 @@ impl PlanInputs {
         self.validate()?;
         let load_w = self.sleep_w + self.duty_cycle * (self.active_w - self.sleep_w);
         Ok(advise(Figures {
-            outage_s: self.outage_s,
+            outage_s: self.outage_h * 3600.0,
             load_w,
             v_max: self.v_max,
             v_min: self.v_min,
@@ -223,7 +223,7 @@ mod tests {
             sleep_w: 1e-5,
             active_w: 1e-2,
             duty_cycle: 0.01,
-            outage_s: 3600.0,
+            outage_h: 1.0,
             v_max: 3.3,
             v_min: 1.8,
             margin: 1.3,

@@ -9,31 +9,33 @@ use crate::analysis::text::{duration, energy, power};
 /// Size storage and duty cycle before the first deployment: how much
 /// capacitance rides through an outage, and the largest duty cycle a harvest
 /// sustains.
+///
+/// Negative numbers are read as values (and refused by the checks), not as flags.
 #[derive(Debug, Args)]
 pub struct Cmd {
     /// Mean harvested power after the converter, W.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub harvest_w: f64,
     /// Load power asleep, W.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub sleep_w: f64,
     /// Load power active, W.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub active_w: f64,
     /// Planned duty cycle, 0 to 1.
-    #[arg(long, default_value_t = 0.01)]
+    #[arg(long, default_value_t = 0.01, allow_negative_numbers = true)]
     pub duty_cycle: f64,
     /// Longest outage to ride through, hours.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub outage_h: f64,
     /// Highest storage voltage, V.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub v_max: f64,
     /// Lowest voltage the load still runs on, V.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub v_min: f64,
     /// Margin on the capacitance (1.3 = 30 %).
-    #[arg(long, default_value_t = DEFAULT_MARGIN)]
+    #[arg(long, default_value_t = DEFAULT_MARGIN, allow_negative_numbers = true)]
     pub margin: f64,
     /// Print JSON.
     #[arg(long)]
@@ -48,7 +50,7 @@ impl Cmd {
             sleep_w: self.sleep_w,
             active_w: self.active_w,
             duty_cycle: self.duty_cycle,
-            outage_s: self.outage_h * 3600.0,
+            outage_h: self.outage_h,
             v_max: self.v_max,
             v_min: self.v_min,
             margin: self.margin,
