@@ -28,7 +28,9 @@ pub struct Cmd {
     /// Replay a recorded log instead of a port.
     #[arg(long, conflicts_with = "port")]
     pub replay: Option<PathBuf>,
-    /// Replay speed: this many times faster than recorded (0: as fast as possible).
+    /// Replay speed: this many times faster than the node's own clock ran (a
+    /// simulated day recorded in seconds still takes a day / speed; 0: as fast
+    /// as possible).
     #[arg(long, default_value_t = 0.0)]
     pub speed: f64,
     /// One line per report even on a terminal.
@@ -83,7 +85,33 @@ impl Cmd {
     }
 }
 
-/// Feeds a recorded log to an observer, paced by the recorded host times.
+/// The node's own time through a replay: its uptime advances it, and where
+/// the uptime starts again (a reboot) the recorder's clock bridges the gap.
+#[derive(Debug, Default)]
+pub struct ReplayClock {
+    elapsed_us: u64,
+    last: Option<(u64, u64)>,
+}
+
+impl ReplayClock {
+    /// Advances to a message stamped `uptime_ms` by the node and recorded at
+    /// `host_us`; returns the node time elapsed since the first message.
+    pub fn advance(&mut self, uptime_ms: u64, host_us: u64) -> Duration {
+        let uptime_us = uptime_ms.saturating_mul(1000);
+        if let Some((last_uptime_us, last_host_us)) = self.last {
+            let step = if uptime_us >= last_uptime_us {
+                uptime_us - last_uptime_us
+            } else {
+                host_us.saturating_sub(last_host_us)
+            };
+            self.elapsed_us = self.elapsed_us.saturating_add(step);
+        }
+        self.last = Some((uptime_us, host_us));
+        Duration::from_micros(self.elapsed_us)
+    }
+}
+
+/// Feeds a recorded log to an observer, paced by the node's own clock.
 pub fn replay(
     path: &std::path::Path,
     speed: f64,
@@ -95,37 +123,57 @@ pub fn replay(
     let mut reader = LogReader::new(file);
     let mut tracker = LinkTracker::new();
     let started = Instant::now();
-    let mut first_us = None;
+    let mut clock = ReplayClock::default();
     for record in reader.by_ref() {
         if stop.load(Ordering::Relaxed) {
             break;
         }
-        if let RecordBody::Frame(bytes) = &record.body {
-            if speed > 0.0 {
-                let first = *first_us.get_or_insert(record.host_time_us);
-                let due = Duration::from_secs_f64(
-                    record.host_time_us.saturating_sub(first) as f64 / 1e6 / speed,
-                );
-                while started.elapsed() < due {
-                    if observer.tick(tracker.stats(), Duration::ZERO) {
-                        return Ok(());
-                    }
-                    std::thread::sleep(
-                        due.saturating_sub(started.elapsed())
-                            .min(Duration::from_millis(50)),
-                    );
+        let RecordBody::Frame(bytes) = &record.body else {
+            continue;
+        };
+        let tracked = tracker.accept_encoded(bytes).ok().flatten();
+        if let (Some(t), true) = (&tracked, speed > 0.0) {
+            let node_time = clock.advance(t.message.uptime_ms, record.host_time_us);
+            let due = Duration::from_secs_f64(node_time.as_secs_f64() / speed);
+            while started.elapsed() < due {
+                if observer.tick(tracker.stats(), Duration::ZERO) {
+                    return Ok(());
                 }
+                std::thread::sleep(
+                    due.saturating_sub(started.elapsed())
+                        .min(Duration::from_millis(50)),
+                );
             }
-            if let Ok(Some(tracked)) = tracker.accept_encoded(bytes) {
-                observer.message(&tracked, tracker.stats());
-            }
-            if observer.tick(tracker.stats(), Duration::ZERO) {
-                return Ok(());
-            }
+        }
+        if let Some(tracked) = tracked {
+            observer.message(&tracked, tracker.stats());
+        }
+        if observer.tick(tracker.stats(), Duration::ZERO) {
+            return Ok(());
         }
     }
     for w in reader.warnings() {
         eprintln!("warning: {w}");
     }
     Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn replay_time_is_the_nodes_time_bridged_over_reboots() {
+        let mut clock = ReplayClock::default();
+        // A simulated hour recorded in one second of host time.
+        assert_eq!(clock.advance(5_000, 0), Duration::ZERO);
+        assert_eq!(
+            clock.advance(3_605_000, 1_000_000),
+            Duration::from_secs(3600)
+        );
+        // The node reboots (uptime from 0 again) 2 s of host time later: the
+        // host's 2 s bridge the gap, then the node's clock runs again.
+        assert_eq!(clock.advance(100, 3_000_000), Duration::from_secs(3602));
+        assert_eq!(clock.advance(60_100, 3_100_000), Duration::from_secs(3662));
+    }
 }
