@@ -171,6 +171,30 @@ pub trait PortObserver {
     }
 }
 
+/// Request id of the `Hello` asked for on every connect (the node echoes it).
+pub const HELLO_REQUEST_ID: u16 = 0xFFF0;
+
+/// Asks the node for its `Hello` (firmware, identity, calibration and
+/// thresholds): a node that was running before the port opened sent its own
+/// long ago, and a log without one does not describe itself.
+fn ask_for_hello(port: &mut impl Write, recorder: &mut Recorder) -> Result<()> {
+    let mut buf = [0u8; gleaner_protocol::MAX_DOWNLINK_FRAME_LEN];
+    let request = gleaner_protocol::Downlink {
+        request_id: HELLO_REQUEST_ID,
+        command: gleaner_protocol::Command::GetInfo,
+    };
+    let sent = gleaner_protocol::encode_frame(&request, &mut buf)
+        .map_err(|e| anyhow::anyhow!("{e:?}"))
+        .and_then(|frame| Ok(port.write_all(frame).and_then(|()| port.flush())?));
+    match sent {
+        Ok(()) => Ok(()),
+        Err(e) => recorder.mark(
+            MarkerKind::Note,
+            &format!("could not ask the node for its Hello: {e}"),
+        ),
+    }
+}
+
 /// Reads `port` until `stop` is set or the observer says so, reconnecting
 /// when the port goes away. Returns when done; the log is complete.
 pub fn run_port(
@@ -182,6 +206,9 @@ pub fn run_port(
 ) -> Result<()> {
     let mut link = Some(open_port(port, baud)?);
     recorder.mark(MarkerKind::PortOpened, &format!("{port} at {baud} baud"))?;
+    if let Some(p) = link.as_mut() {
+        ask_for_hello(p, recorder)?;
+    }
     let mut buf = [0u8; 4096];
     let mut last_data = Instant::now();
     while !stop.load(Ordering::Relaxed) {
@@ -220,6 +247,9 @@ pub fn run_port(
                     )?;
                     observer.link_changed(true, port);
                     link = Some(p);
+                    if let Some(p) = link.as_mut() {
+                        ask_for_hello(p, recorder)?;
+                    }
                 }
             }
         }

@@ -425,3 +425,93 @@ fn ports_are_listed_without_error() {
         assert!(["usb", "pci", "bluetooth", "unknown"].contains(&p.kind.as_str()));
     }
 }
+
+#[test]
+fn the_recorder_asks_a_running_node_for_its_hello() {
+    // A node that has run for an hour when the laptop is attached: its Hello
+    // went out long ago, reports keep coming.
+    let (mut master, _slave, path) = scripted();
+    master.set_timeout(Duration::from_millis(50)).unwrap();
+    master
+        .write_all(&frame(&report(
+            50,
+            3_600_000,
+            1_000_000,
+            CutoffState::Harvesting,
+        )))
+        .unwrap();
+    let node = std::thread::spawn(move || {
+        let mut got = Vec::new();
+        let mut buf = [0u8; 256];
+        let deadline = Instant::now() + Duration::from_secs(5);
+        while Instant::now() < deadline && !got.contains(&0) {
+            if let Ok(n) = std::io::Read::read(&mut master, &mut buf) {
+                got.extend_from_slice(&buf[..n]);
+            }
+        }
+        let end = got.iter().position(|&b| b == 0).expect("a request frame");
+        let request: Downlink = decode_frame(&mut got[..end]).expect("a downlink");
+        // Answered as the firmware does: the Hello, then the next report.
+        let answer = Uplink {
+            seq: 51,
+            ..hello(7, 3_600_500)
+        };
+        master.write_all(&frame(&answer)).unwrap();
+        master
+            .write_all(&frame(&report(
+                52,
+                3_601_000,
+                1_000_000,
+                CutoffState::Harvesting,
+            )))
+            .unwrap();
+        (master, request)
+    });
+    let dir = tempfile::tempdir().unwrap();
+    let log = dir.path().join("attached.glog");
+    let mut recorder = Recorder::create(&log, &path).unwrap();
+    let stop = AtomicBool::new(false);
+    let started = Instant::now();
+    let mut observer = Collect::new(move |stats, _| {
+        stats.frames >= 3 || started.elapsed() > Duration::from_secs(5)
+    });
+    run_port(&mut recorder, &path, 115_200, &stop, &mut observer).unwrap();
+    recorder.finish().unwrap();
+    let (_master, request) = node.join().unwrap();
+    assert_eq!(request.command, Command::GetInfo);
+    let report = analyze_file(&log).unwrap();
+    assert_eq!(report.boots.len(), 1, "{:?}", report.warnings);
+    assert_eq!(report.boots[0].boot_id, 7);
+    assert_eq!(report.link.lost_frames, 0);
+    assert!(!report.warnings.iter().any(|w| w.contains("no Hello")));
+}
+
+#[test]
+fn a_log_without_a_hello_says_so() {
+    let (mut master, _slave, path) = scripted();
+    master
+        .write_all(&frame(&report(
+            50,
+            3_600_000,
+            1_000_000,
+            CutoffState::Harvesting,
+        )))
+        .unwrap();
+    let dir = tempfile::tempdir().unwrap();
+    let log = dir.path().join("silent.glog");
+    let mut recorder = Recorder::create(&log, &path).unwrap();
+    let stop = AtomicBool::new(false);
+    let started = Instant::now();
+    let mut observer = Collect::new(move |stats, _| {
+        stats.frames >= 1 || started.elapsed() > Duration::from_secs(5)
+    });
+    run_port(&mut recorder, &path, 115_200, &stop, &mut observer).unwrap();
+    recorder.finish().unwrap();
+    let report = analyze_file(&log).unwrap();
+    assert!(report.boots.is_empty());
+    assert!(
+        report.warnings.iter().any(|w| w.contains("no Hello")),
+        "{:?}",
+        report.warnings
+    );
+}

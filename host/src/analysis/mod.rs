@@ -580,6 +580,12 @@ impl Analyzer {
 
     /// Finishes the run.
     pub fn finish(mut self) -> RunReport {
+        if self.boots.is_empty() && self.counts.iter().any(|&c| c > 0) {
+            self.warn(
+                "the log holds no Hello: firmware, node identity, calibration and thresholds are unknown (recording with this gleaner asks the node for one on every connect)"
+                    .to_string(),
+            );
+        }
         let end = self.last_t_s;
         self.close_outage_at(end, true);
         let load_outages = std::mem::take(&mut self.load_outages).finish(end);
