@@ -362,7 +362,8 @@ pub struct Report {
     /// Forecast time until the load browns out (storage down to the load's
     /// minimum); None while storage is not expected to run out.
     pub brownout_in_ms: Option<u32>,
-    /// The load's power averaged over its duty period.
+    /// The load's power at the present storage voltage, from its current
+    /// averaged over its duty period.
     pub load_nw: u64,
     /// Converter output less load power, averaged like `load_nw`:
     /// positive while storage charges, negative while it drains.

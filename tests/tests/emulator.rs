@@ -239,7 +239,8 @@ fn record_the_emulated_node_talk_to_it_and_report_its_cutoff() {
         (0.69..=0.75).contains(&cutoff.input_v_before),
         "cut off near the 0.7 V hold: {cutoff:?}"
     );
-    assert_eq!(report.message_counts["reply"], 2);
+    // The recorder's Hello request on connect, then the script's two commands.
+    assert_eq!(report.message_counts["reply"], 3);
     // The new report interval took effect.
     let intervals: Vec<u32> = messages
         .iter()
