@@ -300,3 +300,70 @@ fn several_logs_with_a_bad_one_report_the_good_and_name_the_bad() {
     assert!(err.contains("once per log"), "{err}");
     assert!(!page.exists());
 }
+
+/// The Python with the reference libraries (made by `.ci/run`).
+fn reference_python() -> std::path::PathBuf {
+    let workspace = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+        .parent()
+        .unwrap()
+        .to_path_buf();
+    std::env::var_os("GLEANER_PYTHON")
+        .map(std::path::PathBuf::from)
+        .unwrap_or_else(|| workspace.join(".venv/bin/python"))
+}
+
+#[test]
+fn a_served_virtual_node_answers_an_independent_client() {
+    use std::io::BufRead;
+    let python = reference_python();
+    assert!(
+        python.exists(),
+        "no Python with the reference libraries at {}: run `bash .ci/run` once",
+        python.display()
+    );
+    let mut serve = gleaner()
+        .args(["sim", "serve", "stalled-converter", "--speed", "20"])
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    let mut lines = std::io::BufReader::new(serve.stdout.take().unwrap()).lines();
+    let first = lines.next().unwrap().unwrap();
+    // "virtual node 'stalled-converter' (an invented scenario) on /dev/pts/N, 20x real time"
+    let path = first
+        .split(" on ")
+        .nth(1)
+        .and_then(|rest| rest.split(',').next())
+        .unwrap_or_else(|| panic!("the device path is printed: {first}"))
+        .to_string();
+    assert!(first.contains("invented"), "{first}");
+    let script =
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../tests/reference/serve_client.py");
+    let out = Command::new(&python)
+        .arg(script)
+        .arg(&path)
+        .output()
+        .unwrap();
+    let stopped = Command::new("kill")
+        .args(["-TERM", &serve.id().to_string()])
+        .status()
+        .unwrap();
+    assert!(stopped.success());
+    let status = serve.wait().unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let seen: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(seen["pong"], true, "{seen}");
+    let frames = seen["frames"].as_u64().unwrap();
+    assert!(frames >= 2, "{seen}");
+    assert_eq!(seen["crc_ok"].as_u64(), Some(frames), "{seen}");
+    // Reports (variant 1) came before the reply.
+    assert!(seen["kinds"]["1"].as_u64().unwrap_or(0) >= 1, "{seen}");
+    assert!(
+        status.success(),
+        "serve ends cleanly on SIGTERM: {status:?}"
+    );
+}

@@ -1,5 +1,6 @@
 //! `gleaner sim`: scenarios and source curves of the virtual node.
 
+use std::io::Write;
 use std::path::PathBuf;
 
 use anyhow::{bail, Result};
@@ -7,6 +8,7 @@ use clap::{Args, Subcommand};
 
 use crate::sim::engine::simulate_to_log;
 use crate::sim::numeric::golden_max;
+use crate::sim::port::{Unread, VirtualPort};
 use crate::sim::scenario::BUILTIN;
 use crate::sim::source::{Source, SourceParams};
 use crate::sim::Scenario;
@@ -54,6 +56,12 @@ pub enum Action {
         #[arg(long)]
         out: PathBuf,
     },
+    /// Run a virtual node on a pseudo-terminal of its own until stopped
+    /// (Ctrl-C): practise `watch`, `record` and `node` on it from another
+    /// terminal, or attach any serial program. With nobody attached its bytes
+    /// are dropped, as a real node's are; after the scenario ends the node
+    /// still answers commands.
+    Serve(Serve),
     /// Judge the node's forecasts against the truth over a corpus of
     /// randomized, invented scenarios: coverage, share within ±20 %, median
     /// signed error (positive: optimistic) and flapping, today's (protocol 1,
@@ -70,6 +78,74 @@ pub enum Action {
         #[arg(long)]
         compare_shedding: bool,
     },
+}
+
+/// A virtual node served on a pseudo-terminal.
+#[derive(Debug, Args)]
+pub struct Serve {
+    /// Built-in name or file.
+    #[arg(default_value = crate::sim::scenario::DEFAULT_SCENARIO)]
+    pub scenario: String,
+    /// Simulated time runs this many times faster than real time (1: real time).
+    #[arg(long, default_value_t = 1.0)]
+    pub speed: f64,
+    /// Also make a symbolic link to the device here (a name that stays put).
+    #[arg(long)]
+    pub link: Option<PathBuf>,
+    /// Boot id of the virtual node.
+    #[arg(long, default_value_t = 1)]
+    pub boot_id: u32,
+}
+
+impl Serve {
+    /// Serves until SIGINT or SIGTERM.
+    fn run(self) -> Result<()> {
+        if !(self.speed.is_finite() && self.speed > 0.0 && self.speed <= 1e6) {
+            bail!(
+                "--speed must be above 0 and at most 1000000, got {}",
+                self.speed
+            );
+        }
+        let stop = super::stop_flag()?;
+        let scenario = Scenario::load(&self.scenario)?;
+        let name = scenario.name.clone();
+        let node = crate::sim::VirtualNode::new(scenario, self.boot_id)?;
+        let port = VirtualPort::spawn_with(node, Some(self.speed), Unread::Drop)?;
+        let shown = match &self.link {
+            Some(link) => {
+                std::os::unix::fs::symlink(port.path(), link)
+                    .map_err(|e| anyhow::anyhow!("cannot make the link {}: {e}", link.display()))?;
+                format!("{} (linked from {})", port.path(), link.display())
+            }
+            None => port.path().to_string(),
+        };
+        let mut out = std::io::stdout().lock();
+        writeln!(
+            out,
+            "virtual node '{name}' (an invented scenario) on {shown}, {}x real time",
+            self.speed
+        )?;
+        writeln!(
+            out,
+            "try in another terminal: gleaner watch {}   (Ctrl-C here stops the node)",
+            port.path()
+        )?;
+        out.flush()?;
+        let mut said_over = false;
+        while !stop.load(std::sync::atomic::Ordering::Relaxed) {
+            std::thread::sleep(std::time::Duration::from_millis(100));
+            if port.finished() && !said_over {
+                said_over = true;
+                writeln!(out, "the scenario is over; the node still answers commands")?;
+                out.flush()?;
+            }
+        }
+        port.stop()?;
+        if let Some(link) = &self.link {
+            let _ = std::fs::remove_file(link);
+        }
+        Ok(())
+    }
 }
 
 /// Conditions for a curve.
@@ -202,6 +278,7 @@ impl Cmd {
                 simulate_to_log(scenario, 1, &out, crate::log::now_us())?;
                 println!("simulated to {}", out.display());
             }
+            Action::Serve(serve) => serve.run()?,
             Action::Score {
                 scenarios,
                 seed,

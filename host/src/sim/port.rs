@@ -33,7 +33,22 @@ pub struct VirtualPort {
     handle: Option<JoinHandle<Result<GroundTruth>>>,
 }
 
-fn write_all_patiently(port: &mut TTYPort, mut bytes: &[u8], stop: &AtomicBool) -> Result<()> {
+/// What the node does when nobody reads its bytes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Unread {
+    /// Wait for a reader (simulated time stands still): nothing is lost.
+    Wait,
+    /// Drop them, as a real node's UART does with nothing attached; the
+    /// node's time runs on.
+    Drop,
+}
+
+fn write_all_patiently(
+    port: &mut TTYPort,
+    mut bytes: &[u8],
+    stop: &AtomicBool,
+    unread: Unread,
+) -> Result<()> {
     while !bytes.is_empty() {
         match port.write(bytes) {
             Ok(0) => return Err(anyhow!("pseudo-terminal closed")),
@@ -46,7 +61,7 @@ fn write_all_patiently(port: &mut TTYPort, mut bytes: &[u8], stop: &AtomicBool) 
                         | std::io::ErrorKind::Interrupted
                 ) =>
             {
-                if stop.load(Ordering::Relaxed) {
+                if stop.load(Ordering::Relaxed) || unread == Unread::Drop {
                     return Ok(());
                 }
             }
@@ -60,7 +75,12 @@ impl VirtualPort {
     /// Starts `node` behind a new pseudo-terminal. With `speed`, simulated
     /// time runs that many times faster than real time; without, as fast as
     /// the reader takes the bytes.
-    pub fn spawn(mut node: VirtualNode, speed: Option<f64>) -> Result<Self> {
+    pub fn spawn(node: VirtualNode, speed: Option<f64>) -> Result<Self> {
+        Self::spawn_with(node, speed, Unread::Wait)
+    }
+
+    /// As [`VirtualPort::spawn`], choosing what happens to bytes nobody reads.
+    pub fn spawn_with(mut node: VirtualNode, speed: Option<f64>, unread: Unread) -> Result<Self> {
         let (mut master, slave) = TTYPort::pair().context("cannot create a pseudo-terminal")?;
         let path = slave
             .name()
@@ -92,7 +112,7 @@ impl VirtualPort {
                     }
                     node.drain_frames(&mut out);
                     if !out.is_empty() {
-                        write_all_patiently(&mut master, &out, &stop_t)?;
+                        write_all_patiently(&mut master, &out, &stop_t, unread)?;
                         out.clear();
                     }
                     if steps.is_multiple_of(batch) || node.finished() {
