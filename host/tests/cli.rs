@@ -367,3 +367,38 @@ fn a_served_virtual_node_answers_an_independent_client() {
         "serve ends cleanly on SIGTERM: {status:?}"
     );
 }
+
+#[test]
+fn every_command_into_a_pipe_closed_early_ends_quietly() {
+    // Outputs far larger than a pipe's buffer, so the writer meets the closed end.
+    let dir = tempfile::tempdir().unwrap();
+    let log = dir.path().join("synthetic.glog");
+    let (ok, _, err) = run(&[
+        "sim",
+        "synthetic",
+        "--days",
+        "0.5",
+        "--out",
+        log.to_str().unwrap(),
+    ]);
+    assert!(ok, "{err}");
+    let log = log.to_str().unwrap();
+    for args in [
+        vec!["sim", "curve", "--points", "20000"],
+        vec!["watch", "--replay", log, "--plain"],
+    ] {
+        let mut child = gleaner()
+            .args(&args)
+            .stdout(std::process::Stdio::piped())
+            .stderr(std::process::Stdio::piped())
+            .spawn()
+            .unwrap();
+        let mut first = [0u8; 16];
+        std::io::Read::read_exact(child.stdout.as_mut().unwrap(), &mut first).unwrap();
+        drop(child.stdout.take());
+        let out = child.wait_with_output().unwrap();
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert!(out.status.success(), "{args:?}: {:?} {stderr}", out.status);
+        assert!(!stderr.contains("panicked"), "{args:?}: {stderr}");
+    }
+}

@@ -40,11 +40,12 @@ impl Cmd {
     pub fn run(self) -> Result<()> {
         let scenario = Scenario::load(&self.scenario)?;
         let speed = self.speed.unwrap_or(scenario.duration_s() / 20.0).max(1.0);
-        println!(
+        say!(
             "Gleaner demo: scenario '{}' ({:.1} h simulated, {speed:.0}x real time)",
-            scenario.name, scenario.duration_h
-        );
-        println!("  {}", scenario.description);
+            scenario.name,
+            scenario.duration_h
+        )?;
+        say!("  {}", scenario.description)?;
         let name = scenario.name.clone();
         let boot_id = std::time::SystemTime::now()
             .duration_since(std::time::UNIX_EPOCH)
@@ -57,11 +58,11 @@ impl Cmd {
             &log_path,
             &format!("virtual node '{name}' on {}", port.path()),
         )?;
-        println!(
+        say!(
             "  virtual node on {}; recording to {}",
             port.path(),
             log_path.display()
-        );
+        )?;
 
         let stop = super::stop_flag()?;
         let screen = !self.plain && std::io::stdout().is_terminal();
@@ -94,24 +95,24 @@ impl Cmd {
         let progress = port.progress();
         let truth = port.stop()?;
         if quit {
-            println!(
+            say!(
                 "stopped early at {:.1} of {:.1} simulated hours",
                 progress.simulated_s / 3600.0,
                 progress.total_s / 3600.0
-            );
+            )?;
         }
 
         let report = analyze_file(&log_path)?;
-        println!();
-        print!("{}", text::render(&report));
+        say!()?;
+        say_part!("{}", text::render(&report))?;
         let html_path = log_path.with_extension("html");
         match html::render(&report) {
             Ok(page) => std::fs::write(&html_path, page)?,
             Err(e) => eprintln!("warning: the HTML report could not be drawn: {e}"),
         }
-        println!();
-        println!("SIMULATOR GROUND TRUTH (what really happened)");
-        println!(
+        say!()?;
+        say!("SIMULATOR GROUND TRUTH (what really happened)")?;
+        say!(
             "  drawn {}, delivered {}, storage change {}, efficiency {}",
             text::energy(truth.drawn_j),
             text::energy(truth.delivered_j),
@@ -119,31 +120,29 @@ impl Cmd {
             truth
                 .efficiency()
                 .map_or("-".into(), |e| format!("{:.1} %", e * 100.0))
-        );
+        )?;
         if truth.drawn_j > 0.0 {
-            println!(
+            say!(
                 "  the node's drawn energy is within {:.2} % of the truth, delivered within {:.2} %",
                 (report.energy.drawn_j - truth.drawn_j).abs() / truth.drawn_j * 100.0,
                 (report.energy.delivered_j - truth.delivered_j).abs() / truth.delivered_j.max(1e-12) * 100.0
-            );
+            )?;
         }
-        println!();
-        println!("Log:  {}", log_path.display());
-        println!(
+        say!()?;
+        say!("Log:  {}", log_path.display())?;
+        say!(
             "Page: {} (open it in a browser; it needs no network)",
             html_path.display()
-        );
-        println!(
+        )?;
+        say!(
             "Next: gleaner report {}       (the same report again, or --json)",
             log_path.display()
-        );
-        println!(
+        )?;
+        say!(
             "      gleaner watch --replay {}   (watch it again)",
             log_path.display()
-        );
-        println!(
-            "      gleaner demo --scenario crate-beacon   (other scenarios: gleaner sim list)"
-        );
+        )?;
+        say!("      gleaner demo --scenario crate-beacon   (other scenarios: gleaner sim list)")?;
         Ok(())
     }
 }

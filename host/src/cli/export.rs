@@ -31,21 +31,21 @@ impl Cmd {
             .unwrap_or_else(|| self.log.with_extension(""));
         if self.parquet {
             let done = crate::export::export_parquet(&self.log, &prefix)?;
-            println!(
+            say!(
                 "{} reports to {}",
                 done.reports,
                 done.reports_path.display()
-            );
-            println!("{} events to {}", done.events, done.events_path.display());
+            )?;
+            say!("{} events to {}", done.events, done.events_path.display())?;
             return Ok(());
         }
         let done = export_csv(&self.log, &prefix)?;
-        println!(
+        say!(
             "{} reports to {}",
             done.reports,
             done.reports_path.display()
-        );
-        println!("{} events to {}", done.events, done.events_path.display());
+        )?;
+        say!("{} events to {}", done.events, done.events_path.display())?;
         Ok(())
     }
 }

@@ -34,13 +34,13 @@ impl Cmd {
         recorder.on_bytes(when, &bytes, |_| {})?;
         recorder.finish()?;
         let s = recorder.stats();
-        println!(
+        say!(
             "{} frames ({} damaged) from {} bytes into {}",
             s.frames,
             s.damaged(),
             bytes.len(),
             self.out.display()
-        );
+        )?;
         Ok(())
     }
 }

@@ -1,5 +1,23 @@
 //! The command-line interface: one module per command, each with `run(self)`.
 
+/// `println!` that returns the write's error instead of panicking, so a
+/// reader that closes the pipe early ends the command quietly (see
+/// [`is_closed_pipe`]).
+macro_rules! say {
+    ($($arg:tt)*) => {{
+        use std::io::Write as _;
+        writeln!(std::io::stdout(), $($arg)*)
+    }};
+}
+
+/// `print!` that returns the write's error instead of panicking.
+macro_rules! say_part {
+    ($($arg:tt)*) => {{
+        use std::io::Write as _;
+        write!(std::io::stdout(), $($arg)*)
+    }};
+}
+
 pub mod demo;
 pub mod export;
 pub mod import;

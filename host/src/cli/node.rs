@@ -232,14 +232,14 @@ impl Cmd {
             Action::Ping => {
                 let started = Instant::now();
                 explain(session.request(Command::Ping, Duration::ZERO)?)?;
-                println!("pong in {:.1} ms", started.elapsed().as_secs_f64() * 1e3);
+                say!("pong in {:.1} ms", started.elapsed().as_secs_f64() * 1e3)?;
             }
             Action::Info => {
                 explain(session.request(Command::GetInfo, Duration::ZERO)?)?;
                 let hello = session
                     .hello
                     .context("the node accepted but sent no Hello")?;
-                print_hello(&hello);
+                print_hello(&hello)?;
             }
             Action::SetConfig(set) => {
                 let settings = set.settings()?;
@@ -252,11 +252,11 @@ impl Cmd {
                     .clone();
                 let config = settings.apply(&current)?;
                 explain(session.request(Command::SetConfig(config), Duration::ZERO)?)?;
-                println!("configuration accepted and stored");
+                say!("configuration accepted and stored")?;
             }
             Action::ResetEnergy => {
                 explain(session.request(Command::ResetEnergy, Duration::ZERO)?)?;
-                println!("energy totals reset");
+                say!("energy totals reset")?;
             }
             Action::Burst { samples, out } => {
                 let period_s = session
@@ -280,11 +280,11 @@ impl Cmd {
                         s.output_na
                     )?;
                 }
-                println!(
+                say!(
                     "{} of {samples} samples written to {}",
                     session.samples.len(),
                     out.display()
-                );
+                )?;
             }
         }
         Ok(())
@@ -292,32 +292,38 @@ impl Cmd {
 }
 
 /// Prints a `Hello` for people.
-pub fn print_hello(h: &Hello) {
+pub fn print_hello(h: &Hello) -> std::io::Result<()> {
     let t = &h.config.thresholds;
-    println!(
+    say!(
         "firmware {}  protocol {}  boot id {:08x}  sample period {} µs",
-        h.firmware, h.protocol, h.boot_id, h.sample_period_us
-    );
-    println!("configuration from {:?}", h.config_source);
-    println!("  report interval   {} ms", h.config.report_interval_ms);
-    println!(
+        h.firmware,
+        h.protocol,
+        h.boot_id,
+        h.sample_period_us
+    )?;
+    say!("configuration from {:?}", h.config_source)?;
+    say!("  report interval   {} ms", h.config.report_interval_ms)?;
+    say!(
         "  start / hold      {:.3} V / {:.3} V (sag margin {:.3} V)",
         f64::from(t.start_uv) / 1e6,
         f64::from(t.hold_uv) / 1e6,
         f64::from(t.sag_margin_uv) / 1e6
-    );
-    println!(
+    )?;
+    say!(
         "  output up / down  {:.3} V / {:.3} V",
         f64::from(t.output_up_uv) / 1e6,
         f64::from(t.output_down_uv) / 1e6
-    );
-    println!("  debounce {} ms, cold-start timeout {} ms, forecast horizon {} ms, input idle below {} nA", t.debounce_ms, t.cold_start_timeout_ms, t.forecast_horizon_ms, t.input_idle_na);
-    println!(
+    )?;
+    say!("  debounce {} ms, cold-start timeout {} ms, forecast horizon {} ms, input idle below {} nA", t.debounce_ms, t.cold_start_timeout_ms, t.forecast_horizon_ms, t.input_idle_na)?;
+    say!(
         "  output storage    {} µF, load restored after {} ms",
-        h.config.output_storage_uf, h.config.load_restore_ms
-    );
-    println!(
+        h.config.output_storage_uf,
+        h.config.load_restore_ms
+    )?;
+    say!(
         "totals since reset: drawn {} nJ, delivered {} nJ, stored {} nJ",
-        h.totals.drawn_nj, h.totals.delivered_nj, h.totals.stored_nj
-    );
+        h.totals.drawn_nj,
+        h.totals.delivered_nj,
+        h.totals.stored_nj
+    )
 }

@@ -57,30 +57,30 @@ impl Cmd {
         };
         let a = inputs.advise()?;
         if self.json {
-            println!("{}", serde_json::to_string_pretty(&a)?);
+            say!("{}", serde_json::to_string_pretty(&a)?)?;
             return Ok(());
         }
-        println!(
+        say!(
             "load at {:.2} % duty      {}",
             self.duty_cycle * 100.0,
             power(a.load_w)
-        );
-        println!("outage to ride through   {}", duration(a.outage_s));
-        println!("energy needed            {}", energy(a.energy_needed_j));
-        println!(
+        )?;
+        say!("outage to ride through   {}", duration(a.outage_s))?;
+        say!("energy needed            {}", energy(a.energy_needed_j))?;
+        say!(
             "storage                  {:.4} F between {:.2} V and {:.2} V ({:.4} F by C = 2E / (Vmax² - Vmin²), plus {:.0} % margin)",
             a.capacitance_f.unwrap_or(f64::NAN),
             a.v_max,
             a.v_min,
             a.capacitance_exact_f.unwrap_or(f64::NAN),
             (a.margin - 1.0) * 100.0
-        );
+        )?;
         match a.max_duty_cycle {
-            Some(d) => println!("largest duty cycle       {:.3} % for a mean harvest of {}", d * 100.0, power(a.harvest_w)),
-            None => println!("largest duty cycle       none: the harvest ({}) does not cover even the sleep power", power(a.harvest_w)),
+            Some(d) => say!("largest duty cycle       {:.3} % for a mean harvest of {}", d * 100.0, power(a.harvest_w))?,
+            None => say!("largest duty cycle       none: the harvest ({}) does not cover even the sleep power", power(a.harvest_w))?,
         }
         if a.max_duty_cycle.is_some_and(|d| d < self.duty_cycle) {
-            println!("warning: the planned duty cycle is above what the harvest sustains; the node will run its storage down");
+            say!("warning: the planned duty cycle is above what the harvest sustains; the node will run its storage down")?;
         }
         Ok(())
     }

@@ -19,17 +19,20 @@ impl Cmd {
     pub fn run(self) -> Result<()> {
         let ports = list_ports()?;
         if self.json {
-            println!("{}", serde_json::to_string_pretty(&ports)?);
+            say!("{}", serde_json::to_string_pretty(&ports)?)?;
             return Ok(());
         }
         if ports.is_empty() {
-            println!("no serial ports found: plug the node in (and check `dmesg` on Linux), or try `gleaner demo` to run a virtual node");
+            say!("no serial ports found: plug the node in (and check `dmesg` on Linux), or try `gleaner demo` to run a virtual node")?;
             return Ok(());
         }
-        println!(
+        say!(
             "{:<24} {:<9} {:<9} {:<20} description",
-            "port", "type", "vid:pid", "serial"
-        );
+            "port",
+            "type",
+            "vid:pid",
+            "serial"
+        )?;
         for p in ports {
             let ids = match (&p.vid, &p.pid) {
                 (Some(v), Some(d)) => format!("{v}:{d}"),
@@ -40,14 +43,14 @@ impl Cmd {
                 .flatten()
                 .collect::<Vec<_>>()
                 .join(" ");
-            println!(
+            say!(
                 "{:<24} {:<9} {:<9} {:<20} {}",
                 p.name,
                 p.kind,
                 ids,
                 p.serial_number.as_deref().unwrap_or("-"),
                 desc
-            );
+            )?;
         }
         Ok(())
     }

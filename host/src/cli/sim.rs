@@ -227,12 +227,12 @@ impl Cmd {
             Action::List => {
                 for (name, _) in BUILTIN {
                     let s = Scenario::builtin(name)?;
-                    println!("{name:<20} {:>5.1} h  {}", s.duration_h, s.description);
+                    say!("{name:<20} {:>5.1} h  {}", s.duration_h, s.description)?;
                 }
             }
             Action::Show { scenario } => match BUILTIN.iter().find(|(n, _)| *n == scenario) {
-                Some((_, text)) => print!("{text}"),
-                None => print!("{}", toml::to_string(&Scenario::load(&scenario)?)?),
+                Some((_, text)) => say_part!("{text}")?,
+                None => say_part!("{}", toml::to_string(&Scenario::load(&scenario)?)?)?,
             },
             Action::Curve(c) => {
                 if c.points < 2 || c.points > 100_000 {
@@ -240,17 +240,17 @@ impl Cmd {
                 }
                 let source = c.source()?;
                 let voc = source.open_circuit_voltage();
-                println!("# open-circuit voltage {voc:.6} V");
+                say!("# open-circuit voltage {voc:.6} V")?;
                 let (v_mp, p_mp) = golden_max(0.0, voc.max(0.0), |v| v * source.current_at(v));
-                println!(
+                say!(
                     "# maximum power {p_mp:.6e} W at {v_mp:.6} V, {:.6e} A",
                     source.current_at(v_mp)
-                );
-                println!("voltage_v,current_a,power_w");
+                )?;
+                say!("voltage_v,current_a,power_w")?;
                 for i in 0..c.points {
                     let v = voc * i as f64 / (c.points - 1) as f64;
                     let a = source.current_at(v);
-                    println!("{v:.6},{a:.6e},{:.6e}", v * a);
+                    say!("{v:.6},{a:.6e},{:.6e}", v * a)?;
                 }
             }
             Action::Synthetic {
@@ -271,12 +271,12 @@ impl Cmd {
                     crate::sim::synthetic::SyntheticLog::new((days * 86_400.0) as u64, interval_s);
                 let bytes = std::io::copy(&mut log, &mut writer)?;
                 std::io::Write::flush(&mut writer)?;
-                println!("{bytes} bytes to {}", out.display());
+                say!("{bytes} bytes to {}", out.display())?;
             }
             Action::Run { scenario, out } => {
                 let scenario = Scenario::load(&scenario)?;
                 simulate_to_log(scenario, 1, &out, crate::log::now_us())?;
-                println!("simulated to {}", out.display());
+                say!("simulated to {}", out.display())?;
             }
             Action::Serve(serve) => serve.run()?,
             Action::Score {
@@ -285,7 +285,7 @@ impl Cmd {
                 compare_shedding,
             } => {
                 let score = crate::sim::score::score_corpus(seed, scenarios, compare_shedding)?;
-                print!("{}", score.render());
+                say_part!("{}", score.render())?;
             }
         }
         Ok(())

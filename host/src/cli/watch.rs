@@ -61,7 +61,7 @@ impl Cmd {
             let result = replay(log, self.speed, &stop, &mut observer);
             observer.close();
             if screen && result.is_ok() && !observer.quit {
-                println!("replay finished");
+                say!("replay finished")?;
             }
             return result;
         }
