@@ -78,7 +78,7 @@ fn gleaner_scenario_text(name: &str) -> String {
 #[test]
 fn simulate_report_and_export_a_run() {
     let dir = tempfile::tempdir().unwrap();
-    let log = dir.path().join("run.glog");
+    let log = dir.path().join("run.gleanlog");
     let (ok, _, err) = run(&[
         "sim",
         "run",
@@ -215,7 +215,7 @@ fn a_report_into_a_pipe_closed_early_ends_quietly() {
     // `gleaner report --json LOG | head`: the reader goes after a few bytes;
     // the JSON (hundreds of kB with its plot series) no longer fits the pipe.
     let dir = tempfile::tempdir().unwrap();
-    let log = dir.path().join("synthetic.glog");
+    let log = dir.path().join("synthetic.gleanlog");
     let (ok, _, err) = run(&[
         "sim",
         "synthetic",
@@ -246,7 +246,7 @@ fn a_file_that_is_not_a_log_is_an_error_naming_it() {
     let dir = tempfile::tempdir().unwrap();
     let text = dir.path().join("passwd");
     std::fs::write(&text, "root:x:0:0:root:/root:/bin/sh\n").unwrap();
-    let empty = dir.path().join("empty.glog");
+    let empty = dir.path().join("empty.gleanlog");
     std::fs::write(&empty, b"").unwrap();
     for (file, why) in [(&text, "not a Gleaner log"), (&empty, "is empty")] {
         let (ok, out, err) = run(&["report", file.to_str().unwrap()]);
@@ -262,7 +262,7 @@ fn a_file_that_is_not_a_log_is_an_error_naming_it() {
 #[test]
 fn several_logs_with_a_bad_one_report_the_good_and_name_the_bad() {
     let dir = tempfile::tempdir().unwrap();
-    let good = dir.path().join("good.glog");
+    let good = dir.path().join("good.gleanlog");
     let (ok, _, err) = run(&[
         "sim",
         "synthetic",
@@ -372,7 +372,7 @@ fn a_served_virtual_node_answers_an_independent_client() {
 fn every_command_into_a_pipe_closed_early_ends_quietly() {
     // Outputs far larger than a pipe's buffer, so the writer meets the closed end.
     let dir = tempfile::tempdir().unwrap();
-    let log = dir.path().join("synthetic.glog");
+    let log = dir.path().join("synthetic.gleanlog");
     let (ok, _, err) = run(&[
         "sim",
         "synthetic",

@@ -42,7 +42,7 @@ fn killed_at_random_moments_every_log_opens_with_everything_flushed() {
     for round in 0..kills {
         let (mut master, slave) = TTYPort::pair().unwrap();
         let path = slave.name().unwrap();
-        let log = dir.path().join(format!("kill-{round}.glog"));
+        let log = dir.path().join(format!("kill-{round}.gleanlog"));
         let mut child = Command::new(env!("CARGO_BIN_EXE_gleaner"))
             .args([
                 "record",
@@ -133,7 +133,7 @@ impl Drop for TinyDisk {
 #[test]
 fn a_full_disk_stops_recording_with_a_clear_error_and_a_readable_log() {
     let disk = TinyDisk::mount(64 * 1024);
-    let log = disk.0.join("full.glog");
+    let log = disk.0.join("full.gleanlog");
     let mut recorder = Recorder::create(&log, "test").unwrap();
     let mut written = 0u16;
     let err = loop {

@@ -19,7 +19,7 @@ if [ ! -x .venv-bench/bin/python ]; then python3 -m venv .venv-bench; fi
 py=.venv-bench/bin/python
 
 echo "== 1. analysis speed: a ${days}-day log at one report per second"
-log="$work/run.glog"
+log="$work/run.gleanlog"
 $bin sim synthetic --days "$days" --out "$log" >/dev/null
 $bin export "$log" --out "$work/run" >/dev/null
 $bin export "$log" --parquet --out "$work/run" >/dev/null

@@ -62,7 +62,7 @@ pub fn record_virtual_run(
 ) -> Result<(PathBuf, RunReport, GroundTruth, Vec<Tracked>)> {
     let node = VirtualNode::new(scenario, 0x5EED)?;
     let port = VirtualPort::spawn(node, None)?;
-    let log = dir.join("run.glog");
+    let log = dir.join("run.gleanlog");
     let mut recorder = Recorder::create(&log, port.path())?;
     let stop = AtomicBool::new(false);
     let messages = {

@@ -189,7 +189,7 @@ fn record_the_emulated_node_talk_to_it_and_report_its_cutoff() {
             break rest.split_whitespace().next().unwrap().to_string();
         }
     };
-    let log = dir.path().join("qemu.glog");
+    let log = dir.path().join("qemu.gleanlog");
     let mut recorder = Recorder::create(&log, &pty).unwrap();
     let stop = AtomicBool::new(false);
     let mut monitor_link = None;

@@ -118,7 +118,7 @@ fn plain_watch_shows_the_values_sent() {
 fn record_then_read_back_gives_every_frame_sent() {
     let (mut master, _slave, path) = scripted();
     let dir = tempfile::tempdir().unwrap();
-    let log = dir.path().join("r.glog");
+    let log = dir.path().join("r.gleanlog");
     let sent: Vec<Vec<u8>> = (0..200u16)
         .map(|i| {
             frame(&report(
@@ -178,7 +178,7 @@ fn a_reboot_is_detected_and_logged() {
     }
     master.write_all(&stream).unwrap();
     let dir = tempfile::tempdir().unwrap();
-    let log = dir.path().join("reboot.glog");
+    let log = dir.path().join("reboot.gleanlog");
     let mut recorder = Recorder::create(&log, &path).unwrap();
     let stop = AtomicBool::new(false);
     let started = Instant::now();
@@ -203,7 +203,7 @@ fn ten_unplug_replug_cycles_reconnect_each_time_and_mark_every_gap() {
     const CYCLES: u16 = 10;
     let dir = tempfile::tempdir().unwrap();
     let link = dir.path().join("node");
-    let log = dir.path().join("unplug.glog");
+    let log = dir.path().join("unplug.gleanlog");
     let (mut master, mut slave, first_path) = scripted();
     std::os::unix::fs::symlink(&first_path, &link).unwrap();
     let stop = Arc::new(AtomicBool::new(false));
@@ -397,7 +397,7 @@ fn a_protocol_major_mismatch_stops_with_both_versions() {
     }
     master.write_all(&frame(&h)).unwrap();
     let dir = tempfile::tempdir().unwrap();
-    let mut recorder = Recorder::create(&dir.path().join("v.glog"), &path).unwrap();
+    let mut recorder = Recorder::create(&dir.path().join("v.gleanlog"), &path).unwrap();
     let stop = AtomicBool::new(false);
     let started = Instant::now();
     let mut observer = Collect::new(move |_, _| started.elapsed() > Duration::from_secs(5));
@@ -468,7 +468,7 @@ fn the_recorder_asks_a_running_node_for_its_hello() {
         (master, request)
     });
     let dir = tempfile::tempdir().unwrap();
-    let log = dir.path().join("attached.glog");
+    let log = dir.path().join("attached.gleanlog");
     let mut recorder = Recorder::create(&log, &path).unwrap();
     let stop = AtomicBool::new(false);
     let started = Instant::now();
@@ -498,7 +498,7 @@ fn a_log_without_a_hello_says_so() {
         )))
         .unwrap();
     let dir = tempfile::tempdir().unwrap();
-    let log = dir.path().join("silent.glog");
+    let log = dir.path().join("silent.gleanlog");
     let mut recorder = Recorder::create(&log, &path).unwrap();
     let stop = AtomicBool::new(false);
     let started = Instant::now();

@@ -377,7 +377,7 @@ fn thermal_voltage_matches_scipy_constants() {
 #[test]
 fn the_parquet_export_gives_the_report_totals_in_pyarrow_and_duckdb() {
     let dir = tempfile::tempdir().unwrap();
-    let log = dir.path().join("run.glog");
+    let log = dir.path().join("run.gleanlog");
     gleaner::sim::engine::simulate_to_log(scenario("boiler-pipe", Some(2.0)), 4, &log, 0).unwrap();
     let report = gleaner::analysis::analyze_file(&log).unwrap();
     let prefix = dir.path().join("out");

@@ -14,7 +14,7 @@ fn simulated(
     s: Scenario,
     dir: &std::path::Path,
 ) -> (std::path::PathBuf, RunReport, gleaner::sim::GroundTruth) {
-    let log = dir.join("sim.glog");
+    let log = dir.join("sim.gleanlog");
     let truth = simulate_to_log(s, 11, &log, 1_700_000_000_000_000).unwrap();
     let report = analyze_file(&log).unwrap();
     (log, report, truth)
@@ -243,7 +243,7 @@ fn a_protocol_1_log_reports_as_it_did() {
     // tool (invented orchard-night scenario, 1.5 h); the report of today's
     // build keeps every figure, and says the node is unknown.
     let dir = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("data");
-    let report = analyze_file(&dir.join("protocol1-orchard-night.glog")).unwrap();
+    let report = analyze_file(&dir.join("protocol1-orchard-night.gleanlog")).unwrap();
     let new = serde_json::to_value(&report).unwrap();
     let old: serde_json::Value = serde_json::from_str(
         &std::fs::read_to_string(dir.join("protocol1-orchard-night.report.json")).unwrap(),

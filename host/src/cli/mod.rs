@@ -104,7 +104,7 @@ pub fn stop_flag() -> anyhow::Result<std::sync::Arc<std::sync::atomic::AtomicBoo
     Ok(flag)
 }
 
-/// A fresh log path `DIR/NAME-YYYYMMDD-HHMMSS.glog`.
+/// A fresh log path `DIR/NAME-YYYYMMDD-HHMMSS.gleanlog`.
 pub fn new_log_path(dir: &std::path::Path, name: &str) -> std::path::PathBuf {
     let stamp = humantime::format_rfc3339_seconds(std::time::SystemTime::now()).to_string();
     let stamp: String = stamp
@@ -122,10 +122,10 @@ pub fn new_log_path(dir: &std::path::Path, name: &str) -> std::path::PathBuf {
             }
         })
         .collect();
-    let mut path = dir.join(format!("{safe}-{stamp}.glog"));
+    let mut path = dir.join(format!("{safe}-{stamp}.gleanlog"));
     let mut n = 1;
     while path.exists() {
-        path = dir.join(format!("{safe}-{stamp}-{n}.glog"));
+        path = dir.join(format!("{safe}-{stamp}-{n}.gleanlog"));
         n += 1;
     }
     path

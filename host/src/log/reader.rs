@@ -237,7 +237,7 @@ mod tests {
 
     fn sample_log() -> (Vec<u8>, usize) {
         let dir = tempfile::tempdir().unwrap();
-        let path = dir.path().join("a.glog");
+        let path = dir.path().join("a.gleanlog");
         let mut w = LogWriter::create(&path, &header()).unwrap();
         for i in 0..20u8 {
             w.append_frame(1000 + u64::from(i), &[i + 1; 7]).unwrap();
