@@ -63,7 +63,7 @@ fn the_demo_runs_end_to_end_and_says_what_next() {
         .collect();
     assert!(logs
         .iter()
-        .any(|p| p.extension().is_some_and(|e| e == "glog")));
+        .any(|p| p.extension().is_some_and(|e| e == "gleanlog")));
     assert!(logs
         .iter()
         .any(|p| p.extension().is_some_and(|e| e == "html")));
