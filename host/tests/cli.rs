@@ -115,7 +115,7 @@ fn the_planner_names_the_bad_field() {
     let plan = |v_min: &str| {
         run(&[
             "plan",
-            "--harvest-w",
+            "--converted-w",
             "0.001",
             "--sleep-w",
             "1e-5",
@@ -143,7 +143,7 @@ fn the_planner_names_the_bad_field() {
     // A negative value is a value (not a flag), refused in the unit it was given in.
     let (ok, _, err) = run(&[
         "plan",
-        "--harvest-w",
+        "--converted-w",
         "0.001",
         "--sleep-w",
         "1e-5",

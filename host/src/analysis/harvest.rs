@@ -16,7 +16,7 @@ pub struct SlotRow {
     /// Slot of the day, counted from the node's boot.
     pub slot: u16,
     /// Energy drawn from the harvester in it, J.
-    pub harvested_j: f64,
+    pub drawn_j: f64,
     /// The EWMA prediction, J.
     pub ewma_j: Option<f64>,
     /// The WCMA prediction, J.
@@ -64,11 +64,11 @@ impl HarvestSlots {
         let row = SlotRow {
             t_s,
             slot: h.slot,
-            harvested_j: j(h.harvested_uj),
+            drawn_j: j(h.harvested_uj),
             ewma_j: h.ewma_predicted_uj.map(j),
             wcma_j: h.wcma_predicted_uj.map(j),
         };
-        self.largest_j = self.largest_j.max(row.harvested_j);
+        self.largest_j = self.largest_j.max(row.drawn_j);
         if let Some(next) = h.next_day_uj {
             self.next_day_j = Some(next as f64 / 1e6);
         }
@@ -80,7 +80,7 @@ impl HarvestSlots {
     }
 
     fn add_errors(&mut self, row: &SlotRow) {
-        if row.harvested_j <= 0.0 || row.harvested_j < MAPE_FLOOR * self.largest_j {
+        if row.drawn_j <= 0.0 || row.drawn_j < MAPE_FLOOR * self.largest_j {
             return;
         }
         for (predicted, acc) in [
@@ -88,7 +88,7 @@ impl HarvestSlots {
             (row.wcma_j, &mut self.wcma_errors),
         ] {
             if let Some(p) = predicted {
-                acc.0 += (p - row.harvested_j).abs() / row.harvested_j;
+                acc.0 += (p - row.drawn_j).abs() / row.drawn_j;
                 acc.1 += 1;
             }
         }

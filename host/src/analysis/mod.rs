@@ -27,7 +27,18 @@ use series::{Sample, Series};
 use sizing::{advise, Figures, SizingAdvice, DEFAULT_MARGIN};
 
 /// Identifies the JSON layout; bumped on any incompatible change.
-pub const REPORT_SCHEMA: &str = "gleaner.report.v1";
+pub const REPORT_SCHEMA: &str = "gleaner.report.v2";
+
+/// Fields renamed from schema `gleaner.report.v1` to v2 (old path, new name),
+/// so that one word names one quantity: energy *drawn* from the harvester,
+/// *delivered* to the load, *stored*, and power *converted* (out of the
+/// converter into load and storage).
+pub const RENAMED_SINCE_V1: [(&str, &str); 4] = [
+    (".days[].harvested_j", "drawn_j"),
+    (".days[].consumed_j", "delivered_j"),
+    (".harvest.slots[].harvested_j", "drawn_j"),
+    (".sizing.harvest_w", "converted_w"),
+];
 
 /// Width of the efficiency-by-input-voltage bins, V.
 pub const EFFICIENCY_BIN_V: f64 = 0.05;
@@ -154,10 +165,10 @@ pub struct DayBudget {
     pub day: u32,
     /// Seconds of data in the day.
     pub covered_s: f64,
-    /// Harvested (drawn) energy, J.
-    pub harvested_j: f64,
-    /// Energy the load consumed, J.
-    pub consumed_j: f64,
+    /// Energy drawn from the harvester, J.
+    pub drawn_j: f64,
+    /// Energy delivered to the load, J.
+    pub delivered_j: f64,
     /// Net change of storage, J.
     pub stored_j: f64,
     /// Seconds in CutOff or Stalled.
@@ -641,8 +652,8 @@ impl Analyzer {
             .map(|(&day, d)| DayBudget {
                 day,
                 covered_s: d.covered_s,
-                harvested_j: d.drawn_nj as f64 / 1e9,
-                consumed_j: d.delivered_nj as f64 / 1e9,
+                drawn_j: d.drawn_nj as f64 / 1e9,
+                delivered_j: d.delivered_nj as f64 / 1e9,
                 stored_j: d.stored_nj as f64 / 1e9,
                 outage_s: d.outage_s,
                 energy_neutral: d.outage_s == 0.0 && d.stored_nj >= 0,
@@ -659,7 +670,7 @@ impl Analyzer {
             } else {
                 0.0
             };
-            let harvest_w = if duration_s > 0.0 {
+            let converted_w = if duration_s > 0.0 {
                 (energy.delivered_j + energy.stored_j).max(0.0) / duration_s
             } else {
                 0.0
@@ -671,7 +682,7 @@ impl Analyzer {
                 v_max: self.max_output_v,
                 v_min,
                 margin: DEFAULT_MARGIN,
-                harvest_w,
+                converted_w,
                 sleep_w: self.sleep_w.unwrap_or(0.0),
                 active_w: self.active_w,
             })

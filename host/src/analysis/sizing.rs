@@ -22,14 +22,14 @@ pub fn capacitance_for(energy_j: f64, v_max: f64, v_min: f64) -> Option<f64> {
 
 /// The largest duty cycle (0 to 1) a harvest sustains; None when even sleep
 /// needs more than the harvest gives.
-pub fn max_duty_cycle(harvest_w: f64, sleep_w: f64, active_w: f64) -> Option<f64> {
-    if harvest_w < sleep_w {
+pub fn max_duty_cycle(converted_w: f64, sleep_w: f64, active_w: f64) -> Option<f64> {
+    if converted_w < sleep_w {
         return None;
     }
     if active_w <= sleep_w {
         return Some(1.0);
     }
-    Some(((harvest_w - sleep_w) / (active_w - sleep_w)).clamp(0.0, 1.0))
+    Some(((converted_w - sleep_w) / (active_w - sleep_w)).clamp(0.0, 1.0))
 }
 
 /// Storage and duty-cycle advice.
@@ -51,8 +51,8 @@ pub struct SizingAdvice {
     pub margin: f64,
     /// Recommended capacitance, F.
     pub capacitance_f: Option<f64>,
-    /// Mean harvested (converted) power, W.
-    pub harvest_w: f64,
+    /// Mean converted power (out of the converter, into load and storage), W.
+    pub converted_w: f64,
     /// Load power asleep, W.
     pub sleep_w: f64,
     /// Load power active, W.
@@ -74,8 +74,8 @@ pub struct Figures {
     pub v_min: f64,
     /// Margin on the capacitance.
     pub margin: f64,
-    /// Mean harvested power, W.
-    pub harvest_w: f64,
+    /// Mean converted power (out of the converter), W.
+    pub converted_w: f64,
     /// Load power asleep, W.
     pub sleep_w: f64,
     /// Load power active, W.
@@ -90,7 +90,7 @@ pub fn advise(f: Figures) -> SizingAdvice {
         v_max,
         v_min,
         margin,
-        harvest_w,
+        converted_w,
         sleep_w,
         active_w,
     } = f;
@@ -105,18 +105,18 @@ pub fn advise(f: Figures) -> SizingAdvice {
         capacitance_exact_f: exact,
         margin,
         capacitance_f: exact.map(|c| c * margin),
-        harvest_w,
+        converted_w,
         sleep_w,
         active_w,
-        max_duty_cycle: max_duty_cycle(harvest_w, sleep_w, active_w),
+        max_duty_cycle: max_duty_cycle(converted_w, sleep_w, active_w),
     }
 }
 
 /// The planner's inputs, checked.
 #[derive(Debug, Clone, PartialEq)]
 pub struct PlanInputs {
-    /// Mean harvested power after the converter, W.
-    pub harvest_w: f64,
+    /// Mean converted power (out of the converter), W.
+    pub converted_w: f64,
     /// Load power asleep, W.
     pub sleep_w: f64,
     /// Load power active, W.
@@ -142,7 +142,7 @@ impl PlanInputs {
             }
             Ok(())
         };
-        nonneg("--harvest-w", self.harvest_w)?;
+        nonneg("--converted-w", self.converted_w)?;
         nonneg("--sleep-w", self.sleep_w)?;
         nonneg("--active-w", self.active_w)?;
         nonneg("--outage-h", self.outage_h)?;
@@ -185,7 +185,7 @@ impl PlanInputs {
             v_max: self.v_max,
             v_min: self.v_min,
             margin: self.margin,
-            harvest_w: self.harvest_w,
+            converted_w: self.converted_w,
             sleep_w: self.sleep_w,
             active_w: self.active_w,
         }))
@@ -219,7 +219,7 @@ mod tests {
     #[test]
     fn planner_errors_name_the_field() {
         let ok = PlanInputs {
-            harvest_w: 1e-3,
+            converted_w: 1e-3,
             sleep_w: 1e-5,
             active_w: 1e-2,
             duty_cycle: 0.01,

@@ -86,10 +86,10 @@ fn write_harvest(o: &mut String, r: &RunReport) -> std::fmt::Result {
     for s in h.slots.iter().rev().take(24).rev() {
         writeln!(
             o,
-            "  at {:>11} slot {:>2}  harvested {:>11}  EWMA {:>11}  WCMA {:>11}",
+            "  at {:>11} slot {:>2}  drawn {:>11}  EWMA {:>11}  WCMA {:>11}",
             duration(s.t_s),
             s.slot,
-            energy(s.harvested_j),
+            energy(s.drawn_j),
             opt(s.ewma_j),
             opt(s.wcma_j)
         )?;
@@ -241,10 +241,10 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
     for d in &r.days {
         writeln!(
             o,
-            "  day {:<3} harvested {:>11}  consumed {:>11}  storage {:>11}  outage {:>10}  {}",
+            "  day {:<3} drawn {:>11}  delivered {:>11}  stored {:>11}  outage {:>10}  {}",
             d.day,
-            energy(d.harvested_j),
-            energy(d.consumed_j),
+            energy(d.drawn_j),
+            energy(d.delivered_j),
             energy(d.stored_j),
             duration(d.outage_s),
             if d.energy_neutral {
@@ -277,7 +277,7 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
         } else {
             writeln!(o, "  no outage: the present storage was enough")?;
         }
-        writeln!(o, "  mean harvest          {}", power(s.harvest_w))?;
+        writeln!(o, "  mean converted        {}", power(s.converted_w))?;
         writeln!(
             o,
             "  load asleep / active  {} / {}",
@@ -288,7 +288,7 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
             o,
             "  largest duty cycle    {}",
             s.max_duty_cycle.map_or(
-                "- (the harvest does not cover even the sleep power)".into(),
+                "- (the converted power does not cover even the sleep power)".into(),
                 |d| format!("{:.2} %", d * 100.0)
             )
         )?;

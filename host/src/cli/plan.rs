@@ -13,9 +13,10 @@ use crate::analysis::text::{duration, energy, power};
 /// Negative numbers are read as values (and refused by the checks), not as flags.
 #[derive(Debug, Args)]
 pub struct Cmd {
-    /// Mean harvested power after the converter, W.
-    #[arg(long, allow_negative_numbers = true)]
-    pub harvest_w: f64,
+    /// Mean power out of the converter (what the harvest gives the node after
+    /// conversion), W.
+    #[arg(long, alias = "harvest-w", allow_negative_numbers = true)]
+    pub converted_w: f64,
     /// Load power asleep, W.
     #[arg(long, allow_negative_numbers = true)]
     pub sleep_w: f64,
@@ -46,7 +47,7 @@ impl Cmd {
     /// Runs the command.
     pub fn run(self) -> Result<()> {
         let inputs = PlanInputs {
-            harvest_w: self.harvest_w,
+            converted_w: self.converted_w,
             sleep_w: self.sleep_w,
             active_w: self.active_w,
             duty_cycle: self.duty_cycle,
@@ -76,8 +77,8 @@ impl Cmd {
             (a.margin - 1.0) * 100.0
         )?;
         match a.max_duty_cycle {
-            Some(d) => say!("largest duty cycle       {:.3} % for a mean harvest of {}", d * 100.0, power(a.harvest_w))?,
-            None => say!("largest duty cycle       none: the harvest ({}) does not cover even the sleep power", power(a.harvest_w))?,
+            Some(d) => say!("largest duty cycle       {:.3} % for a mean converted power of {}", d * 100.0, power(a.converted_w))?,
+            None => say!("largest duty cycle       none: the converted power ({}) does not cover even the sleep power", power(a.converted_w))?,
         }
         if a.max_duty_cycle.is_some_and(|d| d < self.duty_cycle) {
             say!("warning: the planned duty cycle is above what the harvest sustains; the node will run its storage down")?;

@@ -16,7 +16,7 @@ pub struct Cmd {
     /// Log files (one per node for a fleet).
     #[arg(required = true)]
     pub logs: Vec<PathBuf>,
-    /// Print JSON (schema `gleaner.report.v1`, see docs/report-json.md).
+    /// Print JSON (schema `gleaner.report.v2`, see docs/report-json.md).
     #[arg(long)]
     pub json: bool,
     /// Also write an HTML page with plots here (one log only; refused with several).
