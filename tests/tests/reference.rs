@@ -253,7 +253,7 @@ fn irradiance_and_temperature_scaling_matches_calcparams_desoto() {
         (PvCell::outdoor_module(), 1000.0, 25.0),
         (PvCell::outdoor_module(), 400.0, 60.0),
     ] {
-        spec.push(json!({"g": g, "t": t, "alpha_sc": cell.alpha_sc_a_per_k, "a_ref": cell.n_ns_vth_ref,
+        spec.push(json!({"g": g, "t": t, "alpha_sc": cell.short_circuit_tempco_a_per_k, "a_ref": cell.ideality_voltage_ref_v,
             "il_ref": cell.photocurrent_ref_a, "i0_ref": cell.saturation_current_ref_a, "rsh_ref": cell.shunt_ref_ohm, "rs": cell.series_ohm}));
         ours.push(cell.at(g, t));
     }
@@ -342,7 +342,7 @@ fn a_real_day_of_sunlight_gives_the_energy_pvlib_computes() {
         running.push((start, truth.elapsed_s));
     }
     let spec = json!({"hourly": hourly, "celsius": 30.0, "fraction": fraction, "running": running,
-        "cell": {"alpha_sc": cell.alpha_sc_a_per_k, "a_ref": cell.n_ns_vth_ref, "il_ref": cell.photocurrent_ref_a,
+        "cell": {"alpha_sc": cell.short_circuit_tempco_a_per_k, "a_ref": cell.ideality_voltage_ref_v, "il_ref": cell.photocurrent_ref_a,
                  "i0_ref": cell.saturation_current_ref_a, "rsh_ref": cell.shunt_ref_ohm, "rs": cell.series_ohm}});
     let dir = tempfile::tempdir().unwrap();
     let file = dir.path().join("day.json");

@@ -131,8 +131,8 @@ photocurrent_ref_a = {}
 saturation_current_ref_a = 1e-9
 series_ohm = 0.5
 shunt_ref_ohm = 400.0
-n_ns_vth_ref = 0.1
-alpha_sc_a_per_k = 2.5e-5
+ideality_voltage_ref_v = 0.1
+short_circuit_tempco_a_per_k = 2.5e-5
 
 [source.daylight]
 sunrise_hour = 6.0

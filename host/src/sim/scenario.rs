@@ -151,7 +151,10 @@ impl Scenario {
                 )?;
                 within("source.cell.series_ohm", cell.series_ohm, 0.0, 1e6)?;
                 positive("source.cell.shunt_ref_ohm", cell.shunt_ref_ohm)?;
-                positive("source.cell.n_ns_vth_ref", cell.n_ns_vth_ref)?;
+                positive(
+                    "source.cell.ideality_voltage_ref_v",
+                    cell.ideality_voltage_ref_v,
+                )?;
                 within("source.cell_celsius", *cell_celsius, -60.0, 120.0)?;
                 within(
                     "source.daylight.sunrise_hour",

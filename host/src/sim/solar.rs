@@ -133,11 +133,14 @@ pub struct PvCell {
     pub series_ohm: f64,
     /// Shunt resistance at reference irradiance, Ω.
     pub shunt_ref_ohm: f64,
-    /// Modified ideality at reference temperature, V.
-    pub n_ns_vth_ref: f64,
-    /// Temperature coefficient of the short-circuit current, A/K.
+    /// The diode's modified ideality factor at reference temperature, as a
+    /// voltage: `a = n Ns k T / q` (ideality factor n, Ns cells in series,
+    /// thermal voltage kT/q), V. Scales with absolute temperature.
+    pub ideality_voltage_ref_v: f64,
+    /// Temperature coefficient of the short-circuit current, A/K: the
+    /// photocurrent is `Iph = (G / Gref) (Iph,ref + coefficient (T - Tref))`.
     #[serde(default)]
-    pub alpha_sc_a_per_k: f64,
+    pub short_circuit_tempco_a_per_k: f64,
     /// Band gap at reference temperature, eV (1.121 for silicon).
     #[serde(default = "default_band_gap")]
     pub band_gap_ev: f64,
@@ -168,8 +171,9 @@ impl PvCell {
         let t = cell_celsius + 273.15;
         let s = irradiance.max(0.0) / REFERENCE_IRRADIANCE;
         let eg = self.band_gap_ev * (1.0 + self.band_gap_slope_per_k * (t - REFERENCE_KELVIN));
-        let photocurrent_a =
-            s * (self.photocurrent_ref_a + self.alpha_sc_a_per_k * (t - REFERENCE_KELVIN));
+        let photocurrent_a = s
+            * (self.photocurrent_ref_a
+                + self.short_circuit_tempco_a_per_k * (t - REFERENCE_KELVIN));
         let saturation_current_a = self.saturation_current_ref_a
             * (t / REFERENCE_KELVIN).powi(3)
             * (self.band_gap_ev / (BOLTZMANN_EV * REFERENCE_KELVIN) - eg / (BOLTZMANN_EV * t))
@@ -184,7 +188,7 @@ impl PvCell {
             saturation_current_a,
             series_ohm: self.series_ohm,
             shunt_ohm,
-            n_ns_vth: self.n_ns_vth_ref * t / REFERENCE_KELVIN,
+            n_ns_vth: self.ideality_voltage_ref_v * t / REFERENCE_KELVIN,
         }
     }
 }
@@ -198,8 +202,8 @@ impl PvCell {
             saturation_current_ref_a: 1e-9,
             series_ohm: 0.5,
             shunt_ref_ohm: 400.0,
-            n_ns_vth_ref: 0.1,
-            alpha_sc_a_per_k: 2.5e-5,
+            ideality_voltage_ref_v: 0.1,
+            short_circuit_tempco_a_per_k: 2.5e-5,
             band_gap_ev: default_band_gap(),
             band_gap_slope_per_k: default_band_gap_slope(),
         }
@@ -212,8 +216,8 @@ impl PvCell {
             saturation_current_ref_a: 2e-10,
             series_ohm: 0.2,
             shunt_ref_ohm: 50.0,
-            n_ns_vth_ref: 0.13,
-            alpha_sc_a_per_k: 2.5e-4,
+            ideality_voltage_ref_v: 0.13,
+            short_circuit_tempco_a_per_k: 2.5e-4,
             band_gap_ev: default_band_gap(),
             band_gap_slope_per_k: default_band_gap_slope(),
         }
