@@ -16,14 +16,22 @@ pub struct NodeSettings {
     pub report_interval_ms: Option<u32>,
     /// Input voltage at which the converter can cold-start, V.
     pub start_v: Option<f64>,
-    /// Input voltage below which the converter stops, V.
-    pub hold_v: Option<f64>,
-    /// Margin above hold that counts as sagging, V.
-    pub sag_margin_v: Option<f64>,
-    /// Output voltage that counts as delivering, V.
-    pub output_up_v: Option<f64>,
-    /// Output voltage below which a healthy-input converter has stalled, V.
-    pub output_down_v: Option<f64>,
+    /// The converter's stop voltage: below it on the input, the converter
+    /// stops (`hold_v` before), V.
+    #[serde(alias = "hold_v")]
+    pub stop_v: Option<f64>,
+    /// The warning band above the stop voltage: input inside it is Sagging
+    /// (`sag_margin_v` before), V.
+    #[serde(alias = "sag_margin_v")]
+    pub warning_band_v: Option<f64>,
+    /// Output good: at or above it the converter counts as delivering
+    /// (`output_up_v` before), V.
+    #[serde(alias = "output_up_v")]
+    pub output_good_v: Option<f64>,
+    /// Output lost: below it with a healthy input the converter has stalled
+    /// (`output_down_v` before), V.
+    #[serde(alias = "output_down_v")]
+    pub output_lost_v: Option<f64>,
     /// Debounce of every transition, ms.
     pub debounce_ms: Option<u32>,
     /// Longest cold start, s.
@@ -169,17 +177,17 @@ impl NodeSettings {
         if let Some(v) = self.start_v {
             t.start_uv = volts_to_uv("start_v", v)?;
         }
-        if let Some(v) = self.hold_v {
-            t.hold_uv = volts_to_uv("hold_v", v)?;
+        if let Some(v) = self.stop_v {
+            t.hold_uv = volts_to_uv("stop_v", v)?;
         }
-        if let Some(v) = self.sag_margin_v {
-            t.sag_margin_uv = volts_to_uv("sag_margin_v", v)?;
+        if let Some(v) = self.warning_band_v {
+            t.sag_margin_uv = volts_to_uv("warning_band_v", v)?;
         }
-        if let Some(v) = self.output_up_v {
-            t.output_up_uv = volts_to_uv("output_up_v", v)?;
+        if let Some(v) = self.output_good_v {
+            t.output_up_uv = volts_to_uv("output_good_v", v)?;
         }
-        if let Some(v) = self.output_down_v {
-            t.output_down_uv = volts_to_uv("output_down_v", v)?;
+        if let Some(v) = self.output_lost_v {
+            t.output_down_uv = volts_to_uv("output_lost_v", v)?;
         }
         if let Some(v) = self.debounce_ms {
             t.debounce_ms = v;
@@ -273,11 +281,14 @@ mod tests {
     #[test]
     fn overrides_apply_in_wire_units() {
         let s = NodeSettings::from_toml(
-            "hold_v = 0.65\nreport_interval_ms = 5000\nforecast_horizon_s = 90",
+            "stop_v = 0.65\nreport_interval_ms = 5000\nforecast_horizon_s = 90",
         )
         .unwrap();
         let c = s.apply(&default_config()).unwrap();
         assert_eq!(c.thresholds.hold_uv, 650_000);
+        // Settings files written with the earlier key names still read.
+        let old = NodeSettings::from_toml("hold_v = 0.65\noutput_down_v = 1.5").unwrap();
+        assert_eq!((old.stop_v, old.output_lost_v), (Some(0.65), Some(1.5)));
         assert_eq!(c.report_interval_ms, 5_000);
         assert_eq!(c.thresholds.forecast_horizon_ms, 90_000);
         assert_eq!(c.thresholds.start_uv, default_config().thresholds.start_uv);

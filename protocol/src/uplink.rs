@@ -170,21 +170,21 @@ impl CutoffState {
 pub enum TransitionCause {
     /// Input rose to the start threshold.
     InputAboveStart,
-    /// Output reached the "up" threshold.
+    /// Output reached the output-good threshold (`output_up_uv`).
     OutputUp,
-    /// Input came within the sag margin of the hold threshold.
+    /// Input came within the warning band of the stop voltage (`hold_uv`).
     InputNearHold,
     /// The forecast put cutoff within the horizon.
     ForecastUnderHorizon,
-    /// Input fell below the hold threshold.
+    /// Input fell below the converter's stop voltage (`hold_uv`).
     InputBelowHold,
-    /// Output fell below the "down" threshold with healthy input.
+    /// Output fell below the output-lost threshold (`output_down_uv`) with healthy input.
     OutputCollapsed,
     /// Output did not come up within the cold-start timeout.
     ColdStartTimeout,
     /// Conditions returned to normal.
     Recovered,
-    /// The converter stopped drawing input current.
+    /// The converter stopped drawing input current (below `input_idle_na`).
     ConverterIdle,
     /// The converter started drawing input current.
     ConverterStarted,
@@ -195,14 +195,14 @@ impl TransitionCause {
     pub const fn name(self) -> &'static str {
         match self {
             TransitionCause::InputAboveStart => "input-above-start",
-            TransitionCause::OutputUp => "output-up",
-            TransitionCause::InputNearHold => "input-near-hold",
+            TransitionCause::OutputUp => "output-good",
+            TransitionCause::InputNearHold => "input-near-stop",
             TransitionCause::ForecastUnderHorizon => "forecast-under-horizon",
-            TransitionCause::InputBelowHold => "input-below-hold",
+            TransitionCause::InputBelowHold => "input-below-stop",
             TransitionCause::OutputCollapsed => "output-collapsed",
             TransitionCause::ColdStartTimeout => "cold-start-timeout",
             TransitionCause::Recovered => "recovered",
-            TransitionCause::ConverterIdle => "converter-idle",
+            TransitionCause::ConverterIdle => "no-input-current",
             TransitionCause::ConverterStarted => "converter-started",
         }
     }
@@ -454,9 +454,9 @@ impl Refusal {
     /// A one-line explanation for people.
     pub const fn describe(self) -> &'static str {
         match self {
-            Refusal::HoldNotBelowStart => "hold threshold must be below the start threshold",
+            Refusal::HoldNotBelowStart => "the stop voltage must be below the start voltage",
             Refusal::OutputThresholdsInverted => {
-                "output-down threshold must be below the output-up threshold"
+                "the output-lost voltage must be below the output-good voltage"
             }
             Refusal::ChannelScaleOutOfRange(_) => "a channel scale is zero or too large",
             Refusal::AdcBitsOutOfRange => "ADC resolution must be 8 to 24 bits",
@@ -464,7 +464,7 @@ impl Refusal {
             Refusal::DebounceOutOfRange => "debounce time must be at most 60 s",
             Refusal::TimeoutOutOfRange => "timeouts and horizons must be 1 ms to 1 day",
             Refusal::SagMarginOutOfRange => {
-                "sag margin must be at most the hold threshold and at most 1 V"
+                "the warning band must be at most the stop voltage and at most 1 V"
             }
             Refusal::BurstLengthOutOfRange => "burst length must be 1 to 1,000,000 samples",
             Refusal::BurstInProgress => "a burst is already running",

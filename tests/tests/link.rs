@@ -313,7 +313,7 @@ fn device_commands_work_and_a_refusal_shows_the_reason() {
     );
     assert_eq!(
         Refusal::HoldNotBelowStart.to_string(),
-        "hold threshold must be below the start threshold"
+        "the stop voltage must be below the start voltage"
     );
     let mut better = good;
     better.report_interval_ms = 3_000;

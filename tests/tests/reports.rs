@@ -3,7 +3,9 @@
 
 use std::collections::BTreeSet;
 
-use gleaner::analysis::{analyze_file, html, sizing, RunReport, RENAMED_SINCE_V1, REPORT_SCHEMA};
+use gleaner::analysis::{
+    analyze_file, html, sizing, RunReport, CAUSES_RENAMED_SINCE_V1, RENAMED_SINCE_V1, REPORT_SCHEMA,
+};
 use gleaner::export::export_csv;
 use gleaner::sim::engine::simulate_to_log;
 use gleaner::sim::Scenario;
@@ -250,6 +252,13 @@ fn old_fields_unchanged(old: &serde_json::Value, new: &serde_json::Value, path: 
                 (a - b).abs() <= 1e-12 * a.abs().max(b.abs()),
                 "{path}: {a} vs {b}"
             );
+        }
+        (serde_json::Value::String(a), serde_json::Value::String(b)) => {
+            let renamed = CAUSES_RENAMED_SINCE_V1
+                .iter()
+                .find(|(old, _)| old == a)
+                .map_or(a.as_str(), |(_, new)| new);
+            assert_eq!(renamed, b, "{path}");
         }
         _ => assert_eq!(old, new, "{path}"),
     }

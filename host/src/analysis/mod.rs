@@ -33,11 +33,23 @@ pub const REPORT_SCHEMA: &str = "gleaner.report.v2";
 /// so that one word names one quantity: energy *drawn* from the harvester,
 /// *delivered* to the load, *stored*, and power *converted* (out of the
 /// converter into load and storage).
-pub const RENAMED_SINCE_V1: [(&str, &str); 4] = [
+pub const RENAMED_SINCE_V1: [(&str, &str); 6] = [
+    (".boots[].hold_v", "stop_v"),
+    (".boots[].output_down_v", "output_lost_v"),
     (".days[].harvested_j", "drawn_j"),
     (".days[].consumed_j", "delivered_j"),
     (".harvest.slots[].harvested_j", "drawn_j"),
     (".sizing.harvest_w", "converted_w"),
+];
+
+/// Transition causes renamed from schema v1 to v2 (old, new): the converter's
+/// stop voltage was "hold", output good was "up", and a converter that stops
+/// drawing current was "idle" (which is also a state it never leads to).
+pub const CAUSES_RENAMED_SINCE_V1: [(&str, &str); 4] = [
+    ("output-up", "output-good"),
+    ("input-near-hold", "input-near-stop"),
+    ("input-below-hold", "input-below-stop"),
+    ("converter-idle", "no-input-current"),
 ];
 
 /// Width of the efficiency-by-input-voltage bins, V.
@@ -64,9 +76,9 @@ pub struct BootInfo {
     /// Start threshold, V.
     pub start_v: f64,
     /// Hold threshold, V.
-    pub hold_v: f64,
+    pub stop_v: f64,
     /// Output-down threshold (lowest useful storage voltage), V.
-    pub output_down_v: f64,
+    pub output_lost_v: f64,
     /// The load's minimum supply voltage (brown-out), V.
     pub load_min_v: f64,
     /// Report interval, s.
@@ -449,8 +461,8 @@ impl Analyzer {
             protocol: h.protocol.to_string(),
             config_source: format!("{:?}", h.config_source).to_lowercase(),
             start_v: f64::from(t.start_uv) / 1e6,
-            hold_v: f64::from(t.hold_uv) / 1e6,
-            output_down_v: f64::from(t.output_down_uv) / 1e6,
+            stop_v: f64::from(t.hold_uv) / 1e6,
+            output_lost_v: f64::from(t.output_down_uv) / 1e6,
             load_min_v: f64::from(t.load_min_uv) / 1e6,
             report_interval_s: f64::from(h.config.report_interval_ms) / 1e3,
             storage_f: f64::from(h.config.output_storage_uf) / 1e6,

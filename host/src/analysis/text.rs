@@ -144,7 +144,7 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
     for b in &r.boots {
         writeln!(
             o,
-            "  boot {}       node {}{}, id {:08x}, firmware {}, protocol {}, config {} (start {:.3} V, hold {:.3} V, load minimum {:.3} V, storage {} F)",
+            "  boot {}       node {}{}, id {:08x}, firmware {}, protocol {}, config {} (start {:.3} V, stop {:.3} V, load minimum {:.3} V, storage {} F)",
             b.index,
             b.node_id,
             if b.node_name.is_empty() { String::new() } else { format!(" \"{}\"", b.node_name) },
@@ -153,7 +153,7 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
             b.protocol,
             b.config_source,
             b.start_v,
-            b.hold_v,
+            b.stop_v,
             b.load_min_v,
             b.storage_f
         )?;

@@ -62,21 +62,21 @@ pub struct SetConfig {
     /// Report interval, ms.
     #[arg(long)]
     pub report_interval_ms: Option<u32>,
-    /// Start threshold, V.
+    /// Start voltage: open-circuit input at which the converter cold-starts, V.
     #[arg(long)]
     pub start_v: Option<f64>,
-    /// Hold threshold, V.
-    #[arg(long)]
-    pub hold_v: Option<f64>,
-    /// Sag margin above hold, V.
-    #[arg(long)]
-    pub sag_margin_v: Option<f64>,
-    /// Output-up threshold, V.
-    #[arg(long)]
-    pub output_up_v: Option<f64>,
-    /// Output-down threshold, V.
-    #[arg(long)]
-    pub output_down_v: Option<f64>,
+    /// Stop voltage: input below which the converter stops, V.
+    #[arg(long, alias = "hold-v")]
+    pub stop_v: Option<f64>,
+    /// Warning band above the stop voltage: input inside it is Sagging, V.
+    #[arg(long, alias = "sag-margin-v")]
+    pub warning_band_v: Option<f64>,
+    /// Output good: output at or above it counts as delivering, V.
+    #[arg(long, alias = "output-up-v")]
+    pub output_good_v: Option<f64>,
+    /// Output lost: output below it with a healthy input means the converter stalled, V.
+    #[arg(long, alias = "output-down-v")]
+    pub output_lost_v: Option<f64>,
     /// Debounce, ms.
     #[arg(long)]
     pub debounce_ms: Option<u32>,
@@ -101,10 +101,10 @@ impl SetConfig {
         take!(
             report_interval_ms,
             start_v,
-            hold_v,
-            sag_margin_v,
-            output_up_v,
-            output_down_v,
+            stop_v,
+            warning_band_v,
+            output_good_v,
+            output_lost_v,
             debounce_ms,
             output_storage_uf
         );
@@ -304,17 +304,23 @@ pub fn print_hello(h: &Hello) -> std::io::Result<()> {
     say!("configuration from {:?}", h.config_source)?;
     say!("  report interval   {} ms", h.config.report_interval_ms)?;
     say!(
-        "  start / hold      {:.3} V / {:.3} V (sag margin {:.3} V)",
+        "  start / stop      {:.3} V / {:.3} V (warning band {:.3} V)",
         f64::from(t.start_uv) / 1e6,
         f64::from(t.hold_uv) / 1e6,
         f64::from(t.sag_margin_uv) / 1e6
     )?;
     say!(
-        "  output up / down  {:.3} V / {:.3} V",
+        "  output good / lost {:.3} V / {:.3} V",
         f64::from(t.output_up_uv) / 1e6,
         f64::from(t.output_down_uv) / 1e6
     )?;
-    say!("  debounce {} ms, cold-start timeout {} ms, forecast horizon {} ms, input idle below {} nA", t.debounce_ms, t.cold_start_timeout_ms, t.forecast_horizon_ms, t.input_idle_na)?;
+    say!(
+        "  debounce {} ms, cold-start timeout {} ms, forecast horizon {} ms, input idle below {:.1} µA",
+        t.debounce_ms,
+        t.cold_start_timeout_ms,
+        t.forecast_horizon_ms,
+        f64::from(t.input_idle_na) / 1e3
+    )?;
     say!(
         "  output storage    {} µF, load restored after {} ms",
         h.config.output_storage_uf,

@@ -2,7 +2,7 @@
 //! or a small boost converter).
 //!
 //! * It cold-starts when the source's open-circuit voltage reaches `start_v`
-//!   and stops when its loaded input falls below `hold_v`.
+//!   and stops when its loaded input falls below `stop_v`.
 //! * Its input is either resistive (a blocking oscillator draws roughly like a
 //!   resistor) or held at a fraction of the open-circuit voltage (the common
 //!   fractional-Voc MPPT of harvesting converters).
@@ -39,8 +39,9 @@ pub enum InputMode {
 pub struct ConverterParams {
     /// Open-circuit input needed to cold-start, V.
     pub start_v: f64,
-    /// Loaded input below which it stops, V.
-    pub hold_v: f64,
+    /// The stop voltage: loaded input below which it stops (`hold_v` before), V.
+    #[serde(alias = "hold_v")]
+    pub stop_v: f64,
     /// How it loads the source.
     pub input: InputMode,
     /// Best efficiency, 0 to 1.
@@ -168,7 +169,7 @@ impl Converter {
             off = Some(OffReason::Fault);
         } else if self.running {
             (v_in, i_in) = self.operating_point(source);
-            if v_in < self.params.hold_v {
+            if v_in < self.params.stop_v {
                 self.running = false;
                 (v_in, i_in) = (voc, 0.0);
             }
@@ -243,7 +244,7 @@ mod tests {
     fn params() -> ConverterParams {
         ConverterParams {
             start_v: 0.8,
-            hold_v: 0.7,
+            stop_v: 0.7,
             input: InputMode::Resistive { ohms: 40.0 },
             peak_efficiency: 0.8,
             efficiency_floor_v: 0.5,

@@ -66,13 +66,13 @@ pub const CORPUS_SAMPLE_MS: u32 = 1000;
 const NODE: &str = r#"
 report_interval_ms = 10000
 debounce_ms = 1000
-output_up_v = 2.0
-output_down_v = 1.6
+output_good_v = 2.0
+output_lost_v = 1.6
 forecast_horizon_s = 1200
 brownout_horizon_s = 1800
 load_restore_s = 600
 cold_start_timeout_s = 7200
-sag_margin_v = 0.03
+warning_band_v = 0.03
 input_idle_ua = 10.0
 "#;
 
@@ -152,7 +152,7 @@ cloud_transmission = {}
 
 fn converter(rng: &mut Pcg64Mcg, start_v: f64, input: &str, storage_f: f64) -> String {
     format!(
-        "[converter]\nstart_v = {start_v}\nhold_v = 0.7\ninput = {input}\npeak_efficiency = {}\nefficiency_floor_v = 0.45\nefficiency_knee_v = 0.25\nquiescent_w = 2e-6\nregulation_v = 3.3\noutput_capacitance_f = {storage_f}\ninitial_output_v = 3.3\n",
+        "[converter]\nstart_v = {start_v}\nstop_v = 0.7\ninput = {input}\npeak_efficiency = {}\nefficiency_floor_v = 0.45\nefficiency_knee_v = 0.25\nquiescent_w = 2e-6\nregulation_v = 3.3\noutput_capacitance_f = {storage_f}\ninitial_output_v = 3.3\n",
         rng.random_range(0.75..0.88),
     )
 }
@@ -219,7 +219,7 @@ pub fn corpus_entry(seed: u64, index: usize) -> Result<CorpusEntry> {
     };
     let load = sensor_load(&mut rng, kind);
     let text = format!(
-        "name = \"corpus-{}-{index}\"\ndescription = \"Invented: corpus scenario {index} ({}) drawn from seed {seed}, for judging forecasts.\"\nduration_h = {hours}\nstart_hour = {start_hour}\nsample_period_ms = {CORPUS_SAMPLE_MS}\nseed = {scenario_seed}\n\n{body}\n{load}\n{FRONT_END}\n[node]\nstart_v = {start_v}\nhold_v = 0.7\n{NODE}",
+        "name = \"corpus-{}-{index}\"\ndescription = \"Invented: corpus scenario {index} ({}) drawn from seed {seed}, for judging forecasts.\"\nduration_h = {hours}\nstart_hour = {start_hour}\nsample_period_ms = {CORPUS_SAMPLE_MS}\nseed = {scenario_seed}\n\n{body}\n{load}\n{FRONT_END}\n[node]\nstart_v = {start_v}\nstop_v = 0.7\n{NODE}",
         kind.name(),
         kind.name(),
     );

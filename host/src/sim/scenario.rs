@@ -218,11 +218,11 @@ impl Scenario {
         }
         let c = &self.converter;
         positive("converter.start_v", c.start_v)?;
-        positive("converter.hold_v", c.hold_v)?;
-        if c.hold_v >= c.start_v {
+        positive("converter.stop_v", c.stop_v)?;
+        if c.stop_v >= c.start_v {
             bail!(
-                "converter.hold_v ({}) must be below converter.start_v ({})",
-                c.hold_v,
+                "converter.stop_v ({}) must be below converter.start_v ({})",
+                c.stop_v,
                 c.start_v
             );
         }
@@ -343,13 +343,13 @@ mod tests {
 
     #[test]
     fn errors_name_the_bad_field() {
-        let text = BUILTIN[0].1.replacen("hold_v = 0.7", "hold_v = 0.99", 1);
+        let text = BUILTIN[0].1.replacen("stop_v = 0.7", "stop_v = 0.99", 1);
         let err = Scenario::from_toml(&text).unwrap_err();
-        assert!(format!("{err:#}").contains("converter.hold_v"), "{err:#}");
+        assert!(format!("{err:#}").contains("converter.stop_v"), "{err:#}");
         let text = BUILTIN[0].1.replace("start_v = 0.9\n", "start_v = 0.6\n");
         let err = Scenario::from_toml(&text).unwrap_err();
         assert!(
-            format!("{err:#}").contains("[node] settings are refused by the node: hold threshold"),
+            format!("{err:#}").contains("[node] settings are refused by the node: the stop voltage"),
             "{err:#}"
         );
         let text = format!("{}\nbogus = 1\n", BUILTIN[0].1);
