@@ -17,7 +17,7 @@ use crate::log::{LogReader, RecordBody};
 pub const REPORT_COLUMNS: &str = "boot,seq,uptime_ms,host_time_us,interval_ms,sample_count,\
 input_uv_min,input_uv_mean,input_uv_max,input_na_min,input_na_mean,input_na_max,\
 output_uv_min,output_uv_mean,output_uv_max,output_na_min,output_na_mean,output_na_max,\
-drawn_nj,delivered_nj,stored_nj,state,idle_ms,cold_start_ms,harvesting_ms,sagging_ms,cut_off_ms,stalled_ms,\
+drawn_nj,delivered_nj,stored_nj,state,idle_ms,cold_start_ms,harvesting_ms,sagging_ms,cutoff_ms,stalled_ms,\
 input_cutoff_in_ms,brownout_in_ms,load_nw,net_nw,load_powered,load_shed,flags";
 
 /// Column names of the events file.
@@ -101,7 +101,7 @@ pub fn export_csv(log: &Path, prefix: &Path) -> Result<Exported> {
                     d.cold_start_ms,
                     d.harvesting_ms,
                     d.sagging_ms,
-                    d.cut_off_ms,
+                    d.cutoff_ms,
                     d.stalled_ms,
                     opt(r.input_cutoff_in_ms),
                     opt(r.brownout_in_ms),
@@ -200,7 +200,7 @@ const STATE_COLUMNS: [&str; 6] = [
     "cold_start_ms",
     "harvesting_ms",
     "sagging_ms",
-    "cut_off_ms",
+    "cutoff_ms",
     "stalled_ms",
 ];
 

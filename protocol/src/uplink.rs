@@ -153,7 +153,7 @@ impl CutoffState {
             CutoffState::ColdStart => "cold-start",
             CutoffState::Harvesting => "harvesting",
             CutoffState::Sagging => "sagging",
-            CutoffState::CutOff => "cut-off",
+            CutoffState::CutOff => "cutoff",
             CutoffState::Stalled => "stalled",
         }
     }
@@ -275,7 +275,7 @@ pub struct StateDurations {
     /// In `Sagging`.
     pub sagging_ms: u32,
     /// In `CutOff`.
-    pub cut_off_ms: u32,
+    pub cutoff_ms: u32,
     /// In `Stalled`.
     pub stalled_ms: u32,
 }
@@ -288,7 +288,7 @@ impl StateDurations {
             CutoffState::ColdStart => self.cold_start_ms,
             CutoffState::Harvesting => self.harvesting_ms,
             CutoffState::Sagging => self.sagging_ms,
-            CutoffState::CutOff => self.cut_off_ms,
+            CutoffState::CutOff => self.cutoff_ms,
             CutoffState::Stalled => self.stalled_ms,
         }
     }
@@ -300,7 +300,7 @@ impl StateDurations {
             CutoffState::ColdStart => &mut self.cold_start_ms,
             CutoffState::Harvesting => &mut self.harvesting_ms,
             CutoffState::Sagging => &mut self.sagging_ms,
-            CutoffState::CutOff => &mut self.cut_off_ms,
+            CutoffState::CutOff => &mut self.cutoff_ms,
             CutoffState::Stalled => &mut self.stalled_ms,
         }
     }
@@ -531,7 +531,7 @@ impl LoadCause {
     /// A short lowercase name.
     pub const fn name(self) -> &'static str {
         match self {
-            LoadCause::InputCutOff => "input-cut-off",
+            LoadCause::InputCutOff => "input-cutoff",
             LoadCause::LoadTooHeavy => "load-too-heavy",
             LoadCause::ConverterFault => "converter-fault",
             LoadCause::SupplyRestored => "supply-restored",

@@ -414,7 +414,7 @@ fn any_uplink() -> impl Strategy<Value = Uplink> {
                         cold_start_ms: ms[1],
                         harvesting_ms: ms[2],
                         sagging_ms: ms[3],
-                        cut_off_ms: ms[4],
+                        cutoff_ms: ms[4],
                         stalled_ms: ms[5],
                     },
                     input_cutoff_in_ms: f1,

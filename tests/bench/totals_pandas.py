@@ -15,8 +15,8 @@ e = pd.read_csv(prefix + "-events.csv")
 drawn = r["drawn_nj"].sum() / 1e9
 delivered = r["delivered_nj"].sum() / 1e9
 stored = r["stored_nj"].sum() / 1e9
-states = {c[:-3]: r[c].sum() / 1e3 for c in ["idle_ms", "cold_start_ms", "harvesting_ms", "sagging_ms", "cut_off_ms", "stalled_ms"]}
-# Outages: transitions into cut-off or stalled, plus one already under way
+states = {c[:-3]: r[c].sum() / 1e3 for c in ["idle_ms", "cold_start_ms", "harvesting_ms", "sagging_ms", "cutoff_ms", "stalled_ms"]}
+# Outages: transitions into cutoff or stalled, plus one already under way
 # when the log starts (as the report counts them).
-outages = int(e["to"].isin(["cut-off", "stalled"]).sum()) + int(r["state"].iloc[0] in ("cut-off", "stalled"))
+outages = int(e["to"].isin(["cutoff", "stalled"]).sum()) + int(r["state"].iloc[0] in ("cutoff", "stalled"))
 print(json.dumps({"drawn_j": drawn, "delivered_j": delivered, "efficiency": (delivered + stored) / drawn if drawn else None, "states_s": states, "outages": outages}))

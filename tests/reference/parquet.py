@@ -16,10 +16,10 @@ arrow = {
     "rows": t.num_rows,
     "drawn_nj": pc.sum(t["drawn_nj"]).as_py(),
     "delivered_nj": pc.sum(t["delivered_nj"]).as_py(),
-    "cut_off_ms": pc.sum(t["cut_off_ms"]).as_py(),
+    "cutoff_ms": pc.sum(t["cutoff_ms"]).as_py(),
 }
 row = duckdb.connect().execute(
-    f"select count(*), sum(drawn_nj), sum(delivered_nj), sum(cut_off_ms) from read_parquet('{prefix}-reports.parquet')"
+    f"select count(*), sum(drawn_nj), sum(delivered_nj), sum(cutoff_ms) from read_parquet('{prefix}-reports.parquet')"
 ).fetchone()
 events = duckdb.connect().execute(f"select count(*) from read_parquet('{prefix}-events.parquet')").fetchone()[0]
-print(json.dumps({"pyarrow": arrow, "duckdb": {"rows": row[0], "drawn_nj": int(row[1]), "delivered_nj": int(row[2]), "cut_off_ms": int(row[3])}, "events": events}))
+print(json.dumps({"pyarrow": arrow, "duckdb": {"rows": row[0], "drawn_nj": int(row[1]), "delivered_nj": int(row[2]), "cutoff_ms": int(row[3])}, "events": events}))

@@ -383,7 +383,7 @@ fn the_parquet_export_gives_the_report_totals_in_pyarrow_and_duckdb() {
     let prefix = dir.path().join("out");
     gleaner::export::export_parquet(&log, &prefix).unwrap();
     let totals = python("parquet.py", &[prefix.to_str().unwrap()]);
-    let cut_s = report.seconds_in("cut-off").unwrap();
+    let cut_s = report.seconds_in("cutoff").unwrap();
     for reader in ["pyarrow", "duckdb"] {
         let t = &totals[reader];
         assert_eq!(
@@ -397,7 +397,7 @@ fn the_parquet_export_gives_the_report_totals_in_pyarrow_and_duckdb() {
             "{reader}"
         );
         assert!(
-            (t["cut_off_ms"].as_u64().unwrap() as f64 / 1e3 - cut_s).abs() < 1e-6,
+            (t["cutoff_ms"].as_u64().unwrap() as f64 / 1e3 - cut_s).abs() < 1e-6,
             "{reader}"
         );
     }

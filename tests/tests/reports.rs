@@ -4,7 +4,7 @@
 use std::collections::BTreeSet;
 
 use gleaner::analysis::{
-    analyze_file, html, sizing, RunReport, CAUSES_RENAMED_SINCE_V1, RENAMED_SINCE_V1, REPORT_SCHEMA,
+    analyze_file, html, sizing, RunReport, NAMES_RENAMED_SINCE_V1, RENAMED_SINCE_V1, REPORT_SCHEMA,
 };
 use gleaner::export::export_csv;
 use gleaner::sim::engine::simulate_to_log;
@@ -109,7 +109,7 @@ fn csv_export_reproduces_the_report_totals() {
     let header: Vec<&str> = lines.next().unwrap().split(',').collect();
     let col = |name: &str| header.iter().position(|h| *h == name).unwrap();
     let (drawn_col, delivered_col, cut_col) =
-        (col("drawn_nj"), col("delivered_nj"), col("cut_off_ms"));
+        (col("drawn_nj"), col("delivered_nj"), col("cutoff_ms"));
     let (mut drawn, mut delivered, mut cut_ms, mut rows) = (0u64, 0u64, 0u64, 0u64);
     for line in lines {
         let cells: Vec<&str> = line.split(',').collect();
@@ -122,7 +122,7 @@ fn csv_export_reproduces_the_report_totals() {
     assert_eq!(rows, done.reports);
     assert_eq!(drawn as f64 / 1e9, report.energy.drawn_j);
     assert_eq!(delivered as f64 / 1e9, report.energy.delivered_j);
-    let cut_s = report.seconds_in("cut-off").unwrap();
+    let cut_s = report.seconds_in("cutoff").unwrap();
     assert!((cut_ms as f64 / 1e3 - cut_s).abs() < 1e-6);
     let events = std::fs::read_to_string(&done.events_path).unwrap();
     assert_eq!(events.lines().count() as u64 - 1, done.events);
@@ -190,7 +190,7 @@ fn parquet_export_reads_back_with_the_report_totals() {
             .unwrap();
         drawn += col.values().iter().sum::<u64>();
         let cut = batch
-            .column_by_name("cut_off_ms")
+            .column_by_name("cutoff_ms")
             .unwrap()
             .as_any()
             .downcast_ref::<UInt32Array>()
@@ -207,7 +207,7 @@ fn parquet_export_reads_back_with_the_report_totals() {
     }
     assert_eq!(rows as u64, done.reports);
     assert_eq!(drawn as f64 / 1e9, report.energy.drawn_j);
-    let cut_s = report.seconds_in("cut-off").unwrap();
+    let cut_s = report.seconds_in("cutoff").unwrap();
     assert!((cut_ms as f64 / 1e3 - cut_s).abs() < 1e-6);
     assert_eq!(done.events as usize, report.transitions.len());
 }
@@ -254,7 +254,7 @@ fn old_fields_unchanged(old: &serde_json::Value, new: &serde_json::Value, path: 
             );
         }
         (serde_json::Value::String(a), serde_json::Value::String(b)) => {
-            let renamed = CAUSES_RENAMED_SINCE_V1
+            let renamed = NAMES_RENAMED_SINCE_V1
                 .iter()
                 .find(|(old, _)| old == a)
                 .map_or(a.as_str(), |(_, new)| new);

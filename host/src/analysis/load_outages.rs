@@ -15,7 +15,7 @@ pub struct LoadOutage {
     pub end_s: f64,
     /// Length, s.
     pub duration_s: f64,
-    /// Why: `input-cut-off`, `load-too-heavy` or `converter-fault`.
+    /// Why: `input-cutoff`, `load-too-heavy` or `converter-fault`.
     pub cause: String,
     /// When the converter stopped before it (input cut off or fault), s of run time.
     pub converter_stopped_s: Option<f64>,

@@ -42,14 +42,17 @@ pub const RENAMED_SINCE_V1: [(&str, &str); 6] = [
     (".sizing.harvest_w", "converted_w"),
 ];
 
-/// Transition causes renamed from schema v1 to v2 (old, new): the converter's
-/// stop voltage was "hold", output good was "up", and a converter that stops
-/// drawing current was "idle" (which is also a state it never leads to).
-pub const CAUSES_RENAMED_SINCE_V1: [(&str, &str); 4] = [
+/// State and cause names renamed from schema v1 to v2 (old, new): the
+/// converter's stop voltage was "hold", output good was "up", a converter that
+/// stops drawing current was "idle" (also a state it never leads to), and
+/// cutoff is one word, as the trade writes it.
+pub const NAMES_RENAMED_SINCE_V1: [(&str, &str); 6] = [
     ("output-up", "output-good"),
     ("input-near-hold", "input-near-stop"),
     ("input-below-hold", "input-below-stop"),
     ("converter-idle", "no-input-current"),
+    ("cut-off", "cutoff"),
+    ("input-cut-off", "input-cutoff"),
 ];
 
 /// Width of the efficiency-by-input-voltage bins, V.
@@ -541,7 +544,7 @@ impl Analyzer {
             b.drawn_nj += u128::from(r.drawn_nj);
             b.converted_nj += i128::from(r.delivered_nj) + i128::from(r.stored_nj);
         }
-        let outage_s = f64::from(r.state_ms.cut_off_ms + r.state_ms.stalled_ms) / 1e3;
+        let outage_s = f64::from(r.state_ms.cutoff_ms + r.state_ms.stalled_ms) / 1e3;
         let day =
             ((t_s - length_s - self.first_t_s.unwrap_or(0.0)).max(0.0) / 86_400.0).floor() as u32;
         let d = self.days.entry(day).or_default();

@@ -349,7 +349,8 @@ mod tests {
         let text = BUILTIN[0].1.replace("start_v = 0.9\n", "start_v = 0.6\n");
         let err = Scenario::from_toml(&text).unwrap_err();
         assert!(
-            format!("{err:#}").contains("[node] settings are refused by the node: the stop voltage"),
+            format!("{err:#}")
+                .contains("[node] settings are refused by the node: the stop voltage"),
             "{err:#}"
         );
         let text = format!("{}\nbogus = 1\n", BUILTIN[0].1);

@@ -17,7 +17,7 @@ fn state_colour(name: &str) -> Color {
     match name {
         "harvesting" => Color::Green,
         "sagging" => Color::Yellow,
-        "cut-off" => Color::Red,
+        "cutoff" => Color::Red,
         "stalled" => Color::Magenta,
         "cold-start" => Color::Cyan,
         _ => Color::Gray,

@@ -112,7 +112,7 @@ fn main() -> ! {
     let _ = node.write_pending(&mut serial);
 
     let mut done_ticks = 0u32;
-    let mut cut_off_at_us: Option<u64> = None;
+    let mut cutoff_at_us: Option<u64> = None;
     loop {
         while TICKS.load(Ordering::Relaxed) == done_ticks {
             if let Some(byte) = serial.read_byte() {
@@ -131,11 +131,11 @@ fn main() -> ! {
             node.on_received(&[byte]);
         }
         let _ = node.write_pending(&mut serial);
-        if cut_off_at_us.is_none() && node.state() == CutoffState::CutOff {
-            cut_off_at_us = Some(t_us);
+        if cutoff_at_us.is_none() && node.state() == CutoffState::CutOff {
+            cutoff_at_us = Some(t_us);
         }
         let after_cutoff =
-            cut_off_at_us.is_some_and(|at| t_us >= at + RUN_AFTER_CUTOFF_S * 1_000_000);
+            cutoff_at_us.is_some_and(|at| t_us >= at + RUN_AFTER_CUTOFF_S * 1_000_000);
         if after_cutoff || t_us >= RUN_AT_MOST_S * 1_000_000 {
             report_stack(stack.used());
             exit(true);
