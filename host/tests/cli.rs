@@ -46,7 +46,7 @@ fn the_demo_runs_end_to_end_and_says_what_next() {
         "--plain",
         "--speed",
         "2000",
-        "--out",
+        "--dir",
         out_dir.to_str().unwrap(),
     ]);
     assert!(ok, "{out}\n{err}");
@@ -400,5 +400,43 @@ fn every_command_into_a_pipe_closed_early_ends_quietly() {
         let stderr = String::from_utf8_lossy(&out.stderr);
         assert!(out.status.success(), "{args:?}: {:?} {stderr}", out.status);
         assert!(!stderr.contains("panicked"), "{args:?}: {stderr}");
+    }
+}
+
+#[test]
+fn times_take_units_and_the_port_is_given_the_same_way_everywhere() {
+    // A bad unit is a usage error that names the accepted ones.
+    let (ok, _, err) = run(&[
+        "record",
+        "-p",
+        "/dev/null-not-a-port",
+        "--duration",
+        "2 weeks",
+    ]);
+    assert!(!ok);
+    assert!(err.contains("ms, s, min, h or d"), "{err}");
+    // `-p/--port` works for watch and record as for node; the port is then
+    // tried (and this one does not exist).
+    for args in [
+        vec!["watch", "-p", "/dev/gleaner-no-such-port", "--plain"],
+        vec![
+            "record",
+            "--port",
+            "/dev/gleaner-no-such-port",
+            "--duration",
+            "1s",
+        ],
+        vec![
+            "node",
+            "-p",
+            "/dev/gleaner-no-such-port",
+            "--timeout",
+            "500ms",
+            "ping",
+        ],
+    ] {
+        let (ok, _, err) = run(&args);
+        assert!(!ok, "{args:?}");
+        assert!(err.contains("gleaner-no-such-port"), "{args:?}: {err}");
     }
 }

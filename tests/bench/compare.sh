@@ -21,8 +21,8 @@ py=.venv-bench/bin/python
 echo "== 1. analysis speed: a ${days}-day log at one report per second"
 log="$work/run.gleanlog"
 $bin sim synthetic --days "$days" --out "$log" >/dev/null
-$bin export "$log" --out "$work/run" >/dev/null
-$bin export "$log" --parquet --out "$work/run" >/dev/null
+$bin export "$log" --prefix "$work/run" >/dev/null
+$bin export "$log" --parquet --prefix "$work/run" >/dev/null
 reports=$(($(wc -l < "$work/run-reports.csv") - 1))
 measure() { # name, command...: prints "seconds peak_kib"
   local name=$1; shift

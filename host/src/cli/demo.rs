@@ -28,10 +28,10 @@ pub struct Cmd {
     #[arg(long)]
     pub speed: Option<f64>,
     /// Folder for the log and the HTML report.
-    #[arg(long, default_value = "gleaner-runs")]
-    pub out: PathBuf,
-    /// Plain progress lines even on a terminal.
-    #[arg(long)]
+    #[arg(long, alias = "out", default_value = "gleaner-runs")]
+    pub dir: PathBuf,
+    /// One line per report instead of the full screen.
+    #[arg(long, help = super::PLAIN_HELP)]
     pub plain: bool,
 }
 
@@ -53,7 +53,7 @@ impl Cmd {
             .unwrap_or(1);
         let node = VirtualNode::new(scenario, boot_id)?;
         let port = VirtualPort::spawn(node, Some(speed))?;
-        let log_path = super::new_log_path(&self.out, &name);
+        let log_path = super::new_log_path(&self.dir, &name);
         let mut recorder = Recorder::create(
             &log_path,
             &format!("virtual node '{name}' on {}", port.path()),

@@ -14,8 +14,8 @@ pub struct Cmd {
     /// The log.
     pub log: PathBuf,
     /// Prefix of the files written (default: the log's path without extension).
-    #[arg(long)]
-    pub out: Option<PathBuf>,
+    #[arg(long, alias = "out")]
+    pub prefix: Option<PathBuf>,
     /// Write Parquet instead of CSV (schema in docs/parquet-schema.md), for
     /// DuckDB, Spark or pandas when one laptop is not enough.
     #[arg(long)]
@@ -26,7 +26,7 @@ impl Cmd {
     /// Runs the command.
     pub fn run(self) -> Result<()> {
         let prefix = self
-            .out
+            .prefix
             .clone()
             .unwrap_or_else(|| self.log.with_extension(""));
         if self.parquet {

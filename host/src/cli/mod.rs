@@ -66,6 +66,46 @@ pub enum Command {
     Sim(sim::Cmd),
 }
 
+/// Help of `--plain`, the same on every command that has it.
+pub const PLAIN_HELP: &str = "One line per report (no full screen), even on a terminal";
+
+/// A length of time as people type it: a number of seconds (`90`), or a
+/// number with a unit: `ms`, `s`, `min` (or `m`), `h`, `d` (`1500ms`, `2h`,
+/// `1.5d`). Used by every option that takes a time.
+pub fn parse_seconds(text: &str) -> Result<f64, String> {
+    let text = text.trim();
+    let split = text
+        .find(|c: char| c.is_ascii_alphabetic())
+        .unwrap_or(text.len());
+    let (number, unit) = text.split_at(split);
+    let value: f64 = number
+        .trim()
+        .parse()
+        .map_err(|_| format!("'{text}' is not a time (say 90, 90s, 15min, 2h or 1d)"))?;
+    let scale = match unit.trim() {
+        "" | "s" => 1.0,
+        "ms" => 1e-3,
+        "m" | "min" => 60.0,
+        "h" => 3600.0,
+        "d" => 86_400.0,
+        other => {
+            return Err(format!(
+                "unknown time unit '{other}' (use ms, s, min, h or d)"
+            ))
+        }
+    };
+    let seconds = value * scale;
+    if !(seconds.is_finite() && seconds >= 0.0) {
+        return Err(format!("'{text}' must be a time of at least 0"));
+    }
+    Ok(seconds)
+}
+
+/// The port from `-p/--port PORT` or the first argument (one of them).
+pub fn port_given(flag: &Option<String>, first: &Option<String>) -> Option<String> {
+    flag.clone().or_else(|| first.clone())
+}
+
 /// True when `err` comes from writing to a pipe whose reader has gone
 /// (`gleaner report --json LOG | head`): the command ends quietly, as shell
 /// tools do.
@@ -129,4 +169,22 @@ pub fn new_log_path(dir: &std::path::Path, name: &str) -> std::path::PathBuf {
         n += 1;
     }
     path
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn times_read_with_or_without_units() {
+        assert_eq!(parse_seconds("90"), Ok(90.0));
+        assert_eq!(parse_seconds("90s"), Ok(90.0));
+        assert_eq!(parse_seconds("1500ms"), Ok(1.5));
+        assert_eq!(parse_seconds("15min"), Ok(900.0));
+        assert_eq!(parse_seconds("2h"), Ok(7200.0));
+        assert_eq!(parse_seconds("1.5d"), Ok(129_600.0));
+        assert!(parse_seconds("-1s").is_err());
+        assert!(parse_seconds("2 weeks").is_err());
+        assert!(parse_seconds("soon").is_err());
+    }
 }

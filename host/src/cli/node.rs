@@ -24,8 +24,8 @@ pub struct Cmd {
     /// Line rate.
     #[arg(long, default_value_t = DEFAULT_BAUD)]
     pub baud: u32,
-    /// Seconds to wait for the node's answer.
-    #[arg(long, default_value_t = 3.0)]
+    /// How long to wait for the node's answer (seconds, or with a unit: 500ms, 10s).
+    #[arg(long, default_value = "3", value_parser = super::parse_seconds)]
     pub timeout: f64,
     /// What to ask.
     #[command(subcommand)]

@@ -20,8 +20,16 @@ use crate::view::observer::{Display, LiveObserver};
 /// and stops cleanly on Ctrl-C or SIGTERM with everything flushed.
 #[derive(Debug, Args)]
 pub struct Cmd {
-    /// Serial port of the node (see `gleaner ports`).
-    pub port: String,
+    /// Serial port of the node (see `gleaner ports`); or give it with `-p/--port`.
+    #[arg(
+        value_name = "PORT",
+        conflicts_with = "port_flag",
+        required_unless_present = "port_flag"
+    )]
+    pub port: Option<String>,
+    /// Serial port of the node, as every command takes it.
+    #[arg(short = 'p', long = "port", value_name = "PORT")]
+    pub port_flag: Option<String>,
     /// Line rate.
     #[arg(long, default_value_t = DEFAULT_BAUD)]
     pub baud: u32,
@@ -31,11 +39,13 @@ pub struct Cmd {
     /// Folder for the new log when --out is not given.
     #[arg(long, default_value = "gleaner-runs")]
     pub dir: PathBuf,
-    /// Seconds between status lines on stderr (0: none).
-    #[arg(long, default_value_t = 60)]
-    pub status_every: u64,
-    /// Stop after this many seconds (default: until Ctrl-C or SIGTERM).
-    #[arg(long)]
+    /// Time between status lines on stderr (seconds, or with a unit: 30s,
+    /// 5min; 0: none).
+    #[arg(long, default_value = "60", value_parser = super::parse_seconds)]
+    pub status_every: f64,
+    /// Stop after this long (seconds, or with a unit: 90s, 2h, 7d; default:
+    /// until Ctrl-C or SIGTERM).
+    #[arg(long, value_parser = super::parse_seconds)]
     pub duration: Option<f64>,
     /// Ping the node once it is connected (the reply is in the log).
     #[arg(long)]
@@ -48,25 +58,23 @@ pub struct Cmd {
 impl Cmd {
     /// Runs the command.
     pub fn run(self) -> Result<()> {
+        let port = super::port_given(&self.port_flag, &self.port)
+            .context("name the node's port (-p PORT; `gleaner ports` lists them)")?;
         let path = self.out.clone().unwrap_or_else(|| {
-            let name = std::path::Path::new(&self.port)
+            let name = std::path::Path::new(&port)
                 .file_name()
                 .map_or("node".into(), |n| n.to_string_lossy().into_owned());
             super::new_log_path(&self.dir, &name)
         });
-        let mut recorder = Recorder::create(&path, &self.port)?;
-        eprintln!(
-            "recording {} to {} (Ctrl-C stops)",
-            self.port,
-            path.display()
-        );
+        let mut recorder = Recorder::create(&path, &port)?;
+        eprintln!("recording {port} to {} (Ctrl-C stops)", path.display());
         let stop = super::stop_flag()?;
         let started = Instant::now();
-        let status_every = Duration::from_secs(self.status_every);
+        let status_every = Duration::from_secs_f64(self.status_every);
         let mut last_status = Instant::now();
         let limit = self.duration.map(Duration::from_secs_f64);
         let done = move |stats: &LinkStats, _idle: Duration| {
-            if self.status_every > 0 && last_status.elapsed() >= status_every {
+            if self.status_every > 0.0 && last_status.elapsed() >= status_every {
                 last_status = Instant::now();
                 eprintln!(
                     "[{}] frames {} lost {} crc {} framing {} reboots {}{}",
@@ -98,13 +106,13 @@ impl Cmd {
         }
         let mut observer = LiveObserver::new(
             Display::Silent,
-            &self.port,
+            &port,
             Box::new(std::io::sink()),
             Box::new(done),
         );
         let script = CommandScript::new(steps, Duration::from_secs(3));
         let mut scripted = Scripted::new(script, &mut observer);
-        let result = run_port(&mut recorder, &self.port, self.baud, &stop, &mut scripted);
+        let result = run_port(&mut recorder, &port, self.baud, &stop, &mut scripted);
         for (step, outcome) in &scripted.script.results {
             match outcome {
                 Some(Outcome::Refused(reason)) => eprintln!("{step:?}: refused: {reason}"),

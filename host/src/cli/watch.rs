@@ -19,22 +19,25 @@ use crate::view::observer::{Display, LiveObserver};
 /// terminal (q quits), one line per report otherwise.
 #[derive(Debug, Args)]
 pub struct Cmd {
-    /// Serial port of the node (see `gleaner ports`).
-    #[arg(required_unless_present = "replay")]
+    /// Serial port of the node (see `gleaner ports`); or give it with `-p/--port`.
+    #[arg(value_name = "PORT", conflicts_with = "port_flag")]
     pub port: Option<String>,
+    /// Serial port of the node, as every command takes it.
+    #[arg(short = 'p', long = "port", value_name = "PORT")]
+    pub port_flag: Option<String>,
     /// Line rate.
     #[arg(long, default_value_t = DEFAULT_BAUD)]
     pub baud: u32,
     /// Replay a recorded log instead of a port.
-    #[arg(long, conflicts_with = "port")]
+    #[arg(long, conflicts_with_all = ["port", "port_flag"])]
     pub replay: Option<PathBuf>,
     /// Replay speed: this many times faster than the node's own clock ran (a
     /// simulated day recorded in seconds still takes a day / speed; 0: as fast
     /// as possible).
     #[arg(long, default_value_t = 0.0)]
     pub speed: f64,
-    /// One line per report even on a terminal.
-    #[arg(long)]
+    /// One line per report instead of the full screen.
+    #[arg(long, help = super::PLAIN_HELP)]
     pub plain: bool,
     /// Also record to this log file.
     #[arg(long)]
@@ -65,9 +68,10 @@ impl Cmd {
             }
             return result;
         }
-        let Some(port) = self.port.as_deref() else {
-            bail!("name a port, or --replay a log")
+        let Some(port) = super::port_given(&self.port_flag, &self.port) else {
+            bail!("name a port (-p PORT), or --replay a log")
         };
+        let port = port.as_str();
         let mut recorder = match &self.record {
             Some(path) => Recorder::create(path, port)?,
             None => Recorder::new(None),
