@@ -6,7 +6,7 @@
 //! a converter that stopped for lack of input restarts only once the input has
 //! really come back.
 
-use gleaner_protocol::{CutoffState, Event, Thresholds, TransitionCause};
+use gleaner_protocol::{ConverterState, Event, Thresholds, TransitionCause};
 
 /// What the state machine looks at for one sample.
 #[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
@@ -33,12 +33,12 @@ pub struct Observation {
 /// Leaving `Sagging` needs the input a full margin clear of the sagging band
 /// (`hold + 2 * margin`) and the forecast beyond twice the horizon (hysteresis).
 pub fn wanted_transition(
-    state: CutoffState,
+    state: ConverterState,
     time_in_state_ms: u64,
     seen: &Observation,
     t: &Thresholds,
-) -> Option<(CutoffState, TransitionCause)> {
-    use CutoffState::*;
+) -> Option<(ConverterState, TransitionCause)> {
+    use ConverterState::*;
     use TransitionCause::*;
     let input_low = seen.input_uv < t.hold_uv;
     let input_near = seen.input_uv < t.hold_uv.saturating_add(t.sag_margin_uv);
@@ -93,7 +93,7 @@ pub fn hold_time_ms(cause: TransitionCause, t: &Thresholds) -> u32 {
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 struct Pending {
-    to: CutoffState,
+    to: ConverterState,
     cause: TransitionCause,
     since_ms: u64,
     /// What was seen when the condition first held.
@@ -103,7 +103,7 @@ struct Pending {
 /// The debounced state machine.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct CutoffDetector {
-    state: CutoffState,
+    state: ConverterState,
     entered_ms: u64,
     pending: Option<Pending>,
 }
@@ -118,14 +118,14 @@ impl CutoffDetector {
     /// Starts in `Idle` at `now_ms`.
     pub const fn new(now_ms: u64) -> Self {
         CutoffDetector {
-            state: CutoffState::Idle,
+            state: ConverterState::Idle,
             entered_ms: now_ms,
             pending: None,
         }
     }
 
     /// The present state.
-    pub const fn state(&self) -> CutoffState {
+    pub const fn state(&self) -> ConverterState {
         self.state
     }
 
@@ -174,7 +174,7 @@ impl CutoffDetector {
 mod tests {
     use super::*;
     use crate::config::DEFAULT_THRESHOLDS as T;
-    use CutoffState::*;
+    use ConverterState::*;
     use TransitionCause::*;
 
     /// Input classes against the default thresholds (start 0.8 V, hold 0.7 V,
@@ -211,9 +211,9 @@ mod tests {
     fn transition_table() {
         let o = |i, out| obs(i, out);
         type Row = (
-            CutoffState,
+            ConverterState,
             Observation,
-            Option<(CutoffState, TransitionCause)>,
+            Option<(ConverterState, TransitionCause)>,
         );
         let cases: &[Row] = &[
             (Idle, o(DEAD, OUT_DOWN), None),

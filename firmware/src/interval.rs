@@ -1,6 +1,6 @@
 //! Aggregation of samples over one report interval.
 
-use gleaner_protocol::{ChannelStats, CutoffState, ReportFlags, Sample, StateDurations};
+use gleaner_protocol::{ChannelStats, ConverterState, ReportFlags, Sample, StateDurations};
 
 /// Running minimum, maximum and sum of one channel.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -71,7 +71,7 @@ pub struct ChannelSummary {
 
 impl IntervalStats {
     /// Adds one sample, and `dt_us` of time spent in `state` before it.
-    pub fn add(&mut self, sample: &Sample, flags: ReportFlags, state: CutoffState, dt_us: u64) {
+    pub fn add(&mut self, sample: &Sample, flags: ReportFlags, state: ConverterState, dt_us: u64) {
         self.count = self.count.saturating_add(1);
         self.input_uv.add(sample.input_uv);
         self.input_na.add(sample.input_na);
@@ -82,7 +82,7 @@ impl IntervalStats {
     }
 
     /// Adds time in `state` without a sample (a failed conversion).
-    pub fn add_time(&mut self, state: CutoffState, dt_us: u64) {
+    pub fn add_time(&mut self, state: ConverterState, dt_us: u64) {
         // Whole milliseconds go to the state; the rest is carried so that the
         // durations add up to the interval length.
         let total_us = self.state_us_carry.saturating_add(dt_us);
@@ -135,9 +135,9 @@ mod tests {
                 output_na: 0,
             };
             let state = if i == 2 {
-                CutoffState::Sagging
+                ConverterState::Sagging
             } else {
-                CutoffState::Harvesting
+                ConverterState::Harvesting
             };
             s.add(&sample, ReportFlags::default(), state, 333_400);
         }

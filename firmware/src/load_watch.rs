@@ -6,7 +6,7 @@
 //! change is reported once, with the cause read from the converter's state at
 //! that moment.
 
-use gleaner_protocol::{CutoffState, LoadCause, Thresholds};
+use gleaner_protocol::{ConverterState, LoadCause, Thresholds};
 
 /// Whether the load has power.
 #[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
@@ -15,11 +15,11 @@ pub struct LoadWatch {
 }
 
 /// Why the load lost its supply, from the converter's state at the time.
-pub const fn cause_of_brownout(converter: CutoffState) -> LoadCause {
+pub const fn cause_of_brownout(converter: ConverterState) -> LoadCause {
     match converter {
-        CutoffState::Idle | CutoffState::CutOff => LoadCause::InputCutOff,
-        CutoffState::Stalled => LoadCause::ConverterFault,
-        CutoffState::ColdStart | CutoffState::Harvesting | CutoffState::Sagging => {
+        ConverterState::Idle | ConverterState::CutOff => LoadCause::InputCutOff,
+        ConverterState::Stalled => LoadCause::ConverterFault,
+        ConverterState::ColdStart | ConverterState::Harvesting | ConverterState::Sagging => {
             LoadCause::LoadTooHeavy
         }
     }
@@ -40,7 +40,7 @@ impl LoadWatch {
     pub fn update(
         &mut self,
         output_uv: u32,
-        converter: CutoffState,
+        converter: ConverterState,
         t: &Thresholds,
     ) -> Option<(bool, LoadCause)> {
         if self.powered && output_uv < t.load_min_uv {
@@ -65,22 +65,25 @@ mod tests {
         let t = DEFAULT_THRESHOLDS;
         let mut watch = LoadWatch::new();
         assert_eq!(
-            watch.update(t.load_min_uv + 1, CutoffState::Harvesting, &t),
+            watch.update(t.load_min_uv + 1, ConverterState::Harvesting, &t),
             None
         );
         assert_eq!(
-            watch.update(t.load_restart_uv, CutoffState::Harvesting, &t),
+            watch.update(t.load_restart_uv, ConverterState::Harvesting, &t),
             Some((true, LoadCause::SupplyRestored))
         );
         // Between the two: no change either way (hysteresis).
-        assert_eq!(watch.update(t.load_min_uv, CutoffState::CutOff, &t), None);
         assert_eq!(
-            watch.update(t.load_min_uv - 1, CutoffState::CutOff, &t),
+            watch.update(t.load_min_uv, ConverterState::CutOff, &t),
+            None
+        );
+        assert_eq!(
+            watch.update(t.load_min_uv - 1, ConverterState::CutOff, &t),
             Some((false, LoadCause::InputCutOff))
         );
         assert!(!watch.is_powered());
         assert_eq!(
-            watch.update(t.load_restart_uv - 1, CutoffState::Harvesting, &t),
+            watch.update(t.load_restart_uv - 1, ConverterState::Harvesting, &t),
             None
         );
     }
@@ -88,20 +91,23 @@ mod tests {
     #[test]
     fn the_cause_follows_the_converter() {
         assert_eq!(
-            cause_of_brownout(CutoffState::CutOff),
+            cause_of_brownout(ConverterState::CutOff),
             LoadCause::InputCutOff
         );
-        assert_eq!(cause_of_brownout(CutoffState::Idle), LoadCause::InputCutOff);
         assert_eq!(
-            cause_of_brownout(CutoffState::Stalled),
+            cause_of_brownout(ConverterState::Idle),
+            LoadCause::InputCutOff
+        );
+        assert_eq!(
+            cause_of_brownout(ConverterState::Stalled),
             LoadCause::ConverterFault
         );
         assert_eq!(
-            cause_of_brownout(CutoffState::Harvesting),
+            cause_of_brownout(ConverterState::Harvesting),
             LoadCause::LoadTooHeavy
         );
         assert_eq!(
-            cause_of_brownout(CutoffState::Sagging),
+            cause_of_brownout(ConverterState::Sagging),
             LoadCause::LoadTooHeavy
         );
     }

@@ -4,7 +4,7 @@
 use embedded_hal::digital::OutputPin;
 use embedded_storage::Storage;
 use gleaner_protocol::{
-    encode_frame, Command, ConfigSource, CutoffState, Decoder, DecoderStats, Downlink,
+    encode_frame, Command, ConfigSource, ConverterState, Decoder, DecoderStats, Downlink,
     EnergyTotals, FirmwareVersion, Hello, LoadEvent, NodeConfig, Outcome, Refusal, Reply, Report,
     Sample, SampleBlock, SlotHarvest, Uplink, UplinkBody, MAX_BURST_SAMPLES,
     MAX_DOWNLINK_FRAME_LEN, MAX_UPLINK_FRAME_LEN, PROTOCOL_VERSION, SAMPLES_PER_BLOCK,
@@ -236,7 +236,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             input_cutoff_in_ms: self.input_cutoff_in_ms,
         };
         if let Some(event) = self.detector.update(now_ms, &seen, &self.config.thresholds) {
-            if event.to == CutoffState::ColdStart {
+            if event.to == ConverterState::ColdStart {
                 self.cutoff_forecast.clear();
                 self.input_cutoff_in_ms = None;
             }
@@ -309,7 +309,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
     }
 
     /// The present cutoff state.
-    pub fn state(&self) -> CutoffState {
+    pub fn state(&self) -> ConverterState {
         self.detector.state()
     }
 
@@ -535,7 +535,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
         let t = &self.config.thresholds;
         let converting = matches!(
             self.detector.state(),
-            CutoffState::Harvesting | CutoffState::Sagging
+            ConverterState::Harvesting | ConverterState::Sagging
         );
         self.input_cutoff_in_ms = if converting {
             let input_nw = drawn_nj

@@ -109,7 +109,7 @@ fn reports_come_every_interval_with_consistent_totals() {
         assert_eq!(r.interval_ms, 1_000);
         // The first interval also holds the sample at t = 0 that opens it.
         assert_eq!(r.sample_count, if i == 0 { 101 } else { 100 });
-        let total: u32 = CutoffState::ALL.iter().map(|s| r.state_ms.get(*s)).sum();
+        let total: u32 = ConverterState::ALL.iter().map(|s| r.state_ms.get(*s)).sum();
         assert_eq!(total, 1_000, "time in states adds up to the interval");
     }
 }

@@ -263,7 +263,7 @@ impl ReportColumns {
         self.delivered_nj.push(r.delivered_nj);
         self.stored_nj.push(r.stored_nj);
         self.state.push(r.state.name());
-        for (i, s) in gleaner_protocol::CutoffState::ALL.iter().enumerate() {
+        for (i, s) in gleaner_protocol::ConverterState::ALL.iter().enumerate() {
             self.state_ms[i].push(r.state_ms.get(*s));
         }
         self.input_cutoff_in_ms.push(r.input_cutoff_in_ms);

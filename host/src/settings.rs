@@ -36,10 +36,12 @@ pub struct NodeSettings {
     pub debounce_ms: Option<u32>,
     /// Longest cold start, s.
     pub cold_start_timeout_s: Option<f64>,
-    /// Sag when cutoff is forecast within this time, s.
+    /// Sagging when cutoff is forecast within this time, s.
     pub forecast_horizon_s: Option<f64>,
-    /// Input current below which the converter counts as not drawing, µA.
-    pub input_idle_ua: Option<f64>,
+    /// Input current floor: below it the converter counts as drawing no input
+    /// current (cause `no-input-current`; `input_idle_ua` before), µA.
+    #[serde(alias = "input_idle_ua")]
+    pub input_floor_ua: Option<f64>,
     /// Output storage capacitance, µF (0: none).
     pub output_storage_uf: Option<u32>,
     /// Time with brown-out out of sight before shed load is restored, s.
@@ -198,9 +200,9 @@ impl NodeSettings {
         if let Some(v) = self.forecast_horizon_s {
             t.forecast_horizon_ms = seconds_to_ms("forecast_horizon_s", v)?;
         }
-        if let Some(v) = self.input_idle_ua {
+        if let Some(v) = self.input_floor_ua {
             if !(0.0..=4.0e6).contains(&v) {
-                bail!("input_idle_ua = {v} µA is outside 0 to 4,000,000 µA");
+                bail!("input_floor_ua = {v} µA is outside 0 to 4,000,000 µA");
             }
             t.input_idle_na = (v * 1e3).round() as u32;
         }

@@ -86,7 +86,7 @@ pub use frame::{
     MAX_DOWNLINK_FRAME_LEN, MAX_UPLINK_FRAME_LEN, MAX_UPLINK_PAYLOAD_LEN,
 };
 pub use uplink::{
-    ChannelStats, ConfigSource, CutoffState, EnergyTotals, Event, Hello, LoadCause, LoadEvent,
+    ChannelStats, ConfigSource, ConverterState, EnergyTotals, Event, Hello, LoadCause, LoadEvent,
     Outcome, Refusal, Reply, Report, ReportFlags, Sample, SampleBlock, SlotHarvest, StateDurations,
     TransitionCause, Uplink, UplinkBody, SAMPLES_PER_BLOCK,
 };

@@ -117,10 +117,10 @@ pub struct Hello {
     pub totals: EnergyTotals,
 }
 
-/// The cutoff state machine's states.
+/// What the converter is doing: the states of the cutoff state machine.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize, MaxSize)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub enum CutoffState {
+pub enum ConverterState {
     /// No usable input; the converter has not started.
     Idle,
     /// Input above the start threshold; output not up yet.
@@ -135,32 +135,32 @@ pub enum CutoffState {
     Stalled,
 }
 
-impl CutoffState {
+impl ConverterState {
     /// All states in wire order.
-    pub const ALL: [CutoffState; 6] = [
-        CutoffState::Idle,
-        CutoffState::ColdStart,
-        CutoffState::Harvesting,
-        CutoffState::Sagging,
-        CutoffState::CutOff,
-        CutoffState::Stalled,
+    pub const ALL: [ConverterState; 6] = [
+        ConverterState::Idle,
+        ConverterState::ColdStart,
+        ConverterState::Harvesting,
+        ConverterState::Sagging,
+        ConverterState::CutOff,
+        ConverterState::Stalled,
     ];
 
     /// A short lowercase name.
     pub const fn name(self) -> &'static str {
         match self {
-            CutoffState::Idle => "idle",
-            CutoffState::ColdStart => "cold-start",
-            CutoffState::Harvesting => "harvesting",
-            CutoffState::Sagging => "sagging",
-            CutoffState::CutOff => "cutoff",
-            CutoffState::Stalled => "stalled",
+            ConverterState::Idle => "idle",
+            ConverterState::ColdStart => "cold-start",
+            ConverterState::Harvesting => "harvesting",
+            ConverterState::Sagging => "sagging",
+            ConverterState::CutOff => "cutoff",
+            ConverterState::Stalled => "stalled",
         }
     }
 
     /// True in the states where the load is not being supplied by the converter.
     pub const fn is_outage(self) -> bool {
-        matches!(self, CutoffState::CutOff | CutoffState::Stalled)
+        matches!(self, ConverterState::CutOff | ConverterState::Stalled)
     }
 }
 
@@ -213,9 +213,9 @@ impl TransitionCause {
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct Event {
     /// State left.
-    pub from: CutoffState,
+    pub from: ConverterState,
     /// State entered.
-    pub to: CutoffState,
+    pub to: ConverterState,
     /// Why.
     pub cause: TransitionCause,
     /// Input voltage when the condition was first seen (what triggered it).
@@ -282,26 +282,26 @@ pub struct StateDurations {
 
 impl StateDurations {
     /// Time in one state.
-    pub const fn get(&self, state: CutoffState) -> u32 {
+    pub const fn get(&self, state: ConverterState) -> u32 {
         match state {
-            CutoffState::Idle => self.idle_ms,
-            CutoffState::ColdStart => self.cold_start_ms,
-            CutoffState::Harvesting => self.harvesting_ms,
-            CutoffState::Sagging => self.sagging_ms,
-            CutoffState::CutOff => self.cutoff_ms,
-            CutoffState::Stalled => self.stalled_ms,
+            ConverterState::Idle => self.idle_ms,
+            ConverterState::ColdStart => self.cold_start_ms,
+            ConverterState::Harvesting => self.harvesting_ms,
+            ConverterState::Sagging => self.sagging_ms,
+            ConverterState::CutOff => self.cutoff_ms,
+            ConverterState::Stalled => self.stalled_ms,
         }
     }
 
     /// Mutable time in one state.
-    pub fn get_mut(&mut self, state: CutoffState) -> &mut u32 {
+    pub fn get_mut(&mut self, state: ConverterState) -> &mut u32 {
         match state {
-            CutoffState::Idle => &mut self.idle_ms,
-            CutoffState::ColdStart => &mut self.cold_start_ms,
-            CutoffState::Harvesting => &mut self.harvesting_ms,
-            CutoffState::Sagging => &mut self.sagging_ms,
-            CutoffState::CutOff => &mut self.cutoff_ms,
-            CutoffState::Stalled => &mut self.stalled_ms,
+            ConverterState::Idle => &mut self.idle_ms,
+            ConverterState::ColdStart => &mut self.cold_start_ms,
+            ConverterState::Harvesting => &mut self.harvesting_ms,
+            ConverterState::Sagging => &mut self.sagging_ms,
+            ConverterState::CutOff => &mut self.cutoff_ms,
+            ConverterState::Stalled => &mut self.stalled_ms,
         }
     }
 }
@@ -353,7 +353,7 @@ pub struct Report {
     /// Net energy into output storage during the interval (0 without storage).
     pub stored_nj: i64,
     /// State at the end of the interval.
-    pub state: CutoffState,
+    pub state: ConverterState,
     /// Time in each state during the interval.
     pub state_ms: StateDurations,
     /// Forecast time until the input falls to the hold threshold (the
@@ -552,7 +552,7 @@ pub struct LoadEvent {
     /// Input voltage at the same moment.
     pub input_uv: u32,
     /// The converter's state at the same moment.
-    pub converter: CutoffState,
+    pub converter: ConverterState,
     /// How long the converter had been in that state.
     pub converter_state_ms: u32,
     /// Net power (converter output less load) averaged as in [`Report::net_nw`].

@@ -13,7 +13,7 @@ use serde::{Deserialize, Serialize};
 use crate::config::{Calibration, NodeName};
 use crate::frame::{open_frame, parse_body, Message};
 use crate::uplink::{
-    ChannelStats, ConfigSource, CutoffState, EnergyTotals, Reply, ReportFlags, SampleBlock,
+    ChannelStats, ConfigSource, ConverterState, EnergyTotals, Reply, ReportFlags, SampleBlock,
     StateDurations, TransitionCause,
 };
 use crate::version::{FirmwareVersion, ProtocolVersion};
@@ -62,8 +62,8 @@ pub struct Hello {
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
 #[allow(missing_docs)]
 pub struct Event {
-    pub from: CutoffState,
-    pub to: CutoffState,
+    pub from: ConverterState,
+    pub to: ConverterState,
     pub cause: TransitionCause,
     pub input_uv: u32,
     pub output_uv: u32,
@@ -82,7 +82,7 @@ pub struct Report {
     pub drawn_nj: u64,
     pub delivered_nj: u64,
     pub stored_nj: i64,
-    pub state: CutoffState,
+    pub state: ConverterState,
     pub state_ms: StateDurations,
     pub input_cutoff_in_ms: Option<u32>,
     pub storage_runout_in_ms: Option<u32>,

@@ -85,7 +85,7 @@ pub fn example_report() -> Uplink {
             drawn_nj: 1_200_000,
             delivered_nj: 825_000,
             stored_nj: 0,
-            state: CutoffState::Harvesting,
+            state: ConverterState::Harvesting,
             state_ms: StateDurations {
                 harvesting_ms: 1_000,
                 ..StateDurations::default()
@@ -106,8 +106,8 @@ pub fn example_event() -> Uplink {
         seq: 4_322,
         uptime_ms: 3_600_250,
         body: UplinkBody::Event(Event {
-            from: CutoffState::Harvesting,
-            to: CutoffState::CutOff,
+            from: ConverterState::Harvesting,
+            to: ConverterState::CutOff,
             cause: TransitionCause::InputBelowHold,
             trigger_input_uv: 699_000,
             trigger_output_uv: 3_200_000,
@@ -143,7 +143,7 @@ pub fn example_load_event() -> Uplink {
             cause: LoadCause::InputCutOff,
             output_uv: 1_799_000,
             input_uv: 310_000,
-            converter: CutoffState::CutOff,
+            converter: ConverterState::CutOff,
             converter_state_ms: 1_860_000,
             net_nw: -97_000,
         }),

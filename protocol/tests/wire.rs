@@ -364,8 +364,8 @@ fn any_stats() -> impl Strategy<Value = ChannelStats> {
     })
 }
 
-fn any_state() -> impl Strategy<Value = CutoffState> {
-    (0usize..6).prop_map(|i| CutoffState::ALL[i])
+fn any_state() -> impl Strategy<Value = ConverterState> {
+    (0usize..6).prop_map(|i| ConverterState::ALL[i])
 }
 
 fn any_uplink() -> impl Strategy<Value = Uplink> {

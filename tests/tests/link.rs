@@ -39,7 +39,7 @@ fn hello(boot_id: u32, uptime_ms: u64) -> Uplink {
     }
 }
 
-fn report(seq: u16, uptime_ms: u64, input_uv: u32, state: CutoffState) -> Uplink {
+fn report(seq: u16, uptime_ms: u64, input_uv: u32, state: ConverterState) -> Uplink {
     Uplink {
         seq,
         uptime_ms,
@@ -81,7 +81,7 @@ fn plain_watch_shows_the_values_sent() {
     let (mut master, _slave, path) = scripted();
     let stream: Vec<u8> = [
         hello(1, 5),
-        report(1, 1_000, 1_000_000, CutoffState::Harvesting),
+        report(1, 1_000, 1_000_000, ConverterState::Harvesting),
     ]
     .iter()
     .flat_map(frame)
@@ -125,7 +125,7 @@ fn record_then_read_back_gives_every_frame_sent() {
                 i,
                 u64::from(i) * 1_000,
                 900_000 + u32::from(i),
-                CutoffState::Harvesting,
+                ConverterState::Harvesting,
             ))
         })
         .collect();
@@ -164,15 +164,15 @@ fn a_reboot_is_detected_and_logged() {
     let mut stream = Vec::new();
     for m in [
         hello(7, 3),
-        report(1, 1_000, 1_000_000, CutoffState::Harvesting),
-        report(2, 2_000, 1_000_000, CutoffState::Harvesting),
+        report(1, 1_000, 1_000_000, ConverterState::Harvesting),
+        report(2, 2_000, 1_000_000, ConverterState::Harvesting),
     ] {
         stream.extend(frame(&m));
     }
     // Second boot: new boot id, uptime from zero.
     for m in [
         hello(8, 4),
-        report(1, 1_000, 1_000_000, CutoffState::Harvesting),
+        report(1, 1_000, 1_000_000, ConverterState::Harvesting),
     ] {
         stream.extend(frame(&m));
     }
@@ -230,7 +230,7 @@ fn ten_unplug_replug_cycles_reconnect_each_time_and_mark_every_gap() {
                     i,
                     u64::from(i) * 1_000,
                     1_000_000,
-                    CutoffState::Harvesting,
+                    ConverterState::Harvesting,
                 ))
             })
             .collect();
@@ -252,7 +252,7 @@ fn ten_unplug_replug_cycles_reconnect_each_time_and_mark_every_gap() {
             last,
             u64::from(last) * 1_000,
             1_000_000,
-            CutoffState::Harvesting,
+            ConverterState::Harvesting,
         )))
         .unwrap();
     expected.push(last);
@@ -366,7 +366,7 @@ fn a_wrong_baud_rate_shows_as_errors_and_is_named() {
             i,
             u64::from(i) * 1_000,
             1_000_000,
-            CutoffState::Harvesting,
+            ConverterState::Harvesting,
         ));
         for b in f.iter_mut().filter(|b| **b != 0) {
             *b ^= 0x55;
@@ -437,7 +437,7 @@ fn the_recorder_asks_a_running_node_for_its_hello() {
             50,
             3_600_000,
             1_000_000,
-            CutoffState::Harvesting,
+            ConverterState::Harvesting,
         )))
         .unwrap();
     let node = std::thread::spawn(move || {
@@ -462,7 +462,7 @@ fn the_recorder_asks_a_running_node_for_its_hello() {
                 52,
                 3_601_000,
                 1_000_000,
-                CutoffState::Harvesting,
+                ConverterState::Harvesting,
             )))
             .unwrap();
         (master, request)
@@ -494,7 +494,7 @@ fn a_log_without_a_hello_says_so() {
             50,
             3_600_000,
             1_000_000,
-            CutoffState::Harvesting,
+            ConverterState::Harvesting,
         )))
         .unwrap();
     let dir = tempfile::tempdir().unwrap();

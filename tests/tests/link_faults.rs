@@ -33,8 +33,8 @@ fn message(i: u32) -> Uplink {
             outcome: Outcome::Pong,
         }),
         1 => UplinkBody::Event(Event {
-            from: CutoffState::Harvesting,
-            to: CutoffState::Sagging,
+            from: ConverterState::Harvesting,
+            to: ConverterState::Sagging,
             cause: TransitionCause::InputNearHold,
             trigger_input_uv: 0,
             trigger_output_uv: 0,
@@ -51,7 +51,7 @@ fn message(i: u32) -> Uplink {
             drawn_nj: u64::from(i),
             delivered_nj: 0,
             stored_nj: 0,
-            state: CutoffState::Harvesting,
+            state: ConverterState::Harvesting,
             state_ms: StateDurations {
                 harvesting_ms: 100,
                 ..Default::default()

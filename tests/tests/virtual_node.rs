@@ -4,7 +4,7 @@
 
 use gleaner::analysis::OutageCause;
 use gleaner::sim::converter::OffReason;
-use gleaner_protocol::{CutoffState, UplinkBody};
+use gleaner_protocol::{ConverterState, UplinkBody};
 use gleaner_tests::{record_virtual_run, rel, scenario};
 
 /// Checks one scenario against its ground truth.
@@ -48,7 +48,7 @@ fn judge(name: &str, hours: Option<f64>) -> usize {
     // Every true stop for lack of input, and every restart, seen within one
     // report interval (plus the configured debounce).
     let tolerance = interval_s + debounce_s + 0.5;
-    let node_changes: Vec<(f64, CutoffState, CutoffState)> = messages
+    let node_changes: Vec<(f64, ConverterState, ConverterState)> = messages
         .iter()
         .filter_map(|t| match &t.message.body {
             UplinkBody::Event(e) => Some((t.message.uptime_ms as f64 / 1e3, e.from, e.to)),
@@ -61,7 +61,7 @@ fn judge(name: &str, hours: Option<f64>) -> usize {
         let (before, change) = (&pair[0], &pair[1]);
         if before.converting && change.reason == Some(OffReason::Starved) {
             let seen = node_changes.iter().any(|&(t, _, to)| {
-                matches!(to, CutoffState::CutOff | CutoffState::Idle)
+                matches!(to, ConverterState::CutOff | ConverterState::Idle)
                     && (t - change.t_s).abs() <= tolerance
             });
             assert!(seen, "{name}: converter stopped at {:.1} s, no cutoff reported near it: {node_changes:?}", change.t_s);
@@ -70,7 +70,7 @@ fn judge(name: &str, hours: Option<f64>) -> usize {
         }
         if !before.converting && change.converting && before.reason == Some(OffReason::Starved) {
             let seen = node_changes.iter().any(|&(t, from, _)| {
-                matches!(from, CutoffState::CutOff | CutoffState::Idle)
+                matches!(from, ConverterState::CutOff | ConverterState::Idle)
                     && t >= last_stop
                     && t <= change.t_s + tolerance
             });

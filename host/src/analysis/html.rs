@@ -210,7 +210,10 @@ pub fn render(r: &RunReport) -> Result<String, Box<dyn std::error::Error>> {
         r.link.lost_frames
     );
     page.push_str("<p class=\"legend\">");
-    for (state, colour) in gleaner_protocol::CutoffState::ALL.iter().zip(STATE_COLOURS) {
+    for (state, colour) in gleaner_protocol::ConverterState::ALL
+        .iter()
+        .zip(STATE_COLOURS)
+    {
         let _ = write!(
             page,
             "<span style=\"background:rgb({},{},{})\">{}</span>",

@@ -116,7 +116,7 @@ impl LoadOutages {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use gleaner_protocol::CutoffState;
+    use gleaner_protocol::ConverterState;
 
     fn event(powered: bool, cause: LoadCause, converter_state_ms: u32) -> LoadEvent {
         LoadEvent {
@@ -124,7 +124,7 @@ mod tests {
             cause,
             output_uv: 1_799_000,
             input_uv: 300_000,
-            converter: CutoffState::CutOff,
+            converter: ConverterState::CutOff,
             converter_state_ms,
             net_nw: -97_000,
         }

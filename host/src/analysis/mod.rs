@@ -16,7 +16,7 @@ pub mod text;
 use std::collections::BTreeMap;
 
 use gleaner_firmware::meter::efficiency_ppm;
-use gleaner_protocol::{CutoffState, Event, Hello, Report, UplinkBody};
+use gleaner_protocol::{ConverterState, Event, Hello, Report, UplinkBody};
 use serde::Serialize;
 
 use crate::link::{LinkStats, LinkTracker, Tracked};
@@ -302,7 +302,7 @@ pub struct Analyzer {
     stored_nj: i128,
     bins: BTreeMap<i64, Bin>,
     days: BTreeMap<u32, Day>,
-    state: Option<CutoffState>,
+    state: Option<ConverterState>,
     open_outage: Option<Outage>,
     outages: Vec<Outage>,
     load_outages: LoadOutages,
@@ -327,8 +327,8 @@ impl Default for Analyzer {
     }
 }
 
-fn state_index(state: CutoffState) -> usize {
-    CutoffState::ALL
+fn state_index(state: ConverterState) -> usize {
+    ConverterState::ALL
         .iter()
         .position(|s| *s == state)
         .unwrap_or(0)
@@ -477,7 +477,7 @@ impl Analyzer {
         self.config = Some(h.clone());
     }
 
-    fn set_state(&mut self, t_s: f64, from: CutoffState, to: CutoffState, cause: &str) {
+    fn set_state(&mut self, t_s: f64, from: ConverterState, to: ConverterState, cause: &str) {
         if self.transitions.len() < MAX_TRANSITIONS {
             self.transitions.push(Transition {
                 t_s,
@@ -493,7 +493,7 @@ impl Analyzer {
                 start_s: t_s,
                 end_s: t_s,
                 duration_s: 0.0,
-                cause: if to == CutoffState::Stalled {
+                cause: if to == ConverterState::Stalled {
                     OutageCause::ConverterFault
                 } else {
                     OutageCause::StarvedOfInput
@@ -526,7 +526,7 @@ impl Analyzer {
         let length_s = f64::from(r.interval_ms) / 1e3;
         self.first_t_s.get_or_insert(t_s - length_s);
         self.covered_s += length_s;
-        for state in CutoffState::ALL {
+        for state in ConverterState::ALL {
             self.state_s[state_index(state)] += f64::from(r.state_ms.get(state)) / 1e3;
         }
         self.drawn_nj += u128::from(r.drawn_nj);
@@ -583,7 +583,7 @@ impl Analyzer {
         self.last_output_v = output_v;
 
         let mut state_s = [0.0; 6];
-        for state in CutoffState::ALL {
+        for state in ConverterState::ALL {
             state_s[state_index(state)] = f64::from(r.state_ms.get(state)) / 1e3;
         }
         self.series.add(Sample {
@@ -618,7 +618,7 @@ impl Analyzer {
         let first = self.first_t_s.unwrap_or(end);
         let duration_s = (end - first).max(0.0);
         let covered: f64 = self.state_s.iter().sum::<f64>().max(self.covered_s);
-        let states = CutoffState::ALL
+        let states = ConverterState::ALL
             .iter()
             .map(|s| {
                 let seconds = self.state_s[state_index(*s)];

@@ -175,7 +175,7 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
         "  delivered to load      {}",
         energy(r.energy.delivered_j)
     )?;
-    writeln!(o, "  change in storage      {}", energy(r.energy.stored_j))?;
+    writeln!(o, "  stored (net)           {}", energy(r.energy.stored_j))?;
     writeln!(
         o,
         "  efficiency             {}   (energy ratio: (delivered + stored) / drawn)",
@@ -237,7 +237,10 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
         )?;
     }
     writeln!(o)?;
-    writeln!(o, "DAILY BUDGET (24 h blocks from the first report)")?;
+    writeln!(
+        o,
+        "DAILY BUDGET (24 h blocks from the first interval report)"
+    )?;
     for d in &r.days {
         writeln!(
             o,
@@ -265,14 +268,14 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
             match s.capacitance_f {
                 Some(c) => writeln!(
                     o,
-                    "  storage needed        {:.3} F between {:.2} V and {:.2} V (C = 2E / (Vmax² - Vmin²) = {:.3} F, times a {:.0} % margin)",
+                    "  capacitance needed    {:.3} F between {:.2} V and {:.2} V (C = 2E / (Vmax² - Vmin²) = {:.3} F, times a {:.0} % margin)",
                     c,
                     s.v_max,
                     s.v_min,
                     s.capacitance_exact_f.unwrap_or(0.0),
                     (s.margin - 1.0) * 100.0
                 )?,
-                None => writeln!(o, "  storage needed        - (the highest storage voltage seen is not above the lowest usable one)")?,
+                None => writeln!(o, "  capacitance needed    - (the highest storage voltage seen is not above the lowest usable one)")?,
             }
         } else {
             writeln!(o, "  no outage: the present storage was enough")?;

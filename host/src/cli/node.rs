@@ -315,7 +315,7 @@ pub fn print_hello(h: &Hello) -> std::io::Result<()> {
         f64::from(t.output_down_uv) / 1e6
     )?;
     say!(
-        "  debounce {} ms, cold-start timeout {} ms, forecast horizon {} ms, input idle below {:.1} µA",
+        "  debounce {} ms, cold-start timeout {} ms, forecast horizon {} ms, input floor {:.1} µA",
         t.debounce_ms,
         t.cold_start_timeout_ms,
         t.forecast_horizon_ms,

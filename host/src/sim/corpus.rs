@@ -73,7 +73,7 @@ brownout_horizon_s = 1800
 load_restore_s = 600
 cold_start_timeout_s = 7200
 warning_band_v = 0.03
-input_idle_ua = 10.0
+input_floor_ua = 10.0
 "#;
 
 const FRONT_END: &str = r#"

@@ -7,7 +7,7 @@
 //! the node's forecasts, and the protocol 1 forecasts ("today's") are
 //! replayed from the same reports for a side-by-side comparison.
 
-use gleaner_protocol::{CutoffState, Report, Uplink, UplinkBody};
+use gleaner_protocol::{ConverterState, Report, Uplink, UplinkBody};
 
 use gleaner_firmware::forecast::storage_runout_ms;
 
@@ -64,8 +64,11 @@ impl OldForecasts {
         hold_v: f64,
         down_uv: u32,
     ) -> (Option<f64>, Option<f64>) {
-        let converting = matches!(r.state, CutoffState::Harvesting | CutoffState::Sagging);
-        if r.state == CutoffState::ColdStart {
+        let converting = matches!(
+            r.state,
+            ConverterState::Harvesting | ConverterState::Sagging
+        );
+        if r.state == ConverterState::ColdStart {
             self.trend.clear();
         }
         let cutoff = if converting {
@@ -161,11 +164,11 @@ pub fn run_corpus_scenario(
                         old_brownout_s,
                     });
                 }
-                UplinkBody::Event(e) if e.to == CutoffState::Sagging => {
+                UplinkBody::Event(e) if e.to == ConverterState::Sagging => {
                     run.sagging.push((t_s, Some(true)));
                 }
-                UplinkBody::Event(e) if e.from == CutoffState::Sagging => {
-                    let recovered = e.to == CutoffState::Harvesting;
+                UplinkBody::Event(e) if e.from == ConverterState::Sagging => {
+                    let recovered = e.to == ConverterState::Harvesting;
                     run.sagging.push((t_s, recovered.then_some(false)));
                 }
                 _ => {}

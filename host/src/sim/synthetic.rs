@@ -6,7 +6,7 @@
 use std::io::Read;
 
 use gleaner_protocol::{
-    encode_frame, ChannelStats, ConfigSource, CutoffState, EnergyTotals, Event, Hello, Report,
+    encode_frame, ChannelStats, ConfigSource, ConverterState, EnergyTotals, Event, Hello, Report,
     ReportFlags, StateDurations, TransitionCause, Uplink, UplinkBody, MAX_UPLINK_FRAME_LEN,
     PROTOCOL_VERSION,
 };
@@ -27,9 +27,9 @@ fn messages_at(t: u64, interval_s: u64, seq: &mut u16) -> Vec<Uplink> {
     let hour = (t % 86_400) as f64 / 3_600.0;
     let day = (6.0..19.0).contains(&hour);
     let state = if day {
-        CutoffState::Harvesting
+        ConverterState::Harvesting
     } else {
-        CutoffState::CutOff
+        ConverterState::CutOff
     };
     let was_day = {
         let h = (t.saturating_sub(interval_s) % 86_400) as f64 / 3_600.0;
@@ -38,14 +38,14 @@ fn messages_at(t: u64, interval_s: u64, seq: &mut u16) -> Vec<Uplink> {
     if t > 0 && day != was_day {
         let (from, to, cause) = if day {
             (
-                CutoffState::CutOff,
-                CutoffState::Harvesting,
+                ConverterState::CutOff,
+                ConverterState::Harvesting,
                 TransitionCause::Recovered,
             )
         } else {
             (
-                CutoffState::Harvesting,
-                CutoffState::CutOff,
+                ConverterState::Harvesting,
+                ConverterState::CutOff,
                 TransitionCause::InputBelowHold,
             )
         };

@@ -8,7 +8,7 @@ pub mod tui;
 use std::collections::VecDeque;
 
 use gleaner_firmware::meter::efficiency_ppm;
-use gleaner_protocol::{CutoffState, Event, Hello, Report, UplinkBody};
+use gleaner_protocol::{ConverterState, Event, Hello, Report, UplinkBody};
 
 use crate::link::{LinkStats, Tracked};
 
@@ -30,7 +30,7 @@ pub struct LiveState {
     /// Node uptime of the latest message, ms.
     pub uptime_ms: u64,
     /// The state now.
-    pub state: Option<CutoffState>,
+    pub state: Option<ConverterState>,
     /// Uptime when the state was entered, ms (None: before we attached).
     pub state_since_ms: Option<u64>,
     /// Energy drawn since attaching, nJ.

@@ -60,7 +60,7 @@ pub fn load_line(uptime_ms: u64, e: &gleaner_protocol::LoadEvent) -> String {
         format!("LOAD BROWN-OUT ({})", e.cause.name())
     };
     format!(
-        "t={:>10} {what}, storage {:.3} V, input {:.3} V, converter {} for {}, net {:+.3} mW",
+        "t={:>10} {what}, storage at {:.3} V, input {:.3} V, converter {} for {}, net {:+.3} mW",
         duration(uptime_ms as f64 / 1e3),
         f64::from(e.output_uv) / 1e6,
         f64::from(e.input_uv) / 1e6,

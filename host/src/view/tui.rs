@@ -103,16 +103,15 @@ fn draw_channels(frame: &mut Frame, area: Rect, s: &LiveState, title: &str) {
             percent(s.total_efficiency())
         )));
         lines.push(Line::from(format!(
-            "energy      drawn {}   delivered {}",
+            "energy      drawn {}   delivered {}   stored {}",
             energy(s.drawn_nj as f64 / 1e9),
-            energy(s.delivered_nj as f64 / 1e9)
-        )));
-        lines.push(Line::from(format!(
-            "storage     change {}",
+            energy(s.delivered_nj as f64 / 1e9),
             energy(s.stored_nj as f64 / 1e9)
         )));
     } else {
-        lines.push(Line::from("waiting for the first report..."));
+        lines.push(Line::from(
+            "waiting for the node's first interval report...",
+        ));
     }
     frame.render_widget(
         Paragraph::new(lines).block(
@@ -280,7 +279,7 @@ mod tests {
             drawn_nj: 1_500_000,
             delivered_nj: 990_000,
             stored_nj: 0,
-            state: CutoffState::Sagging,
+            state: ConverterState::Sagging,
             state_ms: StateDurations {
                 sagging_ms: 1000,
                 ..Default::default()
@@ -305,7 +304,7 @@ mod tests {
             drawn_nj: 5_000,
             delivered_nj: 50_000,
             stored_nj: -40_000,
-            state: CutoffState::CutOff,
+            state: ConverterState::CutOff,
             ..report()
         };
         let msg = Uplink {

@@ -23,7 +23,7 @@ use gleaner_firmware::config_store::{MemoryStorage, STORE_LEN};
 use gleaner_firmware::load_shed::NoPin;
 use gleaner_firmware::sampler::Sampler;
 use gleaner_firmware::{Node, NodeParts};
-use gleaner_protocol::{ConfigSource, CutoffState};
+use gleaner_protocol::{ConfigSource, ConverterState};
 
 /// Time between samples.
 const SAMPLE_PERIOD_US: u32 = 10_000;
@@ -131,7 +131,7 @@ fn main() -> ! {
             node.on_received(&[byte]);
         }
         let _ = node.write_pending(&mut serial);
-        if cutoff_at_us.is_none() && node.state() == CutoffState::CutOff {
+        if cutoff_at_us.is_none() && node.state() == ConverterState::CutOff {
             cutoff_at_us = Some(t_us);
         }
         let after_cutoff =
