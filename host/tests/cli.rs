@@ -15,6 +15,40 @@ fn run(args: &[&str]) -> (bool, String, String) {
     )
 }
 
+/// A quick invented log of `days` in `dir`.
+fn synthetic_log(dir: &std::path::Path, name: &str, days: &str) -> std::path::PathBuf {
+    let log = dir.join(name);
+    let (ok, _, err) = run(&[
+        "sim",
+        "synthetic",
+        "--days",
+        days,
+        "--out",
+        log.to_str().unwrap(),
+    ]);
+    assert!(ok, "{err}");
+    log
+}
+
+/// Runs gleaner with `args`, reads the first bytes of its output and closes
+/// the pipe: the command must end quietly. Returns the bytes read.
+fn close_the_pipe_early(args: &[&str]) -> [u8; 16] {
+    let mut child = gleaner()
+        .args(args)
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    let mut first = [0u8; 16];
+    std::io::Read::read_exact(child.stdout.as_mut().unwrap(), &mut first).unwrap();
+    drop(child.stdout.take());
+    let out = child.wait_with_output().unwrap();
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(out.status.success(), "{args:?}: {:?} {stderr}", out.status);
+    assert!(!stderr.contains("panicked"), "{args:?}: {stderr}");
+    first
+}
+
 #[test]
 fn lists_the_built_in_scenarios() {
     let (ok, out, _) = run(&["sim", "list"]);
@@ -112,7 +146,7 @@ fn simulate_report_and_export_a_run() {
 
 #[test]
 fn the_planner_names_the_bad_field() {
-    let plan = |v_min: &str| {
+    let plan_for = |outage_h: &str, v_min: &str| {
         run(&[
             "plan",
             "--converted-w",
@@ -122,13 +156,14 @@ fn the_planner_names_the_bad_field() {
             "--active-w",
             "0.01",
             "--outage-h",
-            "12",
+            outage_h,
             "--v-max",
             "3.3",
             "--v-min",
             v_min,
         ])
     };
+    let plan = |v_min: &str| plan_for("12", v_min);
     let (ok, _, err) = plan("3.5");
     assert!(!ok);
     assert!(err.contains("--v-max"), "{err}");
@@ -141,21 +176,7 @@ fn the_planner_names_the_bad_field() {
         "{out}"
     );
     // A negative value is a value (not a flag), refused in the unit it was given in.
-    let (ok, _, err) = run(&[
-        "plan",
-        "--converted-w",
-        "0.001",
-        "--sleep-w",
-        "1e-5",
-        "--active-w",
-        "0.01",
-        "--outage-h",
-        "-1",
-        "--v-max",
-        "3.3",
-        "--v-min",
-        "1.8",
-    ]);
+    let (ok, _, err) = plan_for("-1", "1.8");
     assert!(!ok);
     assert!(
         err.contains("--outage-h") && err.contains("got -1"),
@@ -215,30 +236,9 @@ fn a_report_into_a_pipe_closed_early_ends_quietly() {
     // `gleaner report --json LOG | head`: the reader goes after a few bytes;
     // the JSON (hundreds of kB with its plot series) no longer fits the pipe.
     let dir = tempfile::tempdir().unwrap();
-    let log = dir.path().join("synthetic.gleanlog");
-    let (ok, _, err) = run(&[
-        "sim",
-        "synthetic",
-        "--days",
-        "0.2",
-        "--out",
-        log.to_str().unwrap(),
-    ]);
-    assert!(ok, "{err}");
-    let mut child = gleaner()
-        .args(["report", "--json", log.to_str().unwrap()])
-        .stdout(std::process::Stdio::piped())
-        .stderr(std::process::Stdio::piped())
-        .spawn()
-        .unwrap();
-    let mut first = [0u8; 16];
-    std::io::Read::read_exact(child.stdout.as_mut().unwrap(), &mut first).unwrap();
+    let log = synthetic_log(dir.path(), "synthetic.gleanlog", "0.2");
+    let first = close_the_pipe_early(&["report", "--json", log.to_str().unwrap()]);
     assert_eq!(first[0], b'{');
-    drop(child.stdout.take());
-    let out = child.wait_with_output().unwrap();
-    let stderr = String::from_utf8_lossy(&out.stderr);
-    assert!(out.status.success(), "{:?} {stderr}", out.status);
-    assert!(!stderr.contains("panicked"), "{stderr}");
 }
 
 #[test]
@@ -262,16 +262,7 @@ fn a_file_that_is_not_a_log_is_an_error_naming_it() {
 #[test]
 fn several_logs_with_a_bad_one_report_the_good_and_name_the_bad() {
     let dir = tempfile::tempdir().unwrap();
-    let good = dir.path().join("good.gleanlog");
-    let (ok, _, err) = run(&[
-        "sim",
-        "synthetic",
-        "--days",
-        "0.05",
-        "--out",
-        good.to_str().unwrap(),
-    ]);
-    assert!(ok, "{err}");
+    let good = synthetic_log(dir.path(), "good.gleanlog", "0.05");
     let bad = dir.path().join("notes.txt");
     std::fs::write(&bad, "field notes, not a log\n").unwrap();
     let (ok, out, err) = run(&[
@@ -372,35 +363,9 @@ fn a_served_virtual_node_answers_an_independent_client() {
 fn every_command_into_a_pipe_closed_early_ends_quietly() {
     // Outputs far larger than a pipe's buffer, so the writer meets the closed end.
     let dir = tempfile::tempdir().unwrap();
-    let log = dir.path().join("synthetic.gleanlog");
-    let (ok, _, err) = run(&[
-        "sim",
-        "synthetic",
-        "--days",
-        "0.5",
-        "--out",
-        log.to_str().unwrap(),
-    ]);
-    assert!(ok, "{err}");
-    let log = log.to_str().unwrap();
-    for args in [
-        vec!["sim", "curve", "--points", "20000"],
-        vec!["watch", "--replay", log, "--plain"],
-    ] {
-        let mut child = gleaner()
-            .args(&args)
-            .stdout(std::process::Stdio::piped())
-            .stderr(std::process::Stdio::piped())
-            .spawn()
-            .unwrap();
-        let mut first = [0u8; 16];
-        std::io::Read::read_exact(child.stdout.as_mut().unwrap(), &mut first).unwrap();
-        drop(child.stdout.take());
-        let out = child.wait_with_output().unwrap();
-        let stderr = String::from_utf8_lossy(&out.stderr);
-        assert!(out.status.success(), "{args:?}: {:?} {stderr}", out.status);
-        assert!(!stderr.contains("panicked"), "{args:?}: {stderr}");
-    }
+    let log = synthetic_log(dir.path(), "synthetic.gleanlog", "0.5");
+    close_the_pipe_early(&["sim", "curve", "--points", "20000"]);
+    close_the_pipe_early(&["watch", "--replay", log.to_str().unwrap(), "--plain"]);
 }
 
 #[test]

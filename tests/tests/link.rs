@@ -8,6 +8,7 @@ use std::time::{Duration, Instant};
 
 use gleaner::analysis::analyze_file;
 use gleaner::cli::node::Session;
+use gleaner::link::{LinkStats, Tracked};
 use gleaner::log::{LogReader, MarkerKind, RecordBody};
 use gleaner::recorder::{run_port, Recorder};
 use gleaner::sim::port::VirtualPort;
@@ -158,6 +159,20 @@ fn record_then_read_back_gives_every_frame_sent() {
     assert_eq!(observer.messages.len(), 200);
 }
 
+/// Records the port at `path` into `log` until `frames` frames came (or 5 s
+/// passed); returns the messages seen and the recorder's link figures.
+fn record_until(path: &str, log: &std::path::Path, frames: u64) -> (Vec<Tracked>, LinkStats) {
+    let mut recorder = Recorder::create(log, path).unwrap();
+    let stop = AtomicBool::new(false);
+    let started = Instant::now();
+    let mut observer = Collect::new(move |stats, _| {
+        stats.frames >= frames || started.elapsed() > Duration::from_secs(5)
+    });
+    run_port(&mut recorder, path, 115_200, &stop, &mut observer).unwrap();
+    recorder.finish().unwrap();
+    (observer.messages, *recorder.stats())
+}
+
 #[test]
 fn a_reboot_is_detected_and_logged() {
     let (mut master, _slave, path) = scripted();
@@ -179,17 +194,10 @@ fn a_reboot_is_detected_and_logged() {
     master.write_all(&stream).unwrap();
     let dir = tempfile::tempdir().unwrap();
     let log = dir.path().join("reboot.gleanlog");
-    let mut recorder = Recorder::create(&log, &path).unwrap();
-    let stop = AtomicBool::new(false);
-    let started = Instant::now();
-    let mut observer = Collect::new(move |stats, _| {
-        stats.frames >= 5 || started.elapsed() > Duration::from_secs(5)
-    });
-    run_port(&mut recorder, &path, 115_200, &stop, &mut observer).unwrap();
-    recorder.finish().unwrap();
-    assert_eq!(recorder.stats().reboots, 1);
-    assert!(observer.messages[3].reboot);
-    assert_eq!(observer.messages[3].boot_index, 1);
+    let (messages, stats) = record_until(&path, &log, 5);
+    assert_eq!(stats.reboots, 1);
+    assert!(messages[3].reboot);
+    assert_eq!(messages[3].boot_index, 1);
     let report = analyze_file(&log).unwrap();
     assert_eq!(report.link.reboots, 1);
     assert_eq!(report.boots.len(), 2);
@@ -426,20 +434,23 @@ fn ports_are_listed_without_error() {
     }
 }
 
+/// A report of a node that has run for an hour.
+fn running_for_an_hour() -> Vec<u8> {
+    frame(&report(
+        50,
+        3_600_000,
+        1_000_000,
+        ConverterState::Harvesting,
+    ))
+}
+
 #[test]
 fn the_recorder_asks_a_running_node_for_its_hello() {
     // A node that has run for an hour when the laptop is attached: its Hello
     // went out long ago, reports keep coming.
     let (mut master, _slave, path) = scripted();
     master.set_timeout(Duration::from_millis(50)).unwrap();
-    master
-        .write_all(&frame(&report(
-            50,
-            3_600_000,
-            1_000_000,
-            ConverterState::Harvesting,
-        )))
-        .unwrap();
+    master.write_all(&running_for_an_hour()).unwrap();
     let node = std::thread::spawn(move || {
         let mut got = Vec::new();
         let mut buf = [0u8; 256];
@@ -469,14 +480,7 @@ fn the_recorder_asks_a_running_node_for_its_hello() {
     });
     let dir = tempfile::tempdir().unwrap();
     let log = dir.path().join("attached.gleanlog");
-    let mut recorder = Recorder::create(&log, &path).unwrap();
-    let stop = AtomicBool::new(false);
-    let started = Instant::now();
-    let mut observer = Collect::new(move |stats, _| {
-        stats.frames >= 3 || started.elapsed() > Duration::from_secs(5)
-    });
-    run_port(&mut recorder, &path, 115_200, &stop, &mut observer).unwrap();
-    recorder.finish().unwrap();
+    record_until(&path, &log, 3);
     let (_master, request) = node.join().unwrap();
     assert_eq!(request.command, Command::GetInfo);
     let report = analyze_file(&log).unwrap();
@@ -489,24 +493,10 @@ fn the_recorder_asks_a_running_node_for_its_hello() {
 #[test]
 fn a_log_without_a_hello_says_so() {
     let (mut master, _slave, path) = scripted();
-    master
-        .write_all(&frame(&report(
-            50,
-            3_600_000,
-            1_000_000,
-            ConverterState::Harvesting,
-        )))
-        .unwrap();
+    master.write_all(&running_for_an_hour()).unwrap();
     let dir = tempfile::tempdir().unwrap();
     let log = dir.path().join("silent.gleanlog");
-    let mut recorder = Recorder::create(&log, &path).unwrap();
-    let stop = AtomicBool::new(false);
-    let started = Instant::now();
-    let mut observer = Collect::new(move |stats, _| {
-        stats.frames >= 1 || started.elapsed() > Duration::from_secs(5)
-    });
-    run_port(&mut recorder, &path, 115_200, &stop, &mut observer).unwrap();
-    recorder.finish().unwrap();
+    record_until(&path, &log, 1);
     let report = analyze_file(&log).unwrap();
     assert!(report.boots.is_empty());
     assert!(

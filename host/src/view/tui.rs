@@ -294,60 +294,54 @@ mod tests {
         }
     }
 
+    /// The full screen drawn for `state`, as text.
+    fn screen_of(state: &LiveState) -> String {
+        let mut terminal = Terminal::new(TestBackend::new(140, 30)).unwrap();
+        terminal.draw(|f| draw(f, state, "virtual node")).unwrap();
+        terminal
+            .backend()
+            .buffer()
+            .content()
+            .iter()
+            .map(|c| c.symbol())
+            .collect()
+    }
+
+    /// The state after one report arrives.
+    fn state_after(report: Report) -> LiveState {
+        let mut state = LiveState::default();
+        let mut tracker = LinkTracker::new();
+        let msg = Uplink {
+            seq: 0,
+            uptime_ms: 60_000,
+            body: UplinkBody::Report(report),
+        };
+        let tracked: Tracked = tracker.accept(msg).unwrap().unwrap();
+        state.update(&tracked, tracker.stats());
+        state
+    }
+
     #[test]
     fn an_idle_window_shows_no_efficiency_above_100_percent() {
         // Idle: noise draws 5 µJ, the load lives on storage (50 µJ delivered,
         // the storage estimate 40 µJ lower): 200 % would be noise.
-        let mut state = LiveState::default();
-        let mut tracker = LinkTracker::new();
-        let idle = Report {
+        let state = state_after(Report {
             drawn_nj: 5_000,
             delivered_nj: 50_000,
             stored_nj: -40_000,
             state: ConverterState::CutOff,
             ..report()
-        };
-        let msg = Uplink {
-            seq: 0,
-            uptime_ms: 60_000,
-            body: UplinkBody::Report(idle),
-        };
-        let tracked: Tracked = tracker.accept(msg).unwrap().unwrap();
-        state.update(&tracked, tracker.stats());
+        });
         assert_eq!(state.window_efficiency(), None);
         assert_eq!(state.total_efficiency(), None);
-        let mut terminal = Terminal::new(TestBackend::new(140, 30)).unwrap();
-        terminal.draw(|f| draw(f, &state, "virtual node")).unwrap();
-        let screen: String = terminal
-            .backend()
-            .buffer()
-            .content()
-            .iter()
-            .map(|c| c.symbol())
-            .collect();
+        let screen = screen_of(&state);
         assert!(!screen.contains("200.0"), "{screen}");
     }
 
     #[test]
     fn the_screen_shows_state_efficiency_and_forecast() {
-        let mut state = LiveState::default();
-        let mut tracker = LinkTracker::new();
-        let msg = Uplink {
-            seq: 0,
-            uptime_ms: 60_000,
-            body: UplinkBody::Report(report()),
-        };
-        let tracked: Tracked = tracker.accept(msg).unwrap().unwrap();
-        state.update(&tracked, tracker.stats());
-        let mut terminal = Terminal::new(TestBackend::new(140, 30)).unwrap();
-        terminal.draw(|f| draw(f, &state, "virtual node")).unwrap();
-        let screen: String = terminal
-            .backend()
-            .buffer()
-            .content()
-            .iter()
-            .map(|c| c.symbol())
-            .collect();
+        let state = state_after(report());
+        let screen = screen_of(&state);
         assert!(screen.contains("SAGGING"), "state");
         assert!(screen.contains("66.0 %"), "efficiency 0.99 / 1.5 mJ");
         assert!(screen.contains("00:02:05"), "forecast of 125 s");
