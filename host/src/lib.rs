@@ -9,6 +9,7 @@
 //! * [`export`]: CSV export;
 //! * [`sim`]: the virtual node (physics models driving the real firmware);
 //! * [`settings`]: node settings as people write them;
+//! * [`failure`]: the failures scripts tell apart by exit code;
 //! * [`cli`]: the command-line interface.
 //!
 //! # Example
@@ -40,6 +41,7 @@
 pub mod analysis;
 pub mod cli;
 pub mod export;
+pub mod failure;
 pub mod link;
 pub mod log;
 pub mod recorder;

@@ -10,7 +10,7 @@ fn main() -> std::process::ExitCode {
         Err(err) if gleaner::cli::is_closed_pipe(&err) => std::process::ExitCode::SUCCESS,
         Err(err) => {
             eprintln!("error: {err:#}");
-            std::process::ExitCode::FAILURE
+            std::process::ExitCode::from(gleaner::failure::Failure::exit_code(&err))
         }
     }
 }

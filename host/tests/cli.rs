@@ -405,3 +405,50 @@ fn times_take_units_and_the_port_is_given_the_same_way_everywhere() {
         assert!(err.contains("gleaner-no-such-port"), "{args:?}: {err}");
     }
 }
+
+/// Exit code of `gleaner args`.
+fn exit_code(args: &[&str]) -> Option<i32> {
+    gleaner().args(args).output().unwrap().status.code()
+}
+
+#[test]
+fn exit_codes_tell_the_failures_apart() {
+    // Usage (clap's own and ours), a missing port, a bad input file.
+    assert_eq!(exit_code(&["report", "--no-such-flag"]), Some(2));
+    assert_eq!(exit_code(&["record", "--duration", "1s"]), Some(2));
+    assert_eq!(
+        exit_code(&["node", "-p", "/dev/gleaner-no-such-port", "ping"]),
+        Some(3)
+    );
+    let dir = tempfile::tempdir().unwrap();
+    let notes = dir.path().join("notes.txt");
+    std::fs::write(&notes, "not a log\n").unwrap();
+    assert_eq!(exit_code(&["report", notes.to_str().unwrap()]), Some(6));
+    // A port with no node behind it: no answer.
+    let (_master, slave) = serialport::TTYPort::pair().unwrap();
+    let silent = serialport::SerialPort::name(&slave).unwrap();
+    assert_eq!(
+        exit_code(&["node", "-p", &silent, "--timeout", "300ms", "ping"]),
+        Some(4)
+    );
+    // A served virtual node refuses a stop voltage above its start voltage.
+    let mut serve = gleaner()
+        .args(["sim", "serve", "stalled-converter", "--speed", "20"])
+        .stdout(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    // Its output is read, and kept open, while it serves.
+    let mut output = std::io::BufReader::new(serve.stdout.take().unwrap());
+    let mut first = String::new();
+    std::io::BufRead::read_line(&mut output, &mut first).unwrap();
+    let path = first
+        .split(" on ")
+        .nth(1)
+        .and_then(|r| r.split(',').next())
+        .unwrap()
+        .to_string();
+    let refused = exit_code(&["node", "-p", &path, "set-config", "--stop-v", "5"]);
+    serve.kill().unwrap();
+    serve.wait().unwrap();
+    assert_eq!(refused, Some(5));
+}

@@ -19,6 +19,7 @@ use gleaner_firmware::meter::efficiency_ppm;
 use gleaner_protocol::{ConverterState, Event, Hello, Report, UplinkBody};
 use serde::Serialize;
 
+use crate::failure::FailedAs;
 use crate::link::{LinkStats, LinkTracker, Tracked};
 use crate::log::{LogHeader, MarkerKind, Record, RecordBody};
 use harvest::{HarvestForecast, HarvestSlots};
@@ -753,8 +754,9 @@ impl Analyzer {
 pub fn analyze_file(path: &std::path::Path) -> anyhow::Result<RunReport> {
     use anyhow::Context;
     use std::io::IsTerminal;
-    let file =
-        std::fs::File::open(path).with_context(|| format!("cannot open log {}", path.display()))?;
+    let file = std::fs::File::open(path)
+        .with_context(|| format!("cannot open log {}", path.display()))
+        .failed_as(crate::failure::Failure::BadInput)?;
     let size = file.metadata().map(|m| m.len()).unwrap_or(0);
     // A progress line on long work, only when someone watches stderr.
     let show_progress = size > 16 * 1024 * 1024 && std::io::stderr().is_terminal();
@@ -795,7 +797,8 @@ pub fn analyze_file(path: &std::path::Path) -> anyhow::Result<RunReport> {
         } else {
             "holds no frames from a node (only the recorder's own marks)".to_string()
         };
-        anyhow::bail!("{}: {why}", path.display());
+        return Err(anyhow::anyhow!("{}: {why}", path.display())
+            .failed_as(crate::failure::Failure::BadInput));
     }
     Ok(report)
 }

@@ -4,7 +4,7 @@ use std::io::{Read, Write};
 use std::path::PathBuf;
 use std::time::{Duration, Instant};
 
-use anyhow::{bail, Context, Result};
+use anyhow::{Context, Result};
 use clap::{Args, Subcommand};
 use gleaner_protocol::{
     encode_frame, Command, Downlink, FrameSplitter, Hello, Outcome, Sample, UplinkBody,
@@ -12,6 +12,7 @@ use gleaner_protocol::{
 };
 use serialport::SerialPort;
 
+use crate::failure::{FailedAs, Failure};
 use crate::link::{open_port, LinkTracker, DEFAULT_BAUD};
 use crate::settings::NodeSettings;
 
@@ -92,7 +93,8 @@ impl SetConfig {
                 &std::fs::read_to_string(path)
                     .with_context(|| format!("cannot read {}", path.display()))?,
             )
-            .with_context(|| format!("in {}", path.display()))?,
+            .with_context(|| format!("in {}", path.display()))
+            .failed_as(Failure::BadInput)?,
             None => NodeSettings::default(),
         };
         macro_rules! take {
@@ -204,21 +206,23 @@ impl Session {
         }
         match outcome {
             Some(o) => Ok(o),
-            None => bail!(
+            None => Err(anyhow::anyhow!(
                 "the node did not answer within {:.1} s: check the port, the baud rate, and that the node runs Gleaner firmware ({} frames heard, {} damaged)",
                 (self.timeout + extra).as_secs_f64(),
                 self.tracker.stats().frames,
                 self.tracker.stats().damaged()
-            ),
+            )
+            .failed_as(Failure::NoAnswer)),
         }
     }
 }
 
 fn explain(outcome: Outcome) -> Result<()> {
     match outcome {
-        Outcome::Refused(reason) => {
-            bail!("the node refused: {reason}; its previous settings stay in force")
-        }
+        Outcome::Refused(reason) => Err(anyhow::anyhow!(
+            "the node refused: {reason}; its previous settings stay in force"
+        )
+        .failed_as(Failure::Refused)),
         Outcome::Pong | Outcome::Accepted => Ok(()),
     }
 }

@@ -5,6 +5,7 @@ use clap::Args;
 
 use crate::analysis::sizing::{PlanInputs, DEFAULT_MARGIN};
 use crate::analysis::text::{duration, energy, power};
+use crate::failure::FailedAs;
 
 /// Size storage and duty cycle before the first deployment: how much
 /// capacitance rides through an outage, and the largest duty cycle a harvest
@@ -56,7 +57,7 @@ impl Cmd {
             v_min: self.v_min,
             margin: self.margin,
         };
-        let a = inputs.advise()?;
+        let a = inputs.advise().failed_as(crate::failure::Failure::Usage)?;
         if self.json {
             say!("{}", serde_json::to_string_pretty(&a)?)?;
             return Ok(());

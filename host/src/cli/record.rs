@@ -9,6 +9,7 @@ use clap::Args;
 use gleaner_protocol::Outcome;
 
 use crate::analysis::text::duration;
+use crate::failure::FailedAs;
 use crate::link::script::{CommandScript, Scripted, Step};
 use crate::link::{LinkStats, DEFAULT_BAUD};
 use crate::recorder::{run_port, Recorder};
@@ -59,7 +60,8 @@ impl Cmd {
     /// Runs the command.
     pub fn run(self) -> Result<()> {
         let port = super::port_given(&self.port_flag, &self.port)
-            .context("name the node's port (-p PORT; `gleaner ports` lists them)")?;
+            .context("name the node's port (-p PORT; `gleaner ports` lists them)")
+            .failed_as(crate::failure::Failure::Usage)?;
         let path = self.out.clone().unwrap_or_else(|| {
             let name = std::path::Path::new(&port)
                 .file_name()
@@ -100,8 +102,9 @@ impl Cmd {
         if let Some(file) = &self.set_config {
             let text = std::fs::read_to_string(file)
                 .with_context(|| format!("cannot read {}", file.display()))?;
-            let settings =
-                NodeSettings::from_toml(&text).with_context(|| format!("in {}", file.display()))?;
+            let settings = NodeSettings::from_toml(&text)
+                .with_context(|| format!("in {}", file.display()))
+                .failed_as(crate::failure::Failure::BadInput)?;
             steps.push(Step::Configure(Box::new(settings)));
         }
         let mut observer = LiveObserver::new(

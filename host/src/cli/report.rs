@@ -7,6 +7,7 @@ use anyhow::{Context, Result};
 use clap::Args;
 
 use crate::analysis::{analyze_file, html, text, RunReport};
+use crate::failure::{FailedAs, Failure};
 
 /// Report on one or more recorded runs: duration and coverage, time in each
 /// state, every outage with its cause, energy and efficiency (overall and by
@@ -28,10 +29,11 @@ impl Cmd {
     /// Runs the command.
     pub fn run(self) -> Result<()> {
         if self.html.is_some() && self.logs.len() > 1 {
-            anyhow::bail!(
+            return Err(anyhow::anyhow!(
                 "--html draws one log's page, and {} logs were given: run `gleaner report --html PAGE LOG` once per log",
                 self.logs.len()
-            );
+            )
+            .failed_as(Failure::Usage));
         }
         let mut reports: Vec<(PathBuf, RunReport)> = Vec::new();
         let mut failed = Vec::new();
@@ -42,7 +44,7 @@ impl Cmd {
             }
         }
         if reports.is_empty() {
-            anyhow::bail!("{}", failed.join("; "));
+            return Err(anyhow::anyhow!("{}", failed.join("; ")).failed_as(Failure::BadInput));
         }
         self.write(&reports)?;
         if failed.is_empty() {
@@ -51,11 +53,12 @@ impl Cmd {
         for why in &failed {
             eprintln!("error: {why}");
         }
-        anyhow::bail!(
+        Err(anyhow::anyhow!(
             "{} of {} logs could not be reported (the others are above)",
             failed.len(),
             self.logs.len()
         )
+        .failed_as(Failure::BadInput))
     }
 
     /// Writes the reports of the logs that could be read.

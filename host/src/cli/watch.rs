@@ -5,9 +5,10 @@ use std::path::PathBuf;
 use std::sync::atomic::Ordering;
 use std::time::{Duration, Instant};
 
-use anyhow::{bail, Context, Result};
+use anyhow::{Context, Result};
 use clap::Args;
 
+use crate::failure::FailedAs;
 use crate::link::{LinkTracker, DEFAULT_BAUD};
 use crate::log::{LogReader, RecordBody};
 use crate::recorder::{run_port, PortObserver, Recorder};
@@ -69,7 +70,8 @@ impl Cmd {
             return result;
         }
         let Some(port) = super::port_given(&self.port_flag, &self.port) else {
-            bail!("name a port (-p PORT), or --replay a log")
+            return Err(anyhow::anyhow!("name a port (-p PORT), or --replay a log")
+                .failed_as(crate::failure::Failure::Usage));
         };
         let port = port.as_str();
         let mut recorder = match &self.record {

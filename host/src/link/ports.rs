@@ -2,6 +2,7 @@
 
 use std::time::Duration;
 
+use crate::failure::FailedAs;
 use anyhow::{anyhow, Result};
 use serde::Serialize;
 use serialport::{SerialPort, SerialPortType};
@@ -98,7 +99,9 @@ pub fn open_port(port: &str, baud: u32) -> Result<Box<dyn SerialPort>> {
     serialport::new(port, baud)
         .timeout(Duration::from_millis(50))
         .open()
-        .map_err(|e| explain_open_error(port, &e))
+        .map_err(|e| {
+            explain_open_error(port, &e).failed_as(crate::failure::Failure::PortUnavailable)
+        })
 }
 
 #[cfg(test)]

@@ -9,6 +9,7 @@ use super::adc::FrontEndParams;
 use super::converter::{ConverterParams, InputMode};
 use super::load::LoadParams;
 use super::source::SourceParams;
+use crate::failure::FailedAs;
 use crate::settings::NodeSettings;
 
 /// A complete simulated run.
@@ -111,8 +112,11 @@ impl Scenario {
             return Self::builtin(name_or_path);
         }
         let text = std::fs::read_to_string(path)
-            .with_context(|| format!("cannot read scenario file {}", path.display()))?;
-        Self::from_toml(&text).with_context(|| format!("scenario file {}", path.display()))
+            .with_context(|| format!("cannot read scenario file {}", path.display()))
+            .failed_as(crate::failure::Failure::BadInput)?;
+        Self::from_toml(&text)
+            .with_context(|| format!("scenario file {}", path.display()))
+            .failed_as(crate::failure::Failure::BadInput)
     }
 
     /// Parses and validates TOML text; errors name the field.

@@ -1,0 +1,122 @@
+//! The kinds of failure a script can tell apart by the exit code, carried
+//! with the error: `result.failed_as(Failure::PortUnavailable)` keeps the
+//! message as it was and marks the kind.
+
+/// A failure with an exit code of its own (any other failure exits with 1).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Failure {
+    /// The command line is wrong (also clap's own parse errors): exit 2.
+    Usage,
+    /// The serial port is missing, busy or forbidden: exit 3.
+    PortUnavailable,
+    /// The node did not answer a command in time: exit 4.
+    NoAnswer,
+    /// The node refused a command (a configuration, say): exit 5.
+    Refused,
+    /// An input file is not what it should be (not a log, an invalid
+    /// settings or scenario file): exit 6.
+    BadInput,
+}
+
+impl Failure {
+    /// Every kind, in exit-code order.
+    pub const ALL: [Failure; 5] = [
+        Failure::Usage,
+        Failure::PortUnavailable,
+        Failure::NoAnswer,
+        Failure::Refused,
+        Failure::BadInput,
+    ];
+
+    /// The process exit code.
+    pub const fn code(self) -> u8 {
+        match self {
+            Failure::Usage => 2,
+            Failure::PortUnavailable => 3,
+            Failure::NoAnswer => 4,
+            Failure::Refused => 5,
+            Failure::BadInput => 6,
+        }
+    }
+
+    /// The exit code for `err`: the kind it was marked with, or 1.
+    pub fn exit_code(err: &anyhow::Error) -> u8 {
+        err.chain()
+            .find_map(|cause| cause.downcast_ref::<Classified>())
+            .map_or(1, |c| c.kind.code())
+    }
+}
+
+/// An error's message (with its causes) and the kind of failure it is.
+#[derive(Debug)]
+pub struct Classified {
+    /// The kind.
+    pub kind: Failure,
+    message: String,
+}
+
+impl std::fmt::Display for Classified {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(&self.message)
+    }
+}
+
+impl std::error::Error for Classified {}
+
+/// Marks an error, or the error of a result, with its kind of failure.
+pub trait FailedAs: Sized {
+    /// The same, marked as `kind` (the message is unchanged).
+    fn failed_as(self, kind: Failure) -> Self;
+}
+
+impl FailedAs for anyhow::Error {
+    fn failed_as(self, kind: Failure) -> Self {
+        anyhow::Error::new(Classified {
+            kind,
+            message: format!("{self:#}"),
+        })
+    }
+}
+
+impl<T> FailedAs for anyhow::Result<T> {
+    fn failed_as(self, kind: Failure) -> Self {
+        self.map_err(|e| e.failed_as(kind))
+    }
+}
+
+impl std::fmt::Display for Failure {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(match self {
+            Failure::Usage => "usage",
+            Failure::PortUnavailable => "port unavailable",
+            Failure::NoAnswer => "no answer",
+            Failure::Refused => "refused",
+            Failure::BadInput => "bad input",
+        })
+    }
+}
+
+impl std::error::Error for Failure {}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use anyhow::Context;
+
+    #[test]
+    fn the_kind_travels_with_the_error_and_gives_distinct_codes() {
+        let err = Err::<(), _>(anyhow::anyhow!("serial port /dev/x not found"))
+            .failed_as(Failure::PortUnavailable)
+            .context("while recording")
+            .unwrap_err();
+        assert_eq!(Failure::exit_code(&err), 3);
+        assert_eq!(
+            format!("{err:#}"),
+            "while recording: serial port /dev/x not found"
+        );
+        assert_eq!(Failure::exit_code(&anyhow::anyhow!("other")), 1);
+        let codes: std::collections::BTreeSet<u8> = Failure::ALL.iter().map(|f| f.code()).collect();
+        assert_eq!(codes.len(), Failure::ALL.len());
+        assert!(!codes.contains(&0) && !codes.contains(&1));
+    }
+}
