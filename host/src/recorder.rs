@@ -178,14 +178,8 @@ pub const HELLO_REQUEST_ID: u16 = 0xFFF0;
 /// thresholds): a node that was running before the port opened sent its own
 /// long ago, and a log without one does not describe itself.
 fn ask_for_hello(port: &mut impl Write, recorder: &mut Recorder) -> Result<()> {
-    let mut buf = [0u8; gleaner_protocol::MAX_DOWNLINK_FRAME_LEN];
-    let request = gleaner_protocol::Downlink {
-        request_id: HELLO_REQUEST_ID,
-        command: gleaner_protocol::Command::GetInfo,
-    };
-    let sent = gleaner_protocol::encode_frame(&request, &mut buf)
-        .map_err(|e| anyhow::anyhow!("{e:?}"))
-        .and_then(|frame| Ok(port.write_all(frame).and_then(|()| port.flush())?));
+    let sent = crate::link::downlink_frame(HELLO_REQUEST_ID, gleaner_protocol::Command::GetInfo)
+        .and_then(|frame| Ok(port.write_all(&frame).and_then(|()| port.flush())?));
     match sent {
         Ok(()) => Ok(()),
         Err(e) => recorder.mark(

@@ -7,8 +7,7 @@ use std::time::{Duration, Instant};
 use anyhow::{Context, Result};
 use clap::{Args, Subcommand};
 use gleaner_protocol::{
-    encode_frame, Command, Downlink, FrameSplitter, Hello, Outcome, Sample, UplinkBody,
-    MAX_DOWNLINK_FRAME_LEN, MAX_UPLINK_FRAME_LEN,
+    Command, FrameSplitter, Hello, Outcome, Sample, UplinkBody, MAX_UPLINK_FRAME_LEN,
 };
 use serialport::SerialPort;
 
@@ -147,16 +146,8 @@ impl Session {
     pub fn request(&mut self, command: Command, extra: Duration) -> Result<Outcome> {
         let request_id = self.next_id;
         self.next_id = self.next_id.wrapping_add(1).max(1);
-        let mut buf = [0u8; MAX_DOWNLINK_FRAME_LEN];
-        let frame = encode_frame(
-            &Downlink {
-                request_id,
-                command,
-            },
-            &mut buf,
-        )
-        .context("encoding the command")?;
-        self.port.write_all(frame).context("writing to the port")?;
+        let frame = crate::link::downlink_frame(request_id, command)?;
+        self.port.write_all(&frame).context("writing to the port")?;
         self.port.flush().ok();
         let deadline = Instant::now() + self.timeout + extra;
         let mut outcome = None;

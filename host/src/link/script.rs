@@ -4,9 +4,7 @@
 use std::collections::VecDeque;
 use std::time::{Duration, Instant};
 
-use gleaner_protocol::{
-    encode_frame, Command, Downlink, Hello, Outcome, UplinkBody, MAX_DOWNLINK_FRAME_LEN,
-};
+use gleaner_protocol::{Command, Hello, Outcome, UplinkBody};
 
 use crate::link::{LinkStats, Tracked};
 use crate::recorder::PortObserver;
@@ -120,16 +118,7 @@ impl CommandScript {
         };
         let request_id = self.next_id;
         self.next_id = self.next_id.wrapping_add(1).max(1);
-        let mut buf = [0u8; MAX_DOWNLINK_FRAME_LEN];
-        let bytes = encode_frame(
-            &Downlink {
-                request_id,
-                command,
-            },
-            &mut buf,
-        )
-        .ok()?
-        .to_vec();
+        let bytes = super::downlink_frame(request_id, command).ok()?;
         self.waiting = Some((request_id, step, Instant::now()));
         Some(bytes)
     }
