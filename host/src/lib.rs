@@ -47,4 +47,5 @@ pub mod log;
 pub mod recorder;
 pub mod settings;
 pub mod sim;
+pub mod user_config;
 pub mod view;

@@ -2,8 +2,55 @@
 
 use std::process::Command;
 
+/// The binary with the user's own configuration file and environment kept out.
 fn gleaner() -> Command {
-    Command::new(env!("CARGO_BIN_EXE_gleaner"))
+    let mut command = Command::new(env!("CARGO_BIN_EXE_gleaner"));
+    command
+        .env("GLEANER_CONFIG", "/nonexistent/gleaner/config.toml")
+        .env_remove("GLEANER_PORT")
+        .env_remove("GLEANER_BAUD")
+        .env_remove("GLEANER_RUNS_DIR");
+    command
+}
+
+/// A virtual node served on a pseudo-terminal; stopped when dropped.
+struct Served {
+    child: std::process::Child,
+    path: String,
+    /// Its standard output, kept open while it serves.
+    _output: std::io::BufReader<std::process::ChildStdout>,
+}
+
+impl Served {
+    fn start(scenario: &str) -> Self {
+        let mut child = gleaner()
+            .args(["sim", "serve", scenario, "--speed", "20"])
+            .stdout(std::process::Stdio::piped())
+            .spawn()
+            .unwrap();
+        let mut output = std::io::BufReader::new(child.stdout.take().unwrap());
+        let mut first = String::new();
+        std::io::BufRead::read_line(&mut output, &mut first).unwrap();
+        // "virtual node 'NAME' (an invented scenario) on /dev/pts/N, 20x real time"
+        let path = first
+            .split(" on ")
+            .nth(1)
+            .and_then(|r| r.split(',').next())
+            .unwrap_or_else(|| panic!("the device path is printed: {first}"))
+            .to_string();
+        Served {
+            child,
+            path,
+            _output: output,
+        }
+    }
+}
+
+impl Drop for Served {
+    fn drop(&mut self) {
+        let _ = self.child.kill();
+        let _ = self.child.wait();
+    }
 }
 
 fn run(args: &[&str]) -> (bool, String, String) {
@@ -432,23 +479,71 @@ fn exit_codes_tell_the_failures_apart() {
         Some(4)
     );
     // A served virtual node refuses a stop voltage above its start voltage.
-    let mut serve = gleaner()
-        .args(["sim", "serve", "stalled-converter", "--speed", "20"])
-        .stdout(std::process::Stdio::piped())
-        .spawn()
-        .unwrap();
-    // Its output is read, and kept open, while it serves.
-    let mut output = std::io::BufReader::new(serve.stdout.take().unwrap());
-    let mut first = String::new();
-    std::io::BufRead::read_line(&mut output, &mut first).unwrap();
-    let path = first
-        .split(" on ")
-        .nth(1)
-        .and_then(|r| r.split(',').next())
-        .unwrap()
-        .to_string();
-    let refused = exit_code(&["node", "-p", &path, "set-config", "--stop-v", "5"]);
-    serve.kill().unwrap();
-    serve.wait().unwrap();
+    let served = Served::start("stalled-converter");
+    let refused = exit_code(&["node", "-p", &served.path, "set-config", "--stop-v", "5"]);
     assert_eq!(refused, Some(5));
+}
+
+#[test]
+fn flags_beat_the_environment_which_beats_the_configuration_file() {
+    let served = Served::start("stalled-converter");
+    let dir = tempfile::tempdir().unwrap();
+    let config = dir.path().join("config.toml");
+    let file_runs = dir.path().join("file-runs");
+    std::fs::write(
+        &config,
+        format!(
+            "baud = 57600\nruns_dir = {:?}\n\n[ports]\nbench-node = {:?}\n",
+            file_runs, served.path
+        ),
+    )
+    .unwrap();
+    let with_config = |envs: &[(&str, &str)], args: &[&str]| {
+        let mut command = gleaner();
+        command.env("GLEANER_CONFIG", &config).args(args);
+        for (k, v) in envs {
+            command.env(k, v);
+        }
+        let out = command.output().unwrap();
+        let err = String::from_utf8_lossy(&out.stderr).into_owned();
+        (out.status.code(), err)
+    };
+    // An alias from the file names the port, as a flag or in GLEANER_PORT.
+    let ping = ["node", "-p", "bench-node", "--timeout", "2s", "ping"];
+    assert_eq!(with_config(&[], &ping).0, Some(0));
+    let ping_env = ["node", "--timeout", "2s", "ping"];
+    assert_eq!(
+        with_config(&[("GLEANER_PORT", "bench-node")], &ping_env).0,
+        Some(0)
+    );
+    // The flag beats the environment.
+    let (code, err) = with_config(&[("GLEANER_PORT", "/dev/gleaner-no-such-port")], &ping);
+    assert_eq!(code, Some(0), "{err}");
+    let (code, err) = with_config(&[("GLEANER_PORT", "/dev/gleaner-no-such-port")], &ping_env);
+    assert_eq!(code, Some(3), "{err}");
+    // The runs folder: flag, else environment, else file (default: ./gleaner-runs).
+    let env_runs = dir.path().join("env-runs");
+    let flag_runs = dir.path().join("flag-runs");
+    let record = ["record", "-p", "bench-node", "--duration", "300ms"];
+    let env = [("GLEANER_RUNS_DIR", env_runs.to_str().unwrap())];
+    let mut with_flag = record.to_vec();
+    with_flag.extend(["--dir", flag_runs.to_str().unwrap()]);
+    for (envs, args, folder) in [
+        (&[][..], &record[..], &file_runs),
+        (&env[..], &record[..], &env_runs),
+        (&env[..], &with_flag[..], &flag_runs),
+    ] {
+        let (code, err) = with_config(envs, args);
+        assert_eq!(code, Some(0), "{err}");
+        let logs: Vec<_> = std::fs::read_dir(folder).unwrap().collect();
+        assert_eq!(logs.len(), 1, "{folder:?}");
+        // The log is named after the alias, not the device.
+        let name = logs[0].as_ref().unwrap().file_name();
+        assert!(name.to_string_lossy().starts_with("bench-node-"), "{name:?}");
+    }
+    // A configuration file that does not parse is a bad input naming the file.
+    std::fs::write(&config, "baud = \"fast\"\n").unwrap();
+    let (code, err) = with_config(&[], &ping);
+    assert_eq!(code, Some(6));
+    assert!(err.contains("config.toml"), "{err}");
 }

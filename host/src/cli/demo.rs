@@ -27,9 +27,10 @@ pub struct Cmd {
     /// (default: the whole scenario in about 20 seconds).
     #[arg(long)]
     pub speed: Option<f64>,
-    /// Folder for the log and the HTML report.
-    #[arg(long, alias = "out", default_value = "gleaner-runs")]
-    pub dir: PathBuf,
+    /// Folder for the log and the HTML report (default: the configuration
+    /// file's `runs_dir`, else `gleaner-runs`).
+    #[arg(long, alias = "out", env = crate::user_config::RUNS_DIR_ENV)]
+    pub dir: Option<PathBuf>,
     /// One line per report instead of the full screen.
     #[arg(long, help = super::PLAIN_HELP)]
     pub plain: bool,
@@ -53,7 +54,8 @@ impl Cmd {
             .unwrap_or(1);
         let node = VirtualNode::new(scenario, boot_id)?;
         let port = VirtualPort::spawn(node, Some(speed))?;
-        let log_path = super::new_log_path(&self.dir, &name);
+        let dir = crate::user_config::UserConfig::load()?.runs_dir(self.dir.clone());
+        let log_path = super::new_log_path(&dir, &name);
         let mut recorder = Recorder::create(
             &log_path,
             &format!("virtual node '{name}' on {}", port.path()),

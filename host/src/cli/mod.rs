@@ -101,9 +101,53 @@ pub fn parse_seconds(text: &str) -> Result<f64, String> {
     Ok(seconds)
 }
 
-/// The port from `-p/--port PORT` or the first argument (one of them).
-pub fn port_given(flag: &Option<String>, first: &Option<String>) -> Option<String> {
-    flag.clone().or_else(|| first.clone())
+/// How to reach the node, as every command that opens a port takes it.
+#[derive(Debug, Clone, Default, clap::Args)]
+pub struct PortArgs {
+    /// Serial port of the node: a path (see `gleaner ports`) or a name from
+    /// the configuration file's `[ports]`.
+    #[arg(short = 'p', long = "port", value_name = "PORT", env = crate::user_config::PORT_ENV)]
+    pub port: Option<String>,
+    /// Line rate (default: the configuration file's `baud`, else 115200).
+    #[arg(long, env = crate::user_config::BAUD_ENV)]
+    pub baud: Option<u32>,
+}
+
+/// A port to open and its line rate, aliases resolved.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Reach {
+    /// The port's path.
+    pub port: String,
+    /// The line rate.
+    pub baud: u32,
+}
+
+impl PortArgs {
+    /// The port named by `first` (a command's positional argument), else by
+    /// `-p/--port` or `GLEANER_PORT`, with aliases and the line rate taken
+    /// from the user's configuration file; `None` when no port is named.
+    pub fn reach(&self, first: Option<&str>) -> anyhow::Result<Option<Reach>> {
+        let Some(given) = first.or(self.port.as_deref()) else {
+            return Ok(None);
+        };
+        let config = crate::user_config::UserConfig::load()?;
+        Ok(Some(Reach {
+            port: config.port(given),
+            baud: config.baud(self.baud),
+        }))
+    }
+
+    /// As [`PortArgs::reach`], with a usage error when no port is named.
+    pub fn require(&self, first: Option<&str>) -> anyhow::Result<Reach> {
+        use crate::failure::FailedAs;
+        self.reach(first)?
+            .ok_or_else(|| {
+                anyhow::anyhow!(
+                    "name the node's port (-p PORT or GLEANER_PORT; `gleaner ports` lists them)"
+                )
+            })
+            .failed_as(crate::failure::Failure::Usage)
+    }
 }
 
 /// True when `err` comes from writing to a pipe whose reader has gone

@@ -12,18 +12,15 @@ use gleaner_protocol::{
 use serialport::SerialPort;
 
 use crate::failure::{FailedAs, Failure};
-use crate::link::{open_port, LinkTracker, DEFAULT_BAUD};
+use crate::link::{open_port, LinkTracker};
 use crate::settings::NodeSettings;
 
 /// Talk to a node.
 #[derive(Debug, Args)]
 pub struct Cmd {
-    /// Serial port of the node (see `gleaner ports`).
-    #[arg(long, short)]
-    pub port: String,
-    /// Line rate.
-    #[arg(long, default_value_t = DEFAULT_BAUD)]
-    pub baud: u32,
+    /// The port (`-p PORT`, a path or an alias) and line rate.
+    #[command(flatten)]
+    pub link: super::PortArgs,
     /// How long to wait for the node's answer (seconds, or with a unit: 500ms, 10s).
     #[arg(long, default_value = "3", value_parser = super::parse_seconds)]
     pub timeout: f64,
@@ -222,7 +219,10 @@ impl Cmd {
     /// Runs the command.
     pub fn run(self) -> Result<()> {
         let mut session =
-            Session::open(&self.port, self.baud, Duration::from_secs_f64(self.timeout))?;
+            {
+            let reach = self.link.require(None)?;
+            Session::open(&reach.port, reach.baud, Duration::from_secs_f64(self.timeout))?
+        };
         match self.action {
             Action::Ping => {
                 let started = Instant::now();

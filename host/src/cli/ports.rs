@@ -26,6 +26,7 @@ impl Cmd {
             say!("no serial ports found: plug the node in (and check `dmesg` on Linux), or try `gleaner demo` to run a virtual node")?;
             return Ok(());
         }
+        let config = crate::user_config::UserConfig::load()?;
         say!(
             "{:<24} {:<9} {:<9} {:<20} description",
             "port",
@@ -33,7 +34,8 @@ impl Cmd {
             "vid:pid",
             "serial"
         )?;
-        for p in ports {
+        let mut stable = Vec::new();
+        for p in &ports {
             let ids = match (&p.vid, &p.pid) {
                 (Some(v), Some(d)) => format!("{v}:{d}"),
                 _ => "-".into(),
@@ -51,6 +53,26 @@ impl Cmd {
                 p.serial_number.as_deref().unwrap_or("-"),
                 desc
             )?;
+            if let Some(name) = &p.stable_name {
+                stable.push((p.name.as_str(), name.as_str()));
+            }
+        }
+        if stable.is_empty() {
+            return Ok(());
+        }
+        say!("\nNames that stay the same when the device is replugged (use these, or name them):")?;
+        for (port, name) in stable {
+            match config.alias_of(name).or(config.alias_of(port)) {
+                Some(alias) => say!("  {port}: {name} (your name: {alias})")?,
+                None => say!("  {port}: {name}")?,
+            }
+        }
+        match crate::user_config::config_path() {
+            Some(path) => say!(
+                "Name a port under [ports] in {}: my-node = \"/dev/serial/by-id/...\"",
+                path.display()
+            )?,
+            None => say!("Name a port with GLEANER_CONFIG=FILE and [ports] in it")?,
         }
         Ok(())
     }

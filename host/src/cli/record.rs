@@ -11,7 +11,7 @@ use gleaner_protocol::Outcome;
 use crate::analysis::text::duration;
 use crate::failure::FailedAs;
 use crate::link::script::{CommandScript, Scripted, Step};
-use crate::link::{LinkStats, DEFAULT_BAUD};
+use crate::link::LinkStats;
 use crate::recorder::{run_port, Recorder};
 use crate::settings::NodeSettings;
 use crate::view::observer::{Display, LiveObserver};
@@ -21,25 +21,19 @@ use crate::view::observer::{Display, LiveObserver};
 /// and stops cleanly on Ctrl-C or SIGTERM with everything flushed.
 #[derive(Debug, Args)]
 pub struct Cmd {
-    /// Serial port of the node (see `gleaner ports`); or give it with `-p/--port`.
-    #[arg(
-        value_name = "PORT",
-        conflicts_with = "port_flag",
-        required_unless_present = "port_flag"
-    )]
-    pub port: Option<String>,
-    /// Serial port of the node, as every command takes it.
-    #[arg(short = 'p', long = "port", value_name = "PORT")]
-    pub port_flag: Option<String>,
-    /// Line rate.
-    #[arg(long, default_value_t = DEFAULT_BAUD)]
-    pub baud: u32,
+    /// Serial port of the node (a path or an alias); or give it with `-p/--port`.
+    #[arg(value_name = "PORT")]
+    pub port_arg: Option<String>,
+    /// The port and line rate.
+    #[command(flatten)]
+    pub link: super::PortArgs,
     /// Log file to create (default: a new file in --dir).
     #[arg(long)]
     pub out: Option<PathBuf>,
-    /// Folder for the new log when --out is not given.
-    #[arg(long, default_value = "gleaner-runs")]
-    pub dir: PathBuf,
+    /// Folder for the new log when --out is not given (default: the
+    /// configuration file's `runs_dir`, else `gleaner-runs`).
+    #[arg(long, env = crate::user_config::RUNS_DIR_ENV)]
+    pub dir: Option<PathBuf>,
     /// Time between status lines on stderr (seconds, or with a unit: 30s,
     /// 5min; 0: none).
     #[arg(long, default_value = "60", value_parser = super::parse_seconds)]
@@ -59,15 +53,23 @@ pub struct Cmd {
 impl Cmd {
     /// Runs the command.
     pub fn run(self) -> Result<()> {
-        let port = super::port_given(&self.port_flag, &self.port)
-            .context("name the node's port (-p PORT; `gleaner ports` lists them)")
-            .failed_as(crate::failure::Failure::Usage)?;
-        let path = self.out.clone().unwrap_or_else(|| {
-            let name = std::path::Path::new(&port)
-                .file_name()
-                .map_or("node".into(), |n| n.to_string_lossy().into_owned());
-            super::new_log_path(&self.dir, &name)
-        });
+        let reach = self.link.require(self.port_arg.as_deref())?;
+        let port = reach.port.clone();
+        let path = match self.out.clone() {
+            Some(path) => path,
+            None => {
+                let config = crate::user_config::UserConfig::load()?;
+                let name = config.alias_of(&port).map_or_else(
+                    || {
+                        std::path::Path::new(&port)
+                            .file_name()
+                            .map_or("node".into(), |n| n.to_string_lossy().into_owned())
+                    },
+                    str::to_owned,
+                );
+                super::new_log_path(&config.runs_dir(self.dir.clone()), &name)
+            }
+        };
         let mut recorder = Recorder::create(&path, &port)?;
         eprintln!("recording {port} to {} (Ctrl-C stops)", path.display());
         let stop = super::stop_flag()?;
@@ -115,7 +117,7 @@ impl Cmd {
         );
         let script = CommandScript::new(steps, Duration::from_secs(3));
         let mut scripted = Scripted::new(script, &mut observer);
-        let result = run_port(&mut recorder, &port, self.baud, &stop, &mut scripted);
+        let result = run_port(&mut recorder, &port, reach.baud, &stop, &mut scripted);
         for (step, outcome) in &scripted.script.results {
             match outcome {
                 Some(Outcome::Refused(reason)) => eprintln!("{step:?}: refused: {reason}"),

@@ -9,7 +9,7 @@ use anyhow::{Context, Result};
 use clap::Args;
 
 use crate::failure::FailedAs;
-use crate::link::{LinkTracker, DEFAULT_BAUD};
+use crate::link::LinkTracker;
 use crate::log::{LogReader, RecordBody};
 use crate::recorder::{run_port, PortObserver, Recorder};
 use crate::view::observer::{Display, LiveObserver};
@@ -20,17 +20,14 @@ use crate::view::observer::{Display, LiveObserver};
 /// terminal (q quits), one line per report otherwise.
 #[derive(Debug, Args)]
 pub struct Cmd {
-    /// Serial port of the node (see `gleaner ports`); or give it with `-p/--port`.
-    #[arg(value_name = "PORT", conflicts_with = "port_flag")]
-    pub port: Option<String>,
-    /// Serial port of the node, as every command takes it.
-    #[arg(short = 'p', long = "port", value_name = "PORT")]
-    pub port_flag: Option<String>,
-    /// Line rate.
-    #[arg(long, default_value_t = DEFAULT_BAUD)]
-    pub baud: u32,
+    /// Serial port of the node (a path or an alias); or give it with `-p/--port`.
+    #[arg(value_name = "PORT")]
+    pub port_arg: Option<String>,
+    /// The port and line rate.
+    #[command(flatten)]
+    pub link: super::PortArgs,
     /// Replay a recorded log instead of a port.
-    #[arg(long, conflicts_with_all = ["port", "port_flag"])]
+    #[arg(long, conflicts_with = "port_arg")]
     pub replay: Option<PathBuf>,
     /// Replay speed: this many times faster than the node's own clock ran (a
     /// simulated day recorded in seconds still takes a day / speed; 0: as fast
@@ -69,11 +66,11 @@ impl Cmd {
             }
             return result;
         }
-        let Some(port) = super::port_given(&self.port_flag, &self.port) else {
+        let Some(reach) = self.link.reach(self.port_arg.as_deref())? else {
             return Err(anyhow::anyhow!("name a port (-p PORT), or --replay a log")
                 .failed_as(crate::failure::Failure::Usage));
         };
-        let port = port.as_str();
+        let port = reach.port.as_str();
         let mut recorder = match &self.record {
             Some(path) => Recorder::create(path, port)?,
             None => Recorder::new(None),
@@ -84,7 +81,7 @@ impl Cmd {
             Box::new(std::io::stdout()),
             Box::new(|_, _| false),
         );
-        let result = run_port(&mut recorder, port, self.baud, &stop, &mut observer);
+        let result = run_port(&mut recorder, port, reach.baud, &stop, &mut observer);
         observer.close();
         recorder.finish()?;
         result

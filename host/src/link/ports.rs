@@ -27,6 +27,23 @@ pub struct PortInfo {
     pub manufacturer: Option<String>,
     /// USB product name.
     pub product: Option<String>,
+    /// A name for the same device that survives replugging
+    /// (`/dev/serial/by-id/...` on Linux), when there is one.
+    pub stable_name: Option<String>,
+}
+
+/// Folder of links named after each USB serial device's identity (Linux).
+const STABLE_NAMES_DIR: &str = "/dev/serial/by-id";
+
+/// The link in `dir` that points at the device `port`, if any.
+pub fn stable_name_in(dir: &std::path::Path, port: &str) -> Option<String> {
+    let device = std::fs::canonicalize(port).ok()?;
+    std::fs::read_dir(dir)
+        .ok()?
+        .flatten()
+        .map(|entry| entry.path())
+        .find(|link| std::fs::canonicalize(link).is_ok_and(|target| target == device))
+        .map(|link| link.to_string_lossy().into_owned())
 }
 
 /// Every serial port the operating system knows.
@@ -36,6 +53,7 @@ pub fn list_ports() -> Result<Vec<PortInfo>> {
     Ok(ports
         .into_iter()
         .map(|p| {
+            let stable_name = stable_name_in(std::path::Path::new(STABLE_NAMES_DIR), &p.port_name);
             let mut info = PortInfo {
                 name: p.port_name,
                 kind: "unknown".into(),
@@ -44,6 +62,7 @@ pub fn list_ports() -> Result<Vec<PortInfo>> {
                 serial_number: None,
                 manufacturer: None,
                 product: None,
+                stable_name,
             };
             match p.port_type {
                 SerialPortType::UsbPort(usb) => {
@@ -127,6 +146,24 @@ mod tests {
         if cfg!(target_os = "linux") {
             assert!(msg.contains("dialout"), "{msg}");
         }
+    }
+
+    #[cfg(unix)]
+    #[test]
+    fn the_stable_name_is_the_link_pointing_at_the_device() {
+        let devices = tempfile::tempdir().unwrap();
+        let dir = tempfile::tempdir().unwrap();
+        let device = devices.path().join("ttyACM7");
+        std::fs::write(&device, "").unwrap();
+        let link = dir.path().join("usb-Invented_Node_0001-if00");
+        std::os::unix::fs::symlink(&device, &link).unwrap();
+        let other = devices.path().join("ttyACM8");
+        std::fs::write(&other, "").unwrap();
+        assert_eq!(
+            stable_name_in(dir.path(), device.to_str().unwrap()),
+            Some(link.to_string_lossy().into_owned())
+        );
+        assert_eq!(stable_name_in(dir.path(), other.to_str().unwrap()), None);
     }
 
     #[test]
