@@ -547,3 +547,31 @@ fn flags_beat_the_environment_which_beats_the_configuration_file() {
     assert_eq!(code, Some(6));
     assert!(err.contains("config.toml"), "{err}");
 }
+
+#[test]
+fn completions_and_manual_pages_come_from_the_command_definitions() {
+    for shell in ["bash", "zsh", "fish"] {
+        let (ok, script, err) = run(&["completions", shell]);
+        assert!(ok, "{shell}: {err}");
+        for word in ["record", "report", "port", "baud", "replay"] {
+            assert!(script.contains(word), "{shell} completion lacks {word}");
+        }
+    }
+    // The bash script is valid bash.
+    let dir = tempfile::tempdir().unwrap();
+    let script = dir.path().join("gleaner.bash");
+    std::fs::write(&script, run(&["completions", "bash"]).1).unwrap();
+    let checked = Command::new("bash").arg("-n").arg(&script).status().unwrap();
+    assert!(checked.success());
+    // One page per command, in roff, naming its options.
+    let (ok, page, _) = run(&["man-page"]);
+    assert!(ok);
+    assert!(page.contains(".TH gleaner 1"), "{page}");
+    let pages = dir.path().join("man1");
+    let (ok, _, err) = run(&["man-page", "--dir", pages.to_str().unwrap()]);
+    assert!(ok, "{err}");
+    let record = std::fs::read_to_string(pages.join("gleaner-record.1")).unwrap();
+    assert!(record.contains(".TH gleaner-record 1"), "{record}");
+    assert!(record.contains("GLEANER_PORT"), "the environment is documented");
+    assert!(pages.join("gleaner-node-ping.1").exists());
+}

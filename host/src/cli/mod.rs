@@ -26,6 +26,7 @@ pub mod plan;
 pub mod ports;
 pub mod record;
 pub mod report;
+pub mod shell;
 pub mod sim;
 pub mod watch;
 
@@ -64,6 +65,10 @@ pub enum Command {
     Plan(plan::Cmd),
     /// Virtual-node tools: scenarios and source I-V curves.
     Sim(sim::Cmd),
+    /// Print the shell completion script (bash, zsh, fish, elvish, powershell).
+    Completions(shell::Completions),
+    /// Print the manual page, or write every command's page into a folder.
+    ManPage(shell::ManPage),
 }
 
 /// Help of `--plain`, the same on every command that has it.
@@ -175,6 +180,8 @@ impl Cli {
             Command::Import(c) => c.run(),
             Command::Plan(c) => c.run(),
             Command::Sim(c) => c.run(),
+            Command::Completions(c) => c.run(),
+            Command::ManPage(c) => c.run(),
         }
     }
 }
