@@ -10,6 +10,7 @@ use std::path::{Path, PathBuf};
 use anyhow::{Context, Result};
 use gleaner_protocol::UplinkBody;
 
+use crate::files::{open_input, AtomicFile, Input};
 use crate::link::LinkTracker;
 use crate::log::{LogReader, RecordBody};
 
@@ -48,24 +49,57 @@ fn opt(v: Option<u32>) -> String {
     v.map_or(String::new(), |x| x.to_string())
 }
 
-/// Writes `PREFIX-reports.csv` and `PREFIX-events.csv` from the log at `log`.
+/// An error when what was read is not a log (so nothing is written for it).
+fn refuse_non_log<R: std::io::Read>(reader: &LogReader<R>, name: &str) -> Result<()> {
+    use crate::failure::FailedAs;
+    if reader
+        .warnings()
+        .iter()
+        .any(|w| matches!(w, crate::log::ReadWarning::NotALog))
+    {
+        return Err(anyhow::anyhow!("{name}: {}", crate::log::ReadWarning::NotALog)
+            .failed_as(crate::failure::Failure::BadInput));
+    }
+    Ok(())
+}
+
+/// Writes `PREFIX-reports.csv` and `PREFIX-events.csv` from the log at `log`
+/// (`-`: standard input); each file appears only once complete.
 pub fn export_csv(log: &Path, prefix: &Path) -> Result<Exported> {
-    let file =
-        std::fs::File::open(log).with_context(|| format!("cannot open log {}", log.display()))?;
+    let input = open_input(log, "log")?;
     let reports_path = suffixed(prefix, "-reports.csv");
     let events_path = suffixed(prefix, "-events.csv");
-    let create = |p: &Path| -> Result<std::io::BufWriter<std::fs::File>> {
-        Ok(std::io::BufWriter::new(
-            std::fs::File::create(p).with_context(|| format!("cannot create {}", p.display()))?,
-        ))
-    };
-    let mut reports_out = create(&reports_path)?;
-    let mut events_out = create(&events_path)?;
+    let mut reports_out = std::io::BufWriter::new(AtomicFile::create(&reports_path)?);
+    let mut events_out = std::io::BufWriter::new(AtomicFile::create(&events_path)?);
+    let (reports, events) = write_csv(input, &mut reports_out, &mut events_out)?;
+    for (out, path) in [(reports_out, &reports_path), (events_out, &events_path)] {
+        out.into_inner()
+            .map_err(|e| e.into_error())
+            .with_context(|| format!("cannot write {}", path.display()))?
+            .commit()?;
+    }
+    Ok(Exported {
+        reports_path,
+        reports,
+        events_path,
+        events,
+    })
+}
+
+/// Writes the reports table and the events table of the log read from
+/// `input` as CSV; returns their row counts.
+pub fn write_csv(
+    input: Input,
+    reports_out: &mut dyn Write,
+    events_out: &mut dyn Write,
+) -> Result<(u64, u64)> {
+    let (file, name) = (input.reader, input.name);
     writeln!(reports_out, "{REPORT_COLUMNS}")?;
     writeln!(events_out, "{EVENT_COLUMNS}")?;
     let mut tracker = LinkTracker::new();
     let (mut reports, mut events) = (0, 0);
-    for record in LogReader::new(file) {
+    let mut reader = LogReader::new(file);
+    for record in reader.by_ref() {
         let RecordBody::Frame(bytes) = &record.body else {
             continue;
         };
@@ -130,14 +164,10 @@ pub fn export_csv(log: &Path, prefix: &Path) -> Result<Exported> {
             _ => {}
         }
     }
+    refuse_non_log(&reader, &name)?;
     reports_out.flush()?;
     events_out.flush()?;
-    Ok(Exported {
-        reports_path,
-        reports,
-        events_path,
-        events,
-    })
+    Ok((reports, events))
 }
 
 /// What a Parquet export wrote.
@@ -335,20 +365,21 @@ pub fn export_parquet(log: &Path, prefix: &Path) -> Result<ExportedParquet> {
     use arrow_array::*;
     use parquet::arrow::ArrowWriter;
     use std::sync::Arc;
-    let file =
-        std::fs::File::open(log).with_context(|| format!("cannot open log {}", log.display()))?;
+    let Input {
+        reader: file, name, ..
+    } = open_input(log, "log")?;
     let reports_path = suffixed(prefix, "-reports.parquet");
     let events_path = suffixed(prefix, "-events.parquet");
-    let create = |p: &Path| {
-        std::fs::File::create(p).with_context(|| format!("cannot create {}", p.display()))
-    };
-    let mut reports_out = ArrowWriter::try_new(create(&reports_path)?, report_schema(), None)?;
-    let mut events_out = ArrowWriter::try_new(create(&events_path)?, event_schema(), None)?;
+    let mut reports_out =
+        ArrowWriter::try_new(AtomicFile::create(&reports_path)?, report_schema(), None)?;
+    let mut events_out =
+        ArrowWriter::try_new(AtomicFile::create(&events_path)?, event_schema(), None)?;
     let mut rows = ReportColumns::default();
     let mut events: Vec<(u32, u16, u64, u64, gleaner_protocol::Event)> = Vec::new();
     let mut tracker = LinkTracker::new();
     let (mut n_reports, mut n_events) = (0u64, 0u64);
-    for mut record in LogReader::new(file) {
+    let mut reader = LogReader::new(file);
+    for mut record in reader.by_ref() {
         let host = record.host_time_us;
         let RecordBody::Frame(bytes) = &mut record.body else {
             continue;
@@ -374,7 +405,8 @@ pub fn export_parquet(log: &Path, prefix: &Path) -> Result<ExportedParquet> {
     if !rows.boot.is_empty() {
         reports_out.write(&rows.take_batch()?)?;
     }
-    reports_out.close()?;
+    refuse_non_log(&reader, &name)?;
+    let reports_file = reports_out.into_inner()?;
     for chunk in events.chunks(BATCH_ROWS) {
         let cols: Vec<ArrayRef> = vec![
             Arc::new(UInt32Array::from(
@@ -419,7 +451,9 @@ pub fn export_parquet(log: &Path, prefix: &Path) -> Result<ExportedParquet> {
         ];
         events_out.write(&RecordBatch::try_new(event_schema(), cols)?)?;
     }
-    events_out.close()?;
+    let events_file = events_out.into_inner()?;
+    reports_file.commit()?;
+    events_file.commit()?;
     Ok(ExportedParquet {
         reports_path,
         reports: n_reports,

@@ -42,6 +42,7 @@ pub mod analysis;
 pub mod cli;
 pub mod export;
 pub mod failure;
+pub mod files;
 pub mod link;
 pub mod log;
 pub mod recorder;

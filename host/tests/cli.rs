@@ -575,3 +575,102 @@ fn completions_and_manual_pages_come_from_the_command_definitions() {
     assert!(record.contains("GLEANER_PORT"), "the environment is documented");
     assert!(pages.join("gleaner-node-ping.1").exists());
 }
+
+/// Runs gleaner with `args` and `input` on its standard input.
+fn run_with_input(args: &[&str], input: &[u8]) -> (bool, Vec<u8>, String) {
+    use std::io::Write as _;
+    let mut child = gleaner()
+        .args(args)
+        .stdin(std::process::Stdio::piped())
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    let mut stdin = child.stdin.take().unwrap();
+    let input = input.to_vec();
+    let feeder = std::thread::spawn(move || {
+        let _ = stdin.write_all(&input);
+    });
+    let out = child.wait_with_output().unwrap();
+    feeder.join().unwrap();
+    (
+        out.status.success(),
+        out.stdout,
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
+}
+
+#[test]
+fn a_dash_reads_standard_input_and_writes_standard_output() {
+    let dir = tempfile::tempdir().unwrap();
+    let log = synthetic_log(dir.path(), "run.gleanlog", "0.2");
+    let bytes = std::fs::read(&log).unwrap();
+    // report -: the same report as from the file.
+    let (ok, from_file, _) = run(&["report", "--json", log.to_str().unwrap()]);
+    assert!(ok);
+    let (ok, from_stdin, err) = run_with_input(&["report", "--json", "-"], &bytes);
+    assert!(ok, "{err}");
+    assert_eq!(String::from_utf8_lossy(&from_stdin), from_file);
+    // export --prefix -: each table as the CSV file would hold it.
+    let prefix = dir.path().join("files");
+    let (ok, _, err) = run(&[
+        "export",
+        log.to_str().unwrap(),
+        "--prefix",
+        prefix.to_str().unwrap(),
+    ]);
+    assert!(ok, "{err}");
+    for (flag, file) in [(None, "files-reports.csv"), (Some("--events"), "files-events.csv")] {
+        let mut args = vec!["export", "-", "--prefix", "-"];
+        args.extend(flag);
+        let (ok, csv, err) = run_with_input(&args, &bytes);
+        assert!(ok, "{err}");
+        assert_eq!(csv, std::fs::read(dir.path().join(file)).unwrap(), "{file}");
+    }
+    // import -: a raw capture (the emulated node's first seconds) from stdin.
+    let hex = std::fs::read_to_string(
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../tests/data/qemu-first-seconds.hex"),
+    )
+    .unwrap();
+    let raw: Vec<u8> = (0..hex.trim().len())
+        .step_by(2)
+        .map(|i| u8::from_str_radix(&hex.trim()[i..i + 2], 16).unwrap())
+        .collect();
+    let capture = dir.path().join("capture.bin");
+    std::fs::write(&capture, &raw).unwrap();
+    let from_file = dir.path().join("from-file.gleanlog");
+    let (ok, said_file, err) = run(&[
+        "import",
+        capture.to_str().unwrap(),
+        "--out",
+        from_file.to_str().unwrap(),
+    ]);
+    assert!(ok, "{err}");
+    let imported = dir.path().join("imported.gleanlog");
+    let (ok, said_stdin, err) =
+        run_with_input(&["import", "-", "--out", imported.to_str().unwrap()], &raw);
+    assert!(ok, "{err}");
+    let frames = |said: &str| said.split(" frames").next().unwrap().to_string();
+    assert_eq!(frames(&String::from_utf8_lossy(&said_stdin)), frames(&said_file));
+    assert!(frames(&said_file).parse::<u32>().unwrap() >= 5, "{said_file}");
+    // Something that is not a log: a bad input, and no files left behind.
+    let notes = dir.path().join("notes.txt");
+    std::fs::write(&notes, "not a log at all\n").unwrap();
+    for parquet in [false, true] {
+        let mut args = vec!["export", notes.to_str().unwrap()];
+        if parquet {
+            args.push("--parquet");
+        }
+        assert_eq!(exit_code(&args), Some(6), "{args:?}");
+    }
+    let left: Vec<_> = std::fs::read_dir(dir.path())
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .filter(|n| n.starts_with("notes-") || n.starts_with(".gleaner-partial"))
+        .collect();
+    assert!(left.is_empty(), "{left:?}");
+    // Parquet needs files.
+    let (ok, _, err) = run(&["export", log.to_str().unwrap(), "--parquet", "--prefix", "-"]);
+    assert!(!ok);
+    assert!(err.contains("Parquet goes to files"), "{err}");
+}

@@ -750,17 +750,15 @@ impl Analyzer {
     }
 }
 
-/// Analyses a log file, streaming.
+/// Analyses a log file (`-`: standard input), streaming.
 pub fn analyze_file(path: &std::path::Path) -> anyhow::Result<RunReport> {
-    use anyhow::Context;
     use std::io::IsTerminal;
-    let file = std::fs::File::open(path)
-        .with_context(|| format!("cannot open log {}", path.display()))
-        .failed_as(crate::failure::Failure::BadInput)?;
-    let size = file.metadata().map(|m| m.len()).unwrap_or(0);
+    let input = crate::files::open_input(path, "log")?;
+    let size = input.size.unwrap_or(0);
+    let name = input.name;
     // A progress line on long work, only when someone watches stderr.
     let show_progress = size > 16 * 1024 * 1024 && std::io::stderr().is_terminal();
-    let mut reader = crate::log::LogReader::new(file);
+    let mut reader = crate::log::LogReader::new(input.reader);
     let mut analyzer = Analyzer::new();
     let mut last_shown = std::time::Instant::now();
     while let Some(record) = reader.next() {
@@ -768,15 +766,11 @@ pub fn analyze_file(path: &std::path::Path) -> anyhow::Result<RunReport> {
         if show_progress && last_shown.elapsed() >= std::time::Duration::from_millis(250) {
             last_shown = std::time::Instant::now();
             let percent = reader.offset() as f64 * 100.0 / size as f64;
-            eprint!("\rreading {}: {percent:.0} %", path.display());
+            eprint!("\rreading {name}: {percent:.0} %");
         }
     }
     if show_progress {
-        eprint!(
-            "\r{:width$}\r",
-            "",
-            width = path.display().to_string().len() + 20
-        );
+        eprint!("\r{:width$}\r", "", width = name.len() + 20);
     }
     if let Some(err) = reader.take_io_error() {
         analyzer.warn(format!("reading stopped early: {err}"));
@@ -797,7 +791,7 @@ pub fn analyze_file(path: &std::path::Path) -> anyhow::Result<RunReport> {
         } else {
             "holds no frames from a node (only the recorder's own marks)".to_string()
         };
-        return Err(anyhow::anyhow!("{}: {why}", path.display())
+        return Err(anyhow::anyhow!("{name}: {why}")
             .failed_as(crate::failure::Failure::BadInput));
     }
     Ok(report)

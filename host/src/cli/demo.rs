@@ -109,7 +109,7 @@ impl Cmd {
         say_part!("{}", text::render(&report))?;
         let html_path = log_path.with_extension("html");
         match html::render(&report) {
-            Ok(page) => std::fs::write(&html_path, page)?,
+            Ok(page) => crate::files::write_atomic(&html_path, page.as_bytes())?,
             Err(e) => eprintln!("warning: the HTML report could not be drawn: {e}"),
         }
         say!()?;

@@ -12,7 +12,7 @@ use crate::recorder::Recorder;
 /// times are the capture file's modification time (no better is known).
 #[derive(Debug, Args)]
 pub struct Cmd {
-    /// The raw capture.
+    /// The raw capture (`-`: standard input, stamped with the time read).
     pub raw: PathBuf,
     /// The log to create.
     #[arg(long)]
@@ -22,15 +22,21 @@ pub struct Cmd {
 impl Cmd {
     /// Runs the command.
     pub fn run(self) -> Result<()> {
-        let bytes = std::fs::read(&self.raw)
-            .with_context(|| format!("cannot read {}", self.raw.display()))?;
-        let when = std::fs::metadata(&self.raw)
-            .and_then(|m| m.modified())
-            .ok()
-            .and_then(|t| t.duration_since(std::time::UNIX_EPOCH).ok())
-            .map_or(0, |d| u64::try_from(d.as_micros()).unwrap_or(0));
+        let mut input = crate::files::open_input(&self.raw, "capture")?;
+        let mut bytes = Vec::new();
+        std::io::Read::read_to_end(&mut input.reader, &mut bytes)
+            .with_context(|| format!("cannot read {}", input.name))?;
+        let when = if crate::files::is_stdio(&self.raw) {
+            crate::log::now_us()
+        } else {
+            std::fs::metadata(&self.raw)
+                .and_then(|m| m.modified())
+                .ok()
+                .and_then(|t| t.duration_since(std::time::UNIX_EPOCH).ok())
+                .map_or(0, |d| u64::try_from(d.as_micros()).unwrap_or(0))
+        };
         let mut recorder =
-            Recorder::create(&self.out, &format!("import of {}", self.raw.display()))?;
+            Recorder::create(&self.out, &format!("import of {}", input.name))?;
         recorder.on_bytes(when, &bytes, |_| {})?;
         recorder.finish()?;
         let s = recorder.stats();

@@ -44,7 +44,7 @@ pub enum Action {
     Burst {
         /// Number of samples.
         samples: u32,
-        /// CSV file to write.
+        /// CSV file to write (`-`: standard output).
         #[arg(long, default_value = "burst.csv")]
         out: PathBuf,
     },
@@ -261,12 +261,11 @@ impl Cmd {
                 let extra =
                     Duration::from_secs_f64(f64::from(samples) * period_s.max(0.001) * 2.0 + 1.0);
                 explain(session.request(Command::StartBurst { samples }, extra)?)?;
-                let mut file = std::fs::File::create(&out)
-                    .with_context(|| format!("cannot create {}", out.display()))?;
-                writeln!(file, "index,time_us,input_uv,input_na,output_uv,output_na")?;
+                let mut csv = Vec::new();
+                writeln!(csv, "index,time_us,input_uv,input_na,output_uv,output_na")?;
                 for (i, s, period) in &session.samples {
                     writeln!(
-                        file,
+                        csv,
                         "{i},{},{},{},{},{}",
                         u64::from(*i) * u64::from(*period),
                         s.input_uv,
@@ -275,6 +274,11 @@ impl Cmd {
                         s.output_na
                     )?;
                 }
+                if crate::files::is_stdio(&out) {
+                    std::io::stdout().write_all(&csv)?;
+                    return Ok(());
+                }
+                crate::files::write_atomic(&out, &csv)?;
                 say!(
                     "{} of {samples} samples written to {}",
                     session.samples.len(),

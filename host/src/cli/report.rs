@@ -14,7 +14,7 @@ use crate::failure::{FailedAs, Failure};
 /// input voltage), daily budgets, storage and duty-cycle advice, link quality.
 #[derive(Debug, Args)]
 pub struct Cmd {
-    /// Log files (one per node for a fleet).
+    /// Log files (one per node for a fleet; `-`: standard input).
     #[arg(required = true)]
     pub logs: Vec<PathBuf>,
     /// Print JSON (schema `gleaner.report.v2`, see docs/report-json.md).
@@ -67,8 +67,7 @@ impl Cmd {
             let (_, first) = reports.first().context("no log given")?;
             let page =
                 html::render(first).map_err(|e| anyhow::anyhow!("cannot draw the plots: {e}"))?;
-            std::fs::write(path, page)
-                .with_context(|| format!("cannot write {}", path.display()))?;
+            crate::files::write_atomic(path, page.as_bytes())?;
             eprintln!("wrote {}", path.display());
         }
         // Written with errors returned, so a reader that closes the pipe

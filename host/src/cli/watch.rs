@@ -5,7 +5,7 @@ use std::path::PathBuf;
 use std::sync::atomic::Ordering;
 use std::time::{Duration, Instant};
 
-use anyhow::{Context, Result};
+use anyhow::Result;
 use clap::Args;
 
 use crate::failure::FailedAs;
@@ -26,7 +26,7 @@ pub struct Cmd {
     /// The port and line rate.
     #[command(flatten)]
     pub link: super::PortArgs,
-    /// Replay a recorded log instead of a port.
+    /// Replay a recorded log instead of a port (`-`: standard input).
     #[arg(long, conflicts_with = "port_arg")]
     pub replay: Option<PathBuf>,
     /// Replay speed: this many times faster than the node's own clock ran (a
@@ -121,9 +121,7 @@ pub fn replay(
     stop: &std::sync::atomic::AtomicBool,
     observer: &mut dyn PortObserver,
 ) -> Result<()> {
-    let file =
-        std::fs::File::open(path).with_context(|| format!("cannot open log {}", path.display()))?;
-    let mut reader = LogReader::new(file);
+    let mut reader = LogReader::new(crate::files::open_input(path, "log")?.reader);
     let mut tracker = LinkTracker::new();
     let started = Instant::now();
     let mut clock = ReplayClock::default();
