@@ -1,6 +1,5 @@
 //! `gleaner demo`: the whole path with no hardware.
 
-use std::io::IsTerminal;
 use std::path::PathBuf;
 use std::sync::atomic::Ordering;
 use std::time::Duration;
@@ -67,14 +66,7 @@ impl Cmd {
         )?;
 
         let stop = super::stop_flag()?;
-        let screen = !self.plain && std::io::stdout().is_terminal();
-        let display = if screen {
-            Display::Screen(ratatui::init())
-        } else {
-            Display::Plain {
-                every: Some(Duration::from_secs(2)),
-            }
-        };
+        let display = Display::choose(self.plain, Some(Duration::from_secs(2)));
         let port_ref = &port;
         let mut observer = LiveObserver::new(
             display,

@@ -1,6 +1,5 @@
 //! `gleaner watch`: the live view of a port or a recording.
 
-use std::io::IsTerminal;
 use std::path::PathBuf;
 use std::sync::atomic::Ordering;
 use std::time::{Duration, Instant};
@@ -45,12 +44,8 @@ pub struct Cmd {
 impl Cmd {
     /// Runs the command.
     pub fn run(self) -> Result<()> {
-        let screen = !self.plain && std::io::stdout().is_terminal();
-        let display = if screen {
-            Display::Screen(ratatui::init())
-        } else {
-            Display::Plain { every: None }
-        };
+        let display = Display::choose(self.plain, None);
+        let screen = matches!(display, Display::Screen { .. });
         let stop = super::stop_flag()?;
         if let Some(log) = &self.replay {
             let mut observer = LiveObserver::new(

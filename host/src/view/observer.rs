@@ -18,9 +18,44 @@ pub enum Display {
         every: Option<Duration>,
     },
     /// Full screen.
-    Screen(DefaultTerminal),
+    Screen {
+        /// The terminal, in full-screen mode.
+        terminal: DefaultTerminal,
+        /// False when the user asked for no colour (`NO_COLOR`).
+        colour: bool,
+    },
     /// Nothing (tests, headless recording with its own status).
     Silent,
+}
+
+impl Display {
+    /// The full screen when standard output is a terminal that can draw it
+    /// and `plain` was not asked for, in colour unless `NO_COLOR` is set
+    /// (no-color.org); plain lines (at most one per `every`) otherwise.
+    pub fn choose(plain: bool, every: Option<Duration>) -> Self {
+        use std::io::IsTerminal;
+        let term = std::env::var("TERM").ok();
+        if full_screen_possible(plain, std::io::stdout().is_terminal(), term.as_deref()) {
+            Display::Screen {
+                terminal: ratatui::init(),
+                colour: colour_allowed(std::env::var_os("NO_COLOR").as_deref()),
+            }
+        } else {
+            Display::Plain { every }
+        }
+    }
+}
+
+/// Whether to draw the full screen: not asked for plain lines, writing to a
+/// terminal, and the terminal is not a dumb one (`TERM=dumb`: an editor's
+/// shell buffer, a serial console) that cannot move the cursor.
+pub fn full_screen_possible(plain: bool, is_terminal: bool, term: Option<&str>) -> bool {
+    !plain && is_terminal && term != Some("dumb")
+}
+
+/// Colour unless `NO_COLOR` is set to something non-empty (no-color.org).
+pub fn colour_allowed(no_color: Option<&std::ffi::OsStr>) -> bool {
+    no_color.is_none_or(|value| value.is_empty())
 }
 
 /// Decides from the link counters and the time without data whether to stop.
@@ -59,7 +94,7 @@ impl<'a> LiveObserver<'a> {
 
     /// Restores the terminal if the full screen was used.
     pub fn close(&mut self) {
-        if matches!(self.display, Display::Screen(_)) {
+        if matches!(self.display, Display::Screen { .. }) {
             ratatui::restore();
             self.display = Display::Silent;
         }
@@ -110,10 +145,15 @@ impl PortObserver for LiveObserver<'_> {
 
     fn tick(&mut self, stats: &LinkStats, idle_for: Duration) -> bool {
         self.state.link = *stats;
-        if let Display::Screen(terminal) = &mut self.display {
+        if let Display::Screen { terminal, colour } = &mut self.display {
             if self.last_draw.elapsed() >= Duration::from_millis(100) {
-                let (state, title) = (&self.state, &self.title);
-                let _ = terminal.draw(|f| tui::draw(f, state, title));
+                let (state, title, colour) = (&self.state, &self.title, *colour);
+                let _ = terminal.draw(|f| {
+                    tui::draw(f, state, title);
+                    if !colour {
+                        tui::without_colour(f.buffer_mut());
+                    }
+                });
                 self.last_draw = Instant::now();
             }
             if tui::quit_requested(Duration::ZERO) {
@@ -125,7 +165,7 @@ impl PortObserver for LiveObserver<'_> {
     }
 
     fn link_changed(&mut self, connected: bool, detail: &str) {
-        if !matches!(self.display, Display::Screen(_) | Display::Silent) {
+        if !matches!(self.display, Display::Screen { .. } | Display::Silent) {
             let _ = writeln!(
                 self.out,
                 "{} {detail}",
@@ -136,5 +176,28 @@ impl PortObserver for LiveObserver<'_> {
                 }
             );
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn full_screen_only_on_a_terminal_that_can_draw_it() {
+        assert!(full_screen_possible(false, true, Some("xterm-256color")));
+        assert!(full_screen_possible(false, true, None));
+        assert!(!full_screen_possible(false, true, Some("dumb")));
+        assert!(!full_screen_possible(false, false, Some("xterm")));
+        assert!(!full_screen_possible(true, true, Some("xterm")));
+    }
+
+    #[test]
+    fn no_color_set_to_anything_but_empty_turns_colour_off() {
+        use std::ffi::OsStr;
+        assert!(colour_allowed(None));
+        assert!(colour_allowed(Some(OsStr::new(""))));
+        assert!(!colour_allowed(Some(OsStr::new("1"))));
+        assert!(!colour_allowed(Some(OsStr::new("yes"))));
     }
 }

@@ -24,6 +24,15 @@ fn state_colour(name: &str) -> Color {
     }
 }
 
+/// Takes the colours out of a drawn screen, keeping bold and the like, for
+/// users who asked for none (`NO_COLOR`).
+pub fn without_colour(buffer: &mut ratatui::buffer::Buffer) {
+    for cell in &mut buffer.content {
+        cell.set_fg(Color::Reset);
+        cell.set_bg(Color::Reset);
+    }
+}
+
 fn volts(uv: u32) -> String {
     format!("{:.3} V", f64::from(uv) / 1e6)
 }
@@ -336,6 +345,30 @@ mod tests {
         assert_eq!(state.total_efficiency(), None);
         let screen = screen_of(&state);
         assert!(!screen.contains("200.0"), "{screen}");
+    }
+
+    #[test]
+    fn no_colour_leaves_the_text_and_drops_every_colour() {
+        let state = state_after(report());
+        let mut terminal = Terminal::new(TestBackend::new(140, 30)).unwrap();
+        terminal.draw(|f| draw(f, &state, "virtual node")).unwrap();
+        let coloured = terminal.backend().buffer().clone();
+        assert!(coloured.content.iter().any(|c| c.fg == Color::Yellow), "sagging is yellow");
+        terminal
+            .draw(|f| {
+                draw(f, &state, "virtual node");
+                without_colour(f.buffer_mut());
+            })
+            .unwrap();
+        let plain = terminal.backend().buffer();
+        assert!(plain
+            .content
+            .iter()
+            .all(|c| c.fg == Color::Reset && c.bg == Color::Reset));
+        let text = |b: &ratatui::buffer::Buffer| -> String {
+            b.content.iter().map(|c| c.symbol()).collect()
+        };
+        assert_eq!(text(plain), text(&coloured));
     }
 
     #[test]
