@@ -55,8 +55,10 @@ pub struct NodeSettings {
     /// The node's name (letters, digits, space and - _ . :).
     pub name: Option<String>,
     /// The front-end, from which the calibration is computed.
+    #[serde(skip_serializing_if = "Option::is_none")]
     pub front_end: Option<FrontEndParams>,
     /// Two-point corrections of the node's present calibration, per channel.
+    #[serde(skip_serializing_if = "Option::is_none")]
     pub two_point: Option<TwoPointTrims>,
 }
 
@@ -163,6 +165,36 @@ fn seconds_to_ms(field: &str, s: f64) -> Result<u32> {
 }
 
 impl NodeSettings {
+    /// The settings a configuration holds, in people's units (every field but
+    /// the calibration's, which stays as the node reports it): what
+    /// `gleaner node info --json` shows, and what [`NodeSettings::apply`]
+    /// turns back into the same configuration.
+    pub fn from_config(c: &NodeConfig) -> Self {
+        let t = &c.thresholds;
+        let v = |uv: u32| Some(f64::from(uv) / 1e6);
+        let s = |ms: u32| Some(f64::from(ms) / 1e3);
+        NodeSettings {
+            report_interval_ms: Some(c.report_interval_ms),
+            start_v: v(t.start_uv),
+            stop_v: v(t.hold_uv),
+            warning_band_v: v(t.sag_margin_uv),
+            output_good_v: v(t.output_up_uv),
+            output_lost_v: v(t.output_down_uv),
+            debounce_ms: Some(t.debounce_ms),
+            cold_start_timeout_s: s(t.cold_start_timeout_ms),
+            forecast_horizon_s: s(t.forecast_horizon_ms),
+            input_floor_ua: Some(f64::from(t.input_idle_na) / 1e3),
+            output_storage_uf: Some(c.output_storage_uf),
+            load_restore_s: s(c.load_restore_ms),
+            load_min_v: v(t.load_min_uv),
+            load_restart_v: v(t.load_restart_uv),
+            brownout_horizon_s: s(t.brownout_horizon_ms),
+            name: Some(c.name.as_str().to_owned()),
+            front_end: None,
+            two_point: None,
+        }
+    }
+
     /// Reads settings from TOML text; errors name the field and line.
     pub fn from_toml(text: &str) -> Result<Self> {
         toml::from_str(text).context("invalid node settings")
@@ -278,6 +310,20 @@ impl NodeSettings {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn a_configuration_read_as_settings_applies_back_to_itself() {
+        let mut config = gleaner_firmware::config::default_config();
+        config.thresholds.hold_uv = 312_345;
+        config.thresholds.input_idle_na = 1_234;
+        config.load_restore_ms = 90_500;
+        config.name = gleaner_protocol::NodeName::try_from("greenhouse 3").unwrap();
+        let settings = NodeSettings::from_config(&config);
+        assert_eq!(settings.stop_v, Some(0.312345));
+        assert_eq!(settings.load_restore_s, Some(90.5));
+        let other = gleaner_firmware::config::default_config();
+        assert_eq!(settings.apply(&other).unwrap(), config);
+    }
     use gleaner_firmware::config::default_config;
 
     #[test]

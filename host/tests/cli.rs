@@ -674,3 +674,42 @@ fn a_dash_reads_standard_input_and_writes_standard_output() {
     assert!(!ok);
     assert!(err.contains("Parquet goes to files"), "{err}");
 }
+
+#[test]
+fn tables_and_answers_come_as_json_for_scripts() {
+    let (ok, list, _) = run(&["sim", "list", "--json"]);
+    assert!(ok);
+    let list: serde_json::Value = serde_json::from_str(&list).unwrap();
+    let names: Vec<&str> = list
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|s| s["name"].as_str().unwrap())
+        .collect();
+    assert!(names.contains(&"greenhouse-day"), "{names:?}");
+    let served = Served::start("stalled-converter");
+    let node = |args: &[&str]| {
+        let mut all = vec!["node", "-p", served.path.as_str(), "--json"];
+        all.extend(args);
+        let (ok, out, err) = run(&all);
+        assert!(ok, "{args:?}: {err}");
+        serde_json::from_str::<serde_json::Value>(&out).unwrap()
+    };
+    let ping = node(&["ping"]);
+    assert_eq!(ping["answered"], true);
+    assert!(ping["round_trip_ms"].as_f64().unwrap() > 0.0);
+    let info = node(&["info"]);
+    assert_eq!(info["schema"], "gleaner.node-info.v1");
+    assert_eq!(info["node_id"].as_str().unwrap().len(), 16);
+    // The settings are a settings file's keys: sent back, the node takes them
+    // and reports the same configuration.
+    let settings = info["settings"].as_object().unwrap();
+    assert!(settings["stop_v"].as_f64().unwrap() > 0.0, "{info}");
+    let file = tempfile::NamedTempFile::new().unwrap();
+    let as_toml: toml::Table =
+        serde_json::from_value(serde_json::Value::Object(settings.clone())).unwrap();
+    std::fs::write(file.path(), toml::to_string(&as_toml).unwrap()).unwrap();
+    let set = node(&["set-config", "--file", file.path().to_str().unwrap()]);
+    assert_eq!(set["accepted"], true);
+    assert_eq!(node(&["info"])["settings"], info["settings"]);
+}

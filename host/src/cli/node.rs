@@ -24,9 +24,55 @@ pub struct Cmd {
     /// How long to wait for the node's answer (seconds, or with a unit: 500ms, 10s).
     #[arg(long, default_value = "3", value_parser = super::parse_seconds)]
     pub timeout: f64,
+    /// Print JSON instead of text (ping, info, set-config, reset-energy).
+    #[arg(long)]
+    pub json: bool,
     /// What to ask.
     #[command(subcommand)]
     pub action: Action,
+}
+
+/// What `gleaner node info --json` prints (schema `gleaner.node-info.v1`).
+#[derive(Debug, serde::Serialize)]
+pub struct NodeInfo {
+    /// Always `gleaner.node-info.v1`.
+    pub schema: &'static str,
+    /// The node's stable id, 16 hex digits (0: unknown).
+    pub node_id: String,
+    /// Firmware version.
+    pub firmware: String,
+    /// Protocol version.
+    pub protocol: String,
+    /// This boot's id, 8 hex digits.
+    pub boot_id: String,
+    /// Time between samples, µs.
+    pub sample_period_us: u32,
+    /// Where the configuration came from: defaults, stored or received.
+    pub config_source: String,
+    /// The configuration, with the keys of a settings file.
+    pub settings: NodeSettings,
+    /// The calibration, as the node holds it.
+    pub calibration: gleaner_protocol::Calibration,
+    /// Totals since boot or the last reset.
+    pub totals: gleaner_protocol::EnergyTotals,
+}
+
+impl NodeInfo {
+    /// The node's `Hello`, for scripts.
+    pub fn from_hello(h: &Hello) -> Self {
+        NodeInfo {
+            schema: "gleaner.node-info.v1",
+            node_id: format!("{:016x}", h.node_id),
+            firmware: h.firmware.to_string(),
+            protocol: h.protocol.to_string(),
+            boot_id: format!("{:08x}", h.boot_id),
+            sample_period_us: h.sample_period_us,
+            config_source: format!("{:?}", h.config_source).to_lowercase(),
+            settings: NodeSettings::from_config(&h.config),
+            calibration: h.config.calibration,
+            totals: h.totals,
+        }
+    }
 }
 
 /// What to ask the node.
@@ -227,14 +273,23 @@ impl Cmd {
             Action::Ping => {
                 let started = Instant::now();
                 explain(session.request(Command::Ping, Duration::ZERO)?)?;
-                say!("pong in {:.1} ms", started.elapsed().as_secs_f64() * 1e3)?;
+                let round_trip_ms = started.elapsed().as_secs_f64() * 1e3;
+                if self.json {
+                    say!("{}", serde_json::json!({ "answered": true, "round_trip_ms": round_trip_ms }))?;
+                } else {
+                    say!("pong in {round_trip_ms:.1} ms")?;
+                }
             }
             Action::Info => {
                 explain(session.request(Command::GetInfo, Duration::ZERO)?)?;
                 let hello = session
                     .hello
                     .context("the node accepted but sent no Hello")?;
-                print_hello(&hello)?;
+                if self.json {
+                    say!("{}", serde_json::to_string_pretty(&NodeInfo::from_hello(&hello))?)?;
+                } else {
+                    print_hello(&hello)?;
+                }
             }
             Action::SetConfig(set) => {
                 let settings = set.settings()?;
@@ -246,12 +301,20 @@ impl Cmd {
                     .config
                     .clone();
                 let config = settings.apply(&current)?;
-                explain(session.request(Command::SetConfig(config), Duration::ZERO)?)?;
-                say!("configuration accepted and stored")?;
+                explain(session.request(Command::SetConfig(config.clone()), Duration::ZERO)?)?;
+                if self.json {
+                    say!("{}", serde_json::json!({ "accepted": true, "settings": NodeSettings::from_config(&config) }))?;
+                } else {
+                    say!("configuration accepted and stored")?;
+                }
             }
             Action::ResetEnergy => {
                 explain(session.request(Command::ResetEnergy, Duration::ZERO)?)?;
-                say!("energy totals reset")?;
+                if self.json {
+                    say!("{}", serde_json::json!({ "accepted": true }))?;
+                } else {
+                    say!("energy totals reset")?;
+                }
             }
             Action::Burst { samples, out } => {
                 let period_s = session
@@ -293,6 +356,15 @@ impl Cmd {
 /// Prints a `Hello` for people.
 pub fn print_hello(h: &Hello) -> std::io::Result<()> {
     let t = &h.config.thresholds;
+    say!(
+        "node {:016x}{}",
+        h.node_id,
+        if h.config.name.is_empty() {
+            String::new()
+        } else {
+            format!(" '{}'", h.config.name)
+        }
+    )?;
     say!(
         "firmware {}  protocol {}  boot id {:08x}  sample period {} µs",
         h.firmware,

@@ -25,7 +25,11 @@ pub struct Cmd {
 #[derive(Debug, Subcommand)]
 pub enum Action {
     /// List the built-in scenarios.
-    List,
+    List {
+        /// Print JSON instead of a table.
+        #[arg(long)]
+        json: bool,
+    },
     /// Print a scenario's TOML (a starting point for your own).
     Show {
         /// Built-in name or file.
@@ -224,10 +228,21 @@ impl Cmd {
     /// Runs the command.
     pub fn run(self) -> Result<()> {
         match self.action {
-            Action::List => {
+            Action::List { json } => {
+                let mut all = Vec::new();
                 for (name, _) in BUILTIN {
                     let s = Scenario::builtin(name)?;
-                    say!("{name:<20} {:>5.1} h  {}", s.duration_h, s.description)?;
+                    if !json {
+                        say!("{name:<20} {:>5.1} h  {}", s.duration_h, s.description)?;
+                    }
+                    all.push(serde_json::json!({
+                        "name": name,
+                        "duration_h": s.duration_h,
+                        "description": s.description,
+                    }));
+                }
+                if json {
+                    say!("{}", serde_json::to_string_pretty(&all)?)?;
                 }
             }
             Action::Show { scenario } => match BUILTIN.iter().find(|(n, _)| *n == scenario) {
