@@ -12,6 +12,7 @@ use gleaner_protocol::UplinkBody;
 
 use crate::files::{open_input, AtomicFile, Input};
 use crate::link::LinkTracker;
+use indicatif::ProgressBar;
 use crate::log::{LogReader, RecordBody};
 
 /// Column names of the reports file.
@@ -64,14 +65,15 @@ fn refuse_non_log<R: std::io::Read>(reader: &LogReader<R>, name: &str) -> Result
 }
 
 /// Writes `PREFIX-reports.csv` and `PREFIX-events.csv` from the log at `log`
-/// (`-`: standard input); each file appears only once complete.
-pub fn export_csv(log: &Path, prefix: &Path) -> Result<Exported> {
+/// (`-`: standard input), advancing `progress` by the bytes read; each file
+/// appears only once complete.
+pub fn export_csv(log: &Path, prefix: &Path, progress: &ProgressBar) -> Result<Exported> {
     let input = open_input(log, "log")?;
     let reports_path = suffixed(prefix, "-reports.csv");
     let events_path = suffixed(prefix, "-events.csv");
     let mut reports_out = std::io::BufWriter::new(AtomicFile::create(&reports_path)?);
     let mut events_out = std::io::BufWriter::new(AtomicFile::create(&events_path)?);
-    let (reports, events) = write_csv(input, &mut reports_out, &mut events_out)?;
+    let (reports, events) = write_csv(input, &mut reports_out, &mut events_out, progress)?;
     for (out, path) in [(reports_out, &reports_path), (events_out, &events_path)] {
         out.into_inner()
             .map_err(|e| e.into_error())
@@ -87,11 +89,13 @@ pub fn export_csv(log: &Path, prefix: &Path) -> Result<Exported> {
 }
 
 /// Writes the reports table and the events table of the log read from
-/// `input` as CSV; returns their row counts.
+/// `input` as CSV, advancing `progress` by the bytes read; returns their row
+/// counts.
 pub fn write_csv(
     input: Input,
     reports_out: &mut dyn Write,
     events_out: &mut dyn Write,
+    progress: &ProgressBar,
 ) -> Result<(u64, u64)> {
     let (file, name) = (input.reader, input.name);
     writeln!(reports_out, "{REPORT_COLUMNS}")?;
@@ -99,7 +103,12 @@ pub fn write_csv(
     let mut tracker = LinkTracker::new();
     let (mut reports, mut events) = (0, 0);
     let mut reader = LogReader::new(file);
-    for record in reader.by_ref() {
+    let mut records = 0u64;
+    while let Some(record) = reader.next() {
+        records += 1;
+        if records % crate::progress::RECORDS_PER_UPDATE == 0 {
+            progress.set_position(reader.offset());
+        }
         let RecordBody::Frame(bytes) = &record.body else {
             continue;
         };
@@ -360,8 +369,13 @@ fn event_schema() -> arrow_schema::SchemaRef {
 }
 
 /// Writes `PREFIX-reports.parquet` and `PREFIX-events.parquet` from the log at
-/// `log`, streaming in row groups of 65,536 rows.
-pub fn export_parquet(log: &Path, prefix: &Path) -> Result<ExportedParquet> {
+/// `log`, streaming in row groups of 65,536 rows, advancing `progress` by
+/// the bytes read; each file appears only once complete.
+pub fn export_parquet(
+    log: &Path,
+    prefix: &Path,
+    progress: &ProgressBar,
+) -> Result<ExportedParquet> {
     use arrow_array::*;
     use parquet::arrow::ArrowWriter;
     use std::sync::Arc;
@@ -379,7 +393,12 @@ pub fn export_parquet(log: &Path, prefix: &Path) -> Result<ExportedParquet> {
     let mut tracker = LinkTracker::new();
     let (mut n_reports, mut n_events) = (0u64, 0u64);
     let mut reader = LogReader::new(file);
-    for mut record in reader.by_ref() {
+    let mut records = 0u64;
+    while let Some(mut record) = reader.next() {
+        records += 1;
+        if records % crate::progress::RECORDS_PER_UPDATE == 0 {
+            progress.set_position(reader.offset());
+        }
         let host = record.host_time_us;
         let RecordBody::Frame(bytes) = &mut record.body else {
             continue;

@@ -45,6 +45,7 @@ pub mod failure;
 pub mod files;
 pub mod link;
 pub mod log;
+pub mod progress;
 pub mod recorder;
 pub mod settings;
 pub mod sim;

@@ -713,3 +713,19 @@ fn tables_and_answers_come_as_json_for_scripts() {
     assert_eq!(set["accepted"], true);
     assert_eq!(node(&["info"])["settings"], info["settings"]);
 }
+
+#[test]
+fn long_jobs_print_no_progress_when_stderr_is_not_a_terminal() {
+    // A log big enough for a bar (over 16 MiB), read with stderr piped.
+    let dir = tempfile::tempdir().unwrap();
+    let log = synthetic_log(dir.path(), "big.gleanlog", "3");
+    assert!(std::fs::metadata(&log).unwrap().len() > 16 * 1024 * 1024);
+    for args in [
+        vec!["report", log.to_str().unwrap()],
+        vec!["export", log.to_str().unwrap()],
+    ] {
+        let (ok, _, err) = run(&args);
+        assert!(ok, "{args:?}: {err}");
+        assert_eq!(err, "", "{args:?}");
+    }
+}

@@ -17,7 +17,7 @@ fn simulated(
     dir: &std::path::Path,
 ) -> (std::path::PathBuf, RunReport, gleaner::sim::GroundTruth) {
     let log = dir.join("sim.gleanlog");
-    let truth = simulate_to_log(s, 11, &log, 1_700_000_000_000_000).unwrap();
+    let truth = simulate_to_log(s, 11, &log, 1_700_000_000_000_000, &gleaner::progress::none()).unwrap();
     let report = analyze_file(&log).unwrap();
     (log, report, truth)
 }
@@ -103,7 +103,7 @@ fn the_html_page_has_one_valid_svg_per_plot() {
 fn csv_export_reproduces_the_report_totals() {
     let dir = tempfile::tempdir().unwrap();
     let (log, report, _) = simulated(scenario("boiler-pipe", Some(3.0)), dir.path());
-    let done = export_csv(&log, &dir.path().join("out")).unwrap();
+    let done = export_csv(&log, &dir.path().join("out"), &gleaner::progress::none()).unwrap();
     let text = std::fs::read_to_string(&done.reports_path).unwrap();
     let mut lines = text.lines();
     let header: Vec<&str> = lines.next().unwrap().split(',').collect();
@@ -173,7 +173,7 @@ fn parquet_export_reads_back_with_the_report_totals() {
     use arrow_array::{Array, StringArray, UInt32Array, UInt64Array};
     let dir = tempfile::tempdir().unwrap();
     let (log, report, _) = simulated(scenario("boiler-pipe", Some(3.0)), dir.path());
-    let done = gleaner::export::export_parquet(&log, &dir.path().join("out")).unwrap();
+    let done = gleaner::export::export_parquet(&log, &dir.path().join("out"), &gleaner::progress::none()).unwrap();
     let file = std::fs::File::open(&done.reports_path).unwrap();
     let reader = parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder::try_new(file)
         .unwrap()

@@ -752,26 +752,28 @@ impl Analyzer {
 
 /// Analyses a log file (`-`: standard input), streaming.
 pub fn analyze_file(path: &std::path::Path) -> anyhow::Result<RunReport> {
-    use std::io::IsTerminal;
+    analyze_file_with(path, &crate::progress::none())
+}
+
+/// As [`analyze_file`], advancing `progress` by the bytes read.
+pub fn analyze_file_with(
+    path: &std::path::Path,
+    progress: &indicatif::ProgressBar,
+) -> anyhow::Result<RunReport> {
     let input = crate::files::open_input(path, "log")?;
     let size = input.size.unwrap_or(0);
     let name = input.name;
-    // A progress line on long work, only when someone watches stderr.
-    let show_progress = size > 16 * 1024 * 1024 && std::io::stderr().is_terminal();
     let mut reader = crate::log::LogReader::new(input.reader);
     let mut analyzer = Analyzer::new();
-    let mut last_shown = std::time::Instant::now();
+    let (start, mut records) = (progress.position(), 0u64);
     while let Some(record) = reader.next() {
         analyzer.add_record_owned(record);
-        if show_progress && last_shown.elapsed() >= std::time::Duration::from_millis(250) {
-            last_shown = std::time::Instant::now();
-            let percent = reader.offset() as f64 * 100.0 / size as f64;
-            eprint!("\rreading {name}: {percent:.0} %");
+        records += 1;
+        if records % crate::progress::RECORDS_PER_UPDATE == 0 {
+            progress.set_position(start + reader.offset());
         }
     }
-    if show_progress {
-        eprint!("\r{:width$}\r", "", width = name.len() + 20);
-    }
+    progress.set_position(start + reader.offset());
     if let Some(err) = reader.take_io_error() {
         analyzer.warn(format!("reading stopped early: {err}"));
     }

@@ -50,8 +50,11 @@ impl Cmd {
             )
             .failed_as(Failure::Usage));
         }
+        let total = crate::progress::total_size([self.log.as_path()]);
+        let progress = crate::progress::bytes(total, &format!("exporting {}", self.log.display()));
         if self.parquet {
-            let done = crate::export::export_parquet(&self.log, &prefix)?;
+            let done = crate::export::export_parquet(&self.log, &prefix, &progress)?;
+            progress.finish_and_clear();
             say!(
                 "{} reports to {}",
                 done.reports,
@@ -60,7 +63,8 @@ impl Cmd {
             say!("{} events to {}", done.events, done.events_path.display())?;
             return Ok(());
         }
-        let done = export_csv(&self.log, &prefix)?;
+        let done = export_csv(&self.log, &prefix, &progress)?;
+        progress.finish_and_clear();
         say!(
             "{} reports to {}",
             done.reports,
@@ -83,9 +87,9 @@ impl Cmd {
         let mut out = std::io::BufWriter::new(stdout.lock());
         let mut sink = std::io::sink();
         if self.events {
-            write_csv(input, &mut sink, &mut out)?;
+            write_csv(input, &mut sink, &mut out, &crate::progress::none())?;
         } else {
-            write_csv(input, &mut out, &mut sink)?;
+            write_csv(input, &mut out, &mut sink, &crate::progress::none())?;
         }
         use std::io::Write as _;
         out.flush()?;

@@ -167,6 +167,8 @@ pub struct Session {
     pub hello: Option<Hello>,
     /// Burst samples received, by index.
     pub samples: Vec<(u32, Sample, u32)>,
+    /// Advanced by the burst samples received.
+    pub progress: indicatif::ProgressBar,
 }
 
 impl Session {
@@ -181,6 +183,7 @@ impl Session {
             timeout,
             hello: None,
             samples: Vec::new(),
+            progress: crate::progress::none(),
         })
     }
 
@@ -222,6 +225,7 @@ impl Session {
                             self.samples
                                 .push((block.first_index + i as u32, *s, block.period_us));
                         }
+                        self.progress.set_position(self.samples.len() as u64);
                         if block.remaining == 0 && outcome.is_some() {
                             return Ok(outcome.unwrap_or(Outcome::Accepted));
                         }
@@ -323,7 +327,11 @@ impl Cmd {
                     .map_or(0.01, |h| f64::from(h.sample_period_us) / 1e6);
                 let extra =
                     Duration::from_secs_f64(f64::from(samples) * period_s.max(0.001) * 2.0 + 1.0);
-                explain(session.request(Command::StartBurst { samples }, extra)?)?;
+                session.progress =
+                    crate::progress::steps(u64::from(samples), "burst", "samples");
+                let answer = session.request(Command::StartBurst { samples }, extra);
+                session.progress.finish_and_clear();
+                explain(answer?)?;
                 let mut csv = Vec::new();
                 writeln!(csv, "index,time_us,input_uv,input_na,output_uv,output_na")?;
                 for (i, s, period) in &session.samples {

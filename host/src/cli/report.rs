@@ -6,7 +6,7 @@ use std::path::PathBuf;
 use anyhow::{Context, Result};
 use clap::Args;
 
-use crate::analysis::{analyze_file, html, text, RunReport};
+use crate::analysis::{analyze_file_with, html, text, RunReport};
 use crate::failure::{FailedAs, Failure};
 
 /// Report on one or more recorded runs: duration and coverage, time in each
@@ -37,12 +37,19 @@ impl Cmd {
         }
         let mut reports: Vec<(PathBuf, RunReport)> = Vec::new();
         let mut failed = Vec::new();
+        let total = crate::progress::total_size(self.logs.iter().map(PathBuf::as_path));
+        let what = match self.logs.as_slice() {
+            [one] => format!("reading {}", one.display()),
+            many => format!("reading {} logs", many.len()),
+        };
+        let progress = crate::progress::bytes(total, &what);
         for log in &self.logs {
-            match analyze_file(log) {
+            match analyze_file_with(log, &progress) {
                 Ok(report) => reports.push((log.clone(), report)),
                 Err(err) => failed.push(format!("{err:#}")),
             }
         }
+        progress.finish_and_clear();
         if reports.is_empty() {
             return Err(anyhow::anyhow!("{}", failed.join("; ")).failed_as(Failure::BadInput));
         }

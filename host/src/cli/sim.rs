@@ -284,13 +284,21 @@ impl Cmd {
                 let mut writer = std::io::BufWriter::new(file);
                 let mut log =
                     crate::sim::synthetic::SyntheticLog::new((days * 86_400.0) as u64, interval_s);
-                let bytes = std::io::copy(&mut log, &mut writer)?;
+                let progress = crate::progress::counting_bytes(&format!("writing {}", out.display()));
+                let bytes = std::io::copy(&mut progress.wrap_read(&mut log), &mut writer)?;
+                progress.finish_and_clear();
                 std::io::Write::flush(&mut writer)?;
                 say!("{bytes} bytes to {}", out.display())?;
             }
             Action::Run { scenario, out } => {
                 let scenario = Scenario::load(&scenario)?;
-                simulate_to_log(scenario, 1, &out, crate::log::now_us())?;
+                let progress = crate::progress::steps(
+                    scenario.duration_s() as u64,
+                    &format!("simulating {}", scenario.name),
+                    "simulated s",
+                );
+                simulate_to_log(scenario, 1, &out, crate::log::now_us(), &progress)?;
+                progress.finish_and_clear();
                 say!("simulated to {}", out.display())?;
             }
             Action::Serve(serve) => serve.run()?,

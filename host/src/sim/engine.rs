@@ -197,6 +197,7 @@ pub fn simulate_to_log(
     boot_id: u32,
     path: &std::path::Path,
     start_us: u64,
+    progress: &indicatif::ProgressBar,
 ) -> Result<GroundTruth> {
     use crate::log::{LogWriter, MarkerKind};
     let source = format!("virtual node '{}' (simulated host times)", scenario.name);
@@ -204,10 +205,15 @@ pub fn simulate_to_log(
     writer.append_marker(start_us, MarkerKind::PortOpened, "simulated")?;
     let mut node = VirtualNode::new(scenario, boot_id)?;
     let mut bytes = Vec::new();
+    let mut steps = 0u64;
     while !node.finished() {
         node.step();
         node.drain_frames(&mut bytes);
         let t = start_us + node.now_us();
+        steps += 1;
+        if steps % crate::progress::RECORDS_PER_UPDATE == 0 {
+            progress.set_position(node.now_us() / 1_000_000);
+        }
         for frame in bytes.split(|&b| b == 0).filter(|f| !f.is_empty()) {
             writer.append_frame(t, frame)?;
         }
