@@ -1,19 +1,13 @@
 //! `gleaner demo`: the whole path with no hardware.
 
 use std::path::PathBuf;
-use std::sync::atomic::Ordering;
-use std::time::Duration;
 
 use anyhow::Result;
 use clap::Args;
 
 use crate::analysis::{analyze_file, html, text};
-use crate::link::DEFAULT_BAUD;
-use crate::recorder::{run_port, Recorder};
-use crate::sim::port::VirtualPort;
 use crate::sim::scenario::DEFAULT_SCENARIO;
-use crate::sim::{Scenario, VirtualNode};
-use crate::view::observer::{Display, LiveObserver};
+use crate::sim::{GroundTruth, Scenario};
 
 /// Run a scenario on a virtual node, record it through a pseudo-terminal
 /// exactly as from a real port, show it live, and report on the recording.
@@ -51,50 +45,9 @@ impl Cmd {
             .duration_since(std::time::UNIX_EPOCH)
             .map(|d| d.subsec_nanos())
             .unwrap_or(1);
-        let node = VirtualNode::new(scenario, boot_id)?;
-        let port = VirtualPort::spawn(node, Some(speed))?;
         let dir = crate::user_config::UserConfig::load()?.runs_dir(self.dir.clone());
         let log_path = super::new_log_path(&dir, &name);
-        let mut recorder = Recorder::create(
-            &log_path,
-            &format!("virtual node '{name}' on {}", port.path()),
-        )?;
-        say!(
-            "  virtual node on {}; recording to {}",
-            port.path(),
-            log_path.display()
-        )?;
-
-        let stop = super::stop_flag()?;
-        let display = Display::choose(self.plain, Some(Duration::from_secs(2)));
-        let port_ref = &port;
-        let mut observer = LiveObserver::new(
-            display,
-            &format!("virtual node: {name}"),
-            Box::new(std::io::stdout()),
-            Box::new(move |_, idle| port_ref.finished() && idle > Duration::from_millis(500)),
-        );
-        let result = run_port(
-            &mut recorder,
-            port.path(),
-            DEFAULT_BAUD,
-            &stop,
-            &mut observer,
-        );
-        observer.close();
-        let quit = observer.quit || stop.load(Ordering::Relaxed);
-        drop(observer);
-        recorder.finish()?;
-        result?;
-        let progress = port.progress();
-        let truth = port.stop()?;
-        if quit {
-            say!(
-                "stopped early at {:.1} of {:.1} simulated hours",
-                progress.simulated_s / 3600.0,
-                progress.total_s / 3600.0
-            )?;
-        }
+        let truth = self.record_live(scenario, boot_id, speed, &log_path)?;
 
         let report = analyze_file(&log_path)?;
         say!()?;
@@ -138,5 +91,97 @@ impl Cmd {
         )?;
         say!("      gleaner demo --scenario crate-beacon   (other scenarios: gleaner sim list)")?;
         Ok(())
+    }
+
+    /// Runs the virtual node on a pseudo-terminal, records it to `log_path`
+    /// exactly as from a real port and shows it live; returns the truth.
+    #[cfg(unix)]
+    fn record_live(
+        &self,
+        scenario: Scenario,
+        boot_id: u32,
+        speed: f64,
+        log_path: &std::path::Path,
+    ) -> Result<GroundTruth> {
+        use crate::link::DEFAULT_BAUD;
+        use crate::recorder::{run_port, Recorder};
+        use crate::sim::port::VirtualPort;
+        use crate::view::observer::{Display, LiveObserver};
+        use std::sync::atomic::Ordering;
+        use std::time::Duration;
+        let name = scenario.name.clone();
+        let node = crate::sim::VirtualNode::new(scenario, boot_id)?;
+        let port = VirtualPort::spawn(node, Some(speed))?;
+        let mut recorder = Recorder::create(
+            log_path,
+            &format!("virtual node '{name}' on {}", port.path()),
+        )?;
+        say!(
+            "  virtual node on {}; recording to {}",
+            port.path(),
+            log_path.display()
+        )?;
+
+        let stop = super::stop_flag()?;
+        let display = Display::choose(self.plain, Some(Duration::from_secs(2)));
+        let port_ref = &port;
+        let mut observer = LiveObserver::new(
+            display,
+            &format!("virtual node: {name}"),
+            Box::new(std::io::stdout()),
+            Box::new(move |_, idle| port_ref.finished() && idle > Duration::from_millis(500)),
+        );
+        let result = run_port(
+            &mut recorder,
+            port.path(),
+            DEFAULT_BAUD,
+            &stop,
+            &mut observer,
+        );
+        observer.close();
+        let quit = observer.quit || stop.load(Ordering::Relaxed);
+        drop(observer);
+        recorder.finish()?;
+        result?;
+        let progress = port.progress();
+        let truth = port.stop()?;
+        if quit {
+            say!(
+                "stopped early at {:.1} of {:.1} simulated hours",
+                progress.simulated_s / 3600.0,
+                progress.total_s / 3600.0
+            )?;
+        }
+        Ok(truth)
+    }
+
+    /// Without pseudo-terminals (Windows), the scenario is simulated straight
+    /// into the log, with no live view; the report is the same.
+    #[cfg(not(unix))]
+    fn record_live(
+        &self,
+        scenario: Scenario,
+        boot_id: u32,
+        _speed: f64,
+        log_path: &std::path::Path,
+    ) -> Result<GroundTruth> {
+        say!("  no pseudo-terminal here: simulating straight into {}", log_path.display())?;
+        if let Some(dir) = log_path.parent() {
+            std::fs::create_dir_all(dir)?;
+        }
+        let progress = crate::progress::steps(
+            scenario.duration_s() as u64,
+            &format!("simulating {}", scenario.name),
+            "simulated s",
+        );
+        let truth = crate::sim::engine::simulate_to_log(
+            scenario,
+            boot_id,
+            log_path,
+            crate::log::now_us(),
+            &progress,
+        )?;
+        progress.finish_and_clear();
+        Ok(truth)
     }
 }

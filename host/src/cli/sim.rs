@@ -1,5 +1,6 @@
 //! `gleaner sim`: scenarios and source curves of the virtual node.
 
+#[cfg(unix)]
 use std::io::Write;
 use std::path::PathBuf;
 
@@ -8,7 +9,6 @@ use clap::{Args, Subcommand};
 
 use crate::sim::engine::simulate_to_log;
 use crate::sim::numeric::golden_max;
-use crate::sim::port::{Unread, VirtualPort};
 use crate::sim::scenario::BUILTIN;
 use crate::sim::source::{Source, SourceParams};
 use crate::sim::Scenario;
@@ -103,7 +103,20 @@ pub struct Serve {
 
 impl Serve {
     /// Serves until SIGINT or SIGTERM.
+    #[cfg(not(unix))]
     fn run(self) -> Result<()> {
+        use crate::failure::FailedAs;
+        Err(anyhow::anyhow!(
+            "sim serve needs a pseudo-terminal, which this system does not have (Linux and macOS do); `gleaner sim run {} --out LOG` simulates the scenario into a log instead",
+            self.scenario
+        ))
+        .failed_as(crate::failure::Failure::Usage)
+    }
+
+    /// Serves until SIGINT or SIGTERM.
+    #[cfg(unix)]
+    fn run(self) -> Result<()> {
+        use crate::sim::port::{Unread, VirtualPort};
         if !(self.speed.is_finite() && self.speed > 0.0 && self.speed <= 1e6) {
             bail!(
                 "--speed must be above 0 and at most 1000000, got {}",

@@ -13,6 +13,7 @@ pub mod environment;
 pub mod harvest_eval;
 pub mod load;
 pub mod numeric;
+#[cfg(unix)]
 pub mod port;
 pub mod scenario;
 pub mod score;
