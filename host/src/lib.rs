@@ -49,5 +49,6 @@ pub mod progress;
 pub mod recorder;
 pub mod settings;
 pub mod sim;
+pub mod stream;
 pub mod user_config;
 pub mod view;

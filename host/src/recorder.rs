@@ -159,8 +159,8 @@ impl Recorder {
 
 /// What the port loop reports to its caller between reads.
 pub trait PortObserver {
-    /// A message arrived.
-    fn message(&mut self, tracked: &Tracked, stats: &LinkStats);
+    /// A message arrived; the recorder stamped its frame `host_time_us`.
+    fn message(&mut self, tracked: &Tracked, host_time_us: u64, stats: &LinkStats);
     /// Called after every read (or timeout): return true to stop.
     fn tick(&mut self, stats: &LinkStats, idle_for: Duration) -> bool;
     /// The port went away or came back.
@@ -212,9 +212,10 @@ pub fn run_port(
                 Ok(n) => {
                     last_data = Instant::now();
                     let mut messages = Vec::new();
-                    recorder.on_bytes(now_us(), &buf[..n], |t| messages.push(t.clone()))?;
+                    let host_time_us = now_us();
+                    recorder.on_bytes(host_time_us, &buf[..n], |t| messages.push(t.clone()))?;
                     for t in &messages {
-                        observer.message(t, recorder.stats());
+                        observer.message(t, host_time_us, recorder.stats());
                     }
                 }
                 Err(e)

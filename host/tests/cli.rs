@@ -729,3 +729,52 @@ fn long_jobs_print_no_progress_when_stderr_is_not_a_terminal() {
         assert_eq!(err, "", "{args:?}");
     }
 }
+
+#[test]
+fn the_live_stream_reads_in_python_while_the_virtual_node_runs() {
+    let python = reference_python();
+    assert!(python.exists(), "run `bash .ci/run` once for {python:?}");
+    let served = Served::start("greenhouse-day");
+    let dir = tempfile::tempdir().unwrap();
+    let log = dir.path().join("streamed.gleanlog");
+    let mut record = gleaner()
+        .args(["record", "-p", &served.path, "--duration", "3s", "--json-lines"])
+        .arg("--out")
+        .arg(&log)
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    let script =
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../tests/reference/stream_reader.py");
+    let read = Command::new(&python)
+        .arg(script)
+        .stdin(record.stdout.take().unwrap())
+        .output()
+        .unwrap();
+    let recorded = record.wait_with_output().unwrap();
+    assert!(
+        recorded.status.success(),
+        "{}",
+        String::from_utf8_lossy(&recorded.stderr)
+    );
+    assert!(read.status.success(), "{}", String::from_utf8_lossy(&read.stderr));
+    let seen: serde_json::Value = serde_json::from_slice(&read.stdout).unwrap();
+    let reports = seen["kinds"]["report"].as_u64().unwrap_or(0);
+    assert!(reports >= 2, "{seen}");
+    assert!(seen["kinds"]["hello"].as_u64().unwrap_or(0) >= 1, "{seen}");
+    assert_eq!(seen["seq_steps_ok"], true, "{seen}");
+    assert_eq!(seen["node_ids"].as_array().unwrap().len(), 1, "{seen}");
+    // The stream says what the log holds: the same reports, the same energy.
+    let (ok, csv, err) = run(&["export", log.to_str().unwrap(), "--prefix", "-"]);
+    assert!(ok, "{err}");
+    let rows: Vec<&str> = csv.lines().skip(1).collect();
+    assert_eq!(rows.len() as u64, reports);
+    let header: Vec<&str> = csv.lines().next().unwrap().split(',').collect();
+    let drawn_at = header.iter().position(|c| *c == "drawn_nj").unwrap();
+    let drawn: u64 = rows
+        .iter()
+        .map(|r| r.split(',').nth(drawn_at).unwrap().parse::<u64>().unwrap())
+        .sum();
+    assert_eq!(seen["energy_nj"]["drawn"].as_u64(), Some(drawn));
+}

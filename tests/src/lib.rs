@@ -42,7 +42,7 @@ impl<F: FnMut(&LinkStats, Duration) -> bool> Collect<F> {
 }
 
 impl<F: FnMut(&LinkStats, Duration) -> bool> PortObserver for Collect<F> {
-    fn message(&mut self, tracked: &Tracked, _stats: &LinkStats) {
+    fn message(&mut self, tracked: &Tracked, _host_time_us: u64, _stats: &LinkStats) {
         self.messages.push(tracked.clone());
     }
     fn tick(&mut self, stats: &LinkStats, idle_for: Duration) -> bool {

@@ -42,6 +42,11 @@ pub struct Cmd {
     /// until Ctrl-C or SIGTERM).
     #[arg(long, value_parser = super::parse_seconds)]
     pub duration: Option<f64>,
+    /// Also write every message and link change to standard output as one
+    /// JSON object per line (docs/stream-json-lines.md), for other tools; if
+    /// their end of the pipe closes, recording goes on.
+    #[arg(long)]
+    pub json_lines: bool,
     /// Ping the node once it is connected (the reply is in the log).
     #[arg(long)]
     pub ping: bool,
@@ -116,7 +121,14 @@ impl Cmd {
             Box::new(done),
         );
         let script = CommandScript::new(steps, Duration::from_secs(3));
-        let mut scripted = Scripted::new(script, &mut observer);
+        let mut streamed;
+        let inner: &mut dyn crate::recorder::PortObserver = if self.json_lines {
+            streamed = crate::stream::Streamed::new(&mut observer, Box::new(std::io::stdout()), false);
+            &mut streamed
+        } else {
+            &mut observer
+        };
+        let mut scripted = Scripted::new(script, inner);
         let result = run_port(&mut recorder, &port, reach.baud, &stop, &mut scripted);
         for (step, outcome) in &scripted.script.results {
             match outcome {

@@ -11,6 +11,7 @@ use crate::failure::FailedAs;
 use crate::link::LinkTracker;
 use crate::log::{LogReader, RecordBody};
 use crate::recorder::{run_port, PortObserver, Recorder};
+use crate::stream::Streamed;
 use crate::view::observer::{Display, LiveObserver};
 
 /// Watch a node live: channels, power, efficiency, state and how long it has
@@ -36,6 +37,11 @@ pub struct Cmd {
     /// One line per report instead of the full screen.
     #[arg(long, help = super::PLAIN_HELP)]
     pub plain: bool,
+    /// Instead of the view, write every message and link change to standard
+    /// output as one JSON object per line (docs/stream-json-lines.md), for
+    /// other tools.
+    #[arg(long)]
+    pub json_lines: bool,
     /// Also record to this log file.
     #[arg(long)]
     pub record: Option<PathBuf>,
@@ -44,7 +50,11 @@ pub struct Cmd {
 impl Cmd {
     /// Runs the command.
     pub fn run(self) -> Result<()> {
-        let display = Display::choose(self.plain, None);
+        let display = if self.json_lines {
+            Display::Silent
+        } else {
+            Display::choose(self.plain, None)
+        };
         let screen = matches!(display, Display::Screen { .. });
         let stop = super::stop_flag()?;
         if let Some(log) = &self.replay {
@@ -54,7 +64,12 @@ impl Cmd {
                 Box::new(std::io::stdout()),
                 Box::new(|_, _| false),
             );
-            let result = replay(log, self.speed, &stop, &mut observer);
+            let result = if self.json_lines {
+                let mut streamed = Streamed::new(&mut observer, Box::new(std::io::stdout()), true);
+                replay(log, self.speed, &stop, &mut streamed)
+            } else {
+                replay(log, self.speed, &stop, &mut observer)
+            };
             observer.close();
             if screen && result.is_ok() && !observer.quit {
                 say!("replay finished")?;
@@ -76,7 +91,12 @@ impl Cmd {
             Box::new(std::io::stdout()),
             Box::new(|_, _| false),
         );
-        let result = run_port(&mut recorder, port, reach.baud, &stop, &mut observer);
+        let result = if self.json_lines {
+            let mut streamed = Streamed::new(&mut observer, Box::new(std::io::stdout()), true);
+            run_port(&mut recorder, port, reach.baud, &stop, &mut streamed)
+        } else {
+            run_port(&mut recorder, port, reach.baud, &stop, &mut observer)
+        };
         observer.close();
         recorder.finish()?;
         result
@@ -142,7 +162,7 @@ pub fn replay(
             }
         }
         if let Some(tracked) = tracked {
-            observer.message(&tracked, tracker.stats());
+            observer.message(&tracked, record.host_time_us, tracker.stats());
         }
         if observer.tick(tracker.stats(), Duration::ZERO) {
             return Ok(());

@@ -139,9 +139,9 @@ impl<'a> Scripted<'a> {
 }
 
 impl PortObserver for Scripted<'_> {
-    fn message(&mut self, tracked: &Tracked, stats: &LinkStats) {
+    fn message(&mut self, tracked: &Tracked, host_time_us: u64, stats: &LinkStats) {
         self.script.message(tracked);
-        self.inner.message(tracked, stats);
+        self.inner.message(tracked, host_time_us, stats);
     }
     fn tick(&mut self, stats: &LinkStats, idle_for: Duration) -> bool {
         self.inner.tick(stats, idle_for)

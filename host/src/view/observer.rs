@@ -108,7 +108,7 @@ impl Drop for LiveObserver<'_> {
 }
 
 impl PortObserver for LiveObserver<'_> {
-    fn message(&mut self, tracked: &Tracked, stats: &LinkStats) {
+    fn message(&mut self, tracked: &Tracked, _host_time_us: u64, stats: &LinkStats) {
         self.state.update(tracked, stats);
         if let Display::Plain { every } = self.display {
             match &tracked.message.body {

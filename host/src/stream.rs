@@ -1,0 +1,348 @@
+//! The live stream for other tools: every message from the node and every
+//! link change as one JSON object per line (JSON Lines), schema
+//! `gleaner.stream.v1` (docs/stream-json-lines.md). Units are in the key
+//! names; report keys are the CSV export's column names.
+
+use std::io::Write;
+use std::time::Duration;
+
+use gleaner_protocol::{Outcome, Report, UplinkBody};
+use serde_json::{json, Map, Value};
+
+use crate::link::{LinkStats, Tracked};
+use crate::recorder::PortObserver;
+
+/// The schema name every line carries.
+pub const STREAM_SCHEMA: &str = "gleaner.stream.v1";
+
+/// The line for one message: `kind` (a wire kind name: hello, report, event,
+/// samples, reply, load, harvest), the node, the boot, sequence and times,
+/// then the message's own fields.
+pub fn message_line(t: &Tracked, host_time_us: u64, node: &NodeSeen) -> Value {
+    let m = &t.message;
+    let mut line = Map::new();
+    line.insert("schema".into(), STREAM_SCHEMA.into());
+    line.insert("kind".into(), UplinkBody::KIND_NAMES[m.body.kind_index()].into());
+    line.insert("node_id".into(), node.id.clone().into());
+    line.insert("node_name".into(), node.name.clone().into());
+    line.insert("boot".into(), t.boot_index.into());
+    line.insert("seq".into(), m.seq.into());
+    line.insert("uptime_ms".into(), m.uptime_ms.into());
+    line.insert("host_time_us".into(), host_time_us.into());
+    line.insert("lost_before".into(), t.lost_before.into());
+    if let Value::Object(fields) = body_fields(&m.body) {
+        // The line's own keys win (a Hello's fields carry a schema of their own).
+        for (key, value) in fields {
+            line.entry(key).or_insert(value);
+        }
+    }
+    Value::Object(line)
+}
+
+/// The line for the port going away or coming back.
+pub fn link_line(connected: bool, detail: &str, host_time_us: u64, node: &NodeSeen) -> Value {
+    json!({
+        "schema": STREAM_SCHEMA,
+        "kind": "link",
+        "node_id": node.id,
+        "node_name": node.name,
+        "host_time_us": host_time_us,
+        "connected": connected,
+        "detail": detail,
+    })
+}
+
+/// A report's fields, named as the CSV export's columns.
+fn report_fields(r: &Report) -> Value {
+    let d = &r.state_ms;
+    json!({
+        "interval_ms": r.interval_ms,
+        "sample_count": r.sample_count,
+        "input_uv_min": r.input_uv.min(), "input_uv_mean": r.input_uv.mean, "input_uv_max": r.input_uv.max(),
+        "input_na_min": r.input_na.min(), "input_na_mean": r.input_na.mean, "input_na_max": r.input_na.max(),
+        "output_uv_min": r.output_uv.min(), "output_uv_mean": r.output_uv.mean, "output_uv_max": r.output_uv.max(),
+        "output_na_min": r.output_na.min(), "output_na_mean": r.output_na.mean, "output_na_max": r.output_na.max(),
+        "drawn_nj": r.drawn_nj,
+        "delivered_nj": r.delivered_nj,
+        "stored_nj": r.stored_nj,
+        "state": r.state.name(),
+        "idle_ms": d.idle_ms,
+        "cold_start_ms": d.cold_start_ms,
+        "harvesting_ms": d.harvesting_ms,
+        "sagging_ms": d.sagging_ms,
+        "cutoff_ms": d.cutoff_ms,
+        "stalled_ms": d.stalled_ms,
+        "input_cutoff_in_ms": r.input_cutoff_in_ms,
+        "brownout_in_ms": r.brownout_in_ms,
+        "load_nw": r.load_nw,
+        "net_nw": r.net_nw,
+        "load_powered": r.load_powered,
+        "load_shed": r.load_shed,
+        "flags": r.flags.0,
+    })
+}
+
+/// The fields of a message body.
+fn body_fields(body: &UplinkBody) -> Value {
+    match body {
+        UplinkBody::Report(r) => report_fields(r),
+        UplinkBody::Event(e) => json!({
+            "from_state": e.from.name(),
+            "to_state": e.to.name(),
+            "cause": e.cause.name(),
+            "trigger_input_uv": e.trigger_input_uv,
+            "trigger_output_uv": e.trigger_output_uv,
+            "input_uv": e.input_uv,
+            "output_uv": e.output_uv,
+        }),
+        UplinkBody::Load(e) => json!({
+            "powered": e.powered,
+            "cause": e.cause.name(),
+            "output_uv": e.output_uv,
+            "input_uv": e.input_uv,
+            "converter_state": e.converter.name(),
+            "converter_state_ms": e.converter_state_ms,
+            "net_nw": e.net_nw,
+        }),
+        UplinkBody::Harvest(h) => json!({
+            "slot": h.slot,
+            "slot_ms": h.slot_ms,
+            "harvested_uj": h.harvested_uj,
+            "ewma_predicted_uj": h.ewma_predicted_uj,
+            "wcma_predicted_uj": h.wcma_predicted_uj,
+            "next_day_uj": h.next_day_uj,
+        }),
+        UplinkBody::Samples(b) => json!({
+            "first_index": b.first_index,
+            "remaining": b.remaining,
+            "period_us": b.period_us,
+            "samples": b.samples.iter().map(|s| json!({
+                "input_uv": s.input_uv, "input_na": s.input_na,
+                "output_uv": s.output_uv, "output_na": s.output_na,
+            })).collect::<Vec<_>>(),
+        }),
+        UplinkBody::Reply(r) => {
+            let (outcome, reason) = match &r.outcome {
+                Outcome::Pong => ("pong", None),
+                Outcome::Accepted => ("accepted", None),
+                Outcome::Refused(why) => ("refused", Some(why.to_string())),
+            };
+            json!({ "request_id": r.request_id, "outcome": outcome, "reason": reason })
+        }
+        UplinkBody::Hello(h) => {
+            serde_json::to_value(crate::cli::node::NodeInfo::from_hello(h)).unwrap_or(Value::Null)
+        }
+    }
+}
+
+/// The node as last introduced by its `Hello` (null until one arrives).
+#[derive(Debug, Clone, Default)]
+pub struct NodeSeen {
+    /// 16 hex digits.
+    pub id: Option<String>,
+    /// The name set in its configuration, if any.
+    pub name: Option<String>,
+}
+
+impl NodeSeen {
+    /// Learns the node from a message (only a `Hello` tells).
+    pub fn learn(&mut self, body: &UplinkBody) {
+        if let UplinkBody::Hello(h) = body {
+            self.id = Some(format!("{:016x}", h.node_id));
+            self.name = (!h.config.name.is_empty()).then(|| h.config.name.to_string());
+        }
+    }
+}
+
+/// Wraps another observer and writes the stream to `out` as messages come.
+/// When the reader of the stream goes away (a closed pipe), streaming stops:
+/// the wrapped observer carries on, unless `stop_when_closed`.
+pub struct Streamed<'a> {
+    inner: &'a mut dyn PortObserver,
+    out: Box<dyn Write + 'a>,
+    node: NodeSeen,
+    stop_when_closed: bool,
+    /// Set when writing the stream failed; nothing more is written.
+    pub closed: Option<std::io::Error>,
+}
+
+impl<'a> Streamed<'a> {
+    /// Streams to `out` around `inner`.
+    pub fn new(
+        inner: &'a mut dyn PortObserver,
+        out: Box<dyn Write + 'a>,
+        stop_when_closed: bool,
+    ) -> Self {
+        Streamed {
+            inner,
+            out,
+            node: NodeSeen::default(),
+            stop_when_closed,
+            closed: None,
+        }
+    }
+
+    fn write(&mut self, line: &Value) {
+        if self.closed.is_some() {
+            return;
+        }
+        let written = serde_json::to_writer(&mut self.out, line)
+            .map_err(std::io::Error::from)
+            .and_then(|()| self.out.write_all(b"\n"))
+            .and_then(|()| self.out.flush());
+        if let Err(e) = written {
+            if !self.stop_when_closed {
+                eprintln!("warning: the JSON Lines stream stopped ({e}); the rest goes on");
+            }
+            self.closed = Some(e);
+        }
+    }
+}
+
+impl PortObserver for Streamed<'_> {
+    fn message(&mut self, tracked: &Tracked, host_time_us: u64, stats: &LinkStats) {
+        self.node.learn(&tracked.message.body);
+        let line = message_line(tracked, host_time_us, &self.node);
+        self.write(&line);
+        self.inner.message(tracked, host_time_us, stats);
+    }
+
+    fn tick(&mut self, stats: &LinkStats, idle_for: Duration) -> bool {
+        let done = self.inner.tick(stats, idle_for);
+        done || (self.stop_when_closed && self.closed.is_some())
+    }
+
+    fn link_changed(&mut self, connected: bool, detail: &str) {
+        let line = link_line(connected, detail, crate::log::now_us(), &self.node);
+        self.write(&line);
+        self.inner.link_changed(connected, detail);
+    }
+
+    fn outgoing(&mut self) -> Option<Vec<u8>> {
+        self.inner.outgoing()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::export::REPORT_COLUMNS;
+    use crate::link::LinkTracker;
+    use gleaner_protocol::*;
+
+    fn tracked(body: UplinkBody) -> Tracked {
+        let mut tracker = LinkTracker::new();
+        let msg = Uplink {
+            seq: 7,
+            uptime_ms: 60_000,
+            body,
+        };
+        tracker.accept(msg).unwrap().unwrap()
+    }
+
+    #[test]
+    fn report_lines_carry_every_export_column_with_its_value() {
+        let report = Report {
+            interval_ms: 1000,
+            sample_count: 100,
+            input_uv: ChannelStats::from_min_mean_max(740_000, 750_000, 760_000),
+            input_na: ChannelStats::from_min_mean_max(1_000, 2_000, 3_000),
+            output_uv: ChannelStats::from_min_mean_max(3_200_000, 3_300_000, 3_300_000),
+            output_na: ChannelStats::from_min_mean_max(0, 300, 4_000),
+            drawn_nj: 1_500,
+            delivered_nj: 990,
+            stored_nj: -12,
+            state: ConverterState::Sagging,
+            state_ms: StateDurations {
+                sagging_ms: 1000,
+                ..Default::default()
+            },
+            input_cutoff_in_ms: Some(125_000),
+            brownout_in_ms: None,
+            load_nw: 5,
+            net_nw: -3,
+            load_powered: true,
+            load_shed: false,
+            flags: ReportFlags::default(),
+        };
+        let line = message_line(
+            &tracked(UplinkBody::Report(report)),
+            1_700_000_000_000_000,
+            &NodeSeen::default(),
+        );
+        let keys: Vec<&str> = line.as_object().unwrap().keys().map(String::as_str).collect();
+        for column in REPORT_COLUMNS.split(',') {
+            assert!(keys.contains(&column), "{column} missing from {line}");
+        }
+        assert_eq!(line["kind"], "report");
+        assert_eq!(line["input_uv_min"], 740_000);
+        assert_eq!(line["stored_nj"], -12);
+        assert_eq!(line["state"], "sagging");
+        assert_eq!(line["input_cutoff_in_ms"], 125_000);
+        assert_eq!(line["brownout_in_ms"], Value::Null);
+        assert_eq!(line["seq"], 7);
+        assert_eq!(line["node_id"], Value::Null);
+    }
+
+    #[test]
+    fn a_hello_line_keeps_the_stream_schema_and_names_the_node() {
+        let mut config = gleaner_firmware::config::default_config();
+        config.name = NodeName::try_from("vent-7").unwrap();
+        let hello = Hello {
+            protocol: PROTOCOL_VERSION,
+            firmware: FirmwareVersion {
+                major: 1,
+                minor: 2,
+                patch: 3,
+            },
+            node_id: 0xfeed_0000_0000_0001,
+            boot_id: 9,
+            sample_period_us: 1000,
+            config,
+            config_source: ConfigSource::Stored,
+            totals: EnergyTotals::default(),
+        };
+        let mut node = NodeSeen::default();
+        node.learn(&UplinkBody::Hello(hello.clone()));
+        let line = message_line(&tracked(UplinkBody::Hello(hello)), 0, &node);
+        assert_eq!(line["schema"], STREAM_SCHEMA);
+        assert_eq!(line["kind"], "hello");
+        assert_eq!(line["node_id"], "feed000000000001");
+        assert_eq!(line["node_name"], "vent-7");
+        assert_eq!(line["settings"]["name"], "vent-7");
+    }
+
+    #[test]
+    fn a_closed_reader_stops_the_stream_but_not_the_inner_observer() {
+        struct Counting(u32);
+        impl PortObserver for Counting {
+            fn message(&mut self, _: &Tracked, _: u64, _: &LinkStats) {
+                self.0 += 1;
+            }
+            fn tick(&mut self, _: &LinkStats, _: Duration) -> bool {
+                false
+            }
+        }
+        struct Closed;
+        impl Write for Closed {
+            fn write(&mut self, _: &[u8]) -> std::io::Result<usize> {
+                Err(std::io::ErrorKind::BrokenPipe.into())
+            }
+            fn flush(&mut self) -> std::io::Result<()> {
+                Ok(())
+            }
+        }
+        let mut inner = Counting(0);
+        let mut streamed = Streamed::new(&mut inner, Box::new(Closed), false);
+        let t = tracked(UplinkBody::Reply(Reply {
+            request_id: 1,
+            outcome: Outcome::Pong,
+        }));
+        streamed.message(&t, 0, &LinkStats::default());
+        streamed.message(&t, 0, &LinkStats::default());
+        assert!(streamed.closed.is_some());
+        assert!(!streamed.tick(&LinkStats::default(), Duration::ZERO));
+        drop(streamed);
+        assert_eq!(inner.0, 2);
+    }
+}
