@@ -81,12 +81,16 @@ pub fn current_shunt(adc: Adc, shunt_milliohm: u32, gain: u32) -> Option<Channel
     })
 }
 
-/// A reference reading: the counts seen while a known value was applied.
+/// Fractional bits of a reference point's counts: the mean of a burst of
+/// readings is finer than one count.
+pub const COUNT_FRACTION_BITS: u32 = 8;
+
+/// A reference reading: the mean counts seen while a known value was applied.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct ReferencePoint {
-    /// Counts the ADC returned.
-    pub counts: u32,
+    /// Mean counts the ADC returned, in 1/2^[`COUNT_FRACTION_BITS`] counts.
+    pub counts_q8: u64,
     /// The value applied, in channel units (µV or nA).
     pub value: u32,
 }
@@ -94,20 +98,43 @@ pub struct ReferencePoint {
 /// Two-point calibration: the line through two reference readings gives the
 /// gain and offset. None when the points do not rise, or the result is out of range.
 pub fn two_point(low: ReferencePoint, high: ReferencePoint) -> Option<ChannelCal> {
-    let count_span = high.counts.checked_sub(low.counts).filter(|&d| d > 0)?;
+    let count_span = high
+        .counts_q8
+        .checked_sub(low.counts_q8)
+        .filter(|&d| d > 0)?;
     let value_span = high.value.checked_sub(low.value).filter(|&d| d > 0)?;
-    let scaled = u128::from(value_span).checked_shl(SCALE_FRACTION_BITS)?;
+    let shift = SCALE_FRACTION_BITS + COUNT_FRACTION_BITS;
+    let scaled = u128::from(value_span).checked_shl(shift)?;
     let count_span = u128::from(count_span);
     let q20 = scaled
         .checked_add(count_span / 2)?
         .checked_div(count_span)?;
-    let q20 = u64::try_from(q20).ok()?;
-    let low_scaled = i128::from(scale_counts(q20, low.counts)?);
-    let offset = i32::try_from(i128::from(low.value).checked_sub(low_scaled)?).ok()?;
+    let q20 = u64::try_from(q20).ok().filter(|&q| q > 0)?;
+    let low_scaled = u128::from(low.counts_q8)
+        .checked_mul(u128::from(q20))?
+        .checked_add(1 << (shift - 1))?
+        >> shift;
+    let offset = i128::from(low.value).checked_sub(i128::try_from(low_scaled).ok()?)?;
     Some(ChannelCal {
         units_per_count_q20: q20,
-        offset,
+        offset: i32::try_from(offset).ok()?,
     })
+}
+
+/// The counts, in 1/2^[`COUNT_FRACTION_BITS`] counts, at which `cal` gives
+/// `value` (the inverse of [`apply`]); None for a value at or below the
+/// offset, which does not tell its counts.
+pub fn counts_q8_for(cal: &ChannelCal, value: u32) -> Option<u64> {
+    let shifted = i128::from(value).checked_sub(i128::from(cal.offset))?;
+    if shifted <= 0 || cal.units_per_count_q20 == 0 {
+        return None;
+    }
+    let q = i128::from(cal.units_per_count_q20);
+    let counts = shifted
+        .checked_mul(1 << (SCALE_FRACTION_BITS + COUNT_FRACTION_BITS))?
+        .checked_add(q / 2)?
+        .checked_div(q)?;
+    u64::try_from(counts).ok()
 }
 
 /// `round(counts * q20 / 2^20)`, None on overflow.
@@ -166,16 +193,10 @@ pub fn calibrate(cal: &Calibration, raw: &RawSample) -> (Sample, ReportFlags) {
 /// The counts a channel would read for `value` (inverse of [`apply`], rounded,
 /// clamped to `max_count`). Used by simulators and tests to synthesise readings.
 pub fn counts_for(cal: &ChannelCal, value: u32, max_count: u32) -> u32 {
-    let shifted = i128::from(value).saturating_sub(i128::from(cal.offset));
-    if shifted <= 0 || cal.units_per_count_q20 == 0 {
+    let Some(q8) = counts_q8_for(cal, value) else {
         return 0;
-    }
-    let q = i128::from(cal.units_per_count_q20);
-    let counts = shifted
-        .saturating_mul(1 << SCALE_FRACTION_BITS)
-        .saturating_add(q / 2)
-        .checked_div(q)
-        .unwrap_or(0);
+    };
+    let counts = q8.saturating_add(1 << (COUNT_FRACTION_BITS - 1)) >> COUNT_FRACTION_BITS;
     u32::try_from(counts).unwrap_or(u32::MAX).min(max_count)
 }
 
@@ -236,36 +257,47 @@ mod tests {
         Ok(())
     }
 
+    /// A reference point at `counts` whole counts.
+    fn point(counts: u64, value: u32) -> ReferencePoint {
+        ReferencePoint {
+            counts_q8: counts << COUNT_FRACTION_BITS,
+            value,
+        }
+    }
+
     #[test]
     fn two_point_recovers_gain_and_offset() -> Result<(), &'static str> {
-        let cal = two_point(
-            ReferencePoint {
-                counts: 100,
-                value: 150_000,
-            },
-            ReferencePoint {
-                counts: 3_100,
-                value: 2_550_000,
-            },
-        )
-        .ok_or("no line through the points")?;
+        let cal = two_point(point(100, 150_000), point(3_100, 2_550_000))
+            .ok_or("no line through the points")?;
         // Gain 800 uV/count, offset 150000 - 80000 = 70000 uV.
         assert_eq!(cal.units_per_count_q20, 800 << 20);
         assert_eq!(cal.offset, 70_000);
         assert_eq!(apply(&cal, 1_600).0, 1_350_000);
-        assert_eq!(
-            two_point(
-                ReferencePoint {
-                    counts: 5,
-                    value: 10
-                },
-                ReferencePoint {
-                    counts: 5,
-                    value: 20
-                }
-            ),
-            None
-        );
+        assert_eq!(two_point(point(5, 10), point(5, 20)), None);
+        assert_eq!(two_point(point(5, 20), point(9, 10)), None);
+        Ok(())
+    }
+
+    #[test]
+    fn fractional_mean_counts_keep_the_gain_exact() -> Result<(), &'static str> {
+        // Means of 100.5 and 3100.5 counts for 150 mV and 2.55 V: the same
+        // 800 uV/count, offset 150000 - 100.5 * 800 = 69600 uV.
+        let half = 1 << (COUNT_FRACTION_BITS - 1);
+        let low = ReferencePoint {
+            counts_q8: (100 << COUNT_FRACTION_BITS) + half,
+            value: 150_000,
+        };
+        let high = ReferencePoint {
+            counts_q8: (3_100 << COUNT_FRACTION_BITS) + half,
+            value: 2_550_000,
+        };
+        let cal = two_point(low, high).ok_or("no line")?;
+        assert_eq!(cal.units_per_count_q20, 800 << 20);
+        assert_eq!(cal.offset, 69_600);
+        // counts_q8_for inverts apply, fractions included.
+        assert_eq!(counts_q8_for(&cal, 150_000), Some(low.counts_q8));
+        assert_eq!(counts_q8_for(&cal, 69_600), None);
+        assert_eq!(counts_for(&cal, 2_550_000, ADC12.max_count()), 3_101);
         Ok(())
     }
 

@@ -12,8 +12,8 @@ use gleaner_protocol::UplinkBody;
 
 use crate::files::{open_input, AtomicFile, Input};
 use crate::link::LinkTracker;
-use indicatif::ProgressBar;
 use crate::log::{LogReader, RecordBody};
+use indicatif::ProgressBar;
 
 /// Column names of the reports file.
 pub const REPORT_COLUMNS: &str = "boot,seq,uptime_ms,host_time_us,interval_ms,sample_count,\
@@ -58,8 +58,10 @@ fn refuse_non_log<R: std::io::Read>(reader: &LogReader<R>, name: &str) -> Result
         .iter()
         .any(|w| matches!(w, crate::log::ReadWarning::NotALog))
     {
-        return Err(anyhow::anyhow!("{name}: {}", crate::log::ReadWarning::NotALog)
-            .failed_as(crate::failure::Failure::BadInput));
+        return Err(
+            anyhow::anyhow!("{name}: {}", crate::log::ReadWarning::NotALog)
+                .failed_as(crate::failure::Failure::BadInput),
+        );
     }
     Ok(())
 }

@@ -117,37 +117,57 @@ impl TwoPoint {
 }
 
 /// The calibration that turns what `present` reported into what was actually
-/// there: readings are mapped back to ADC counts, and the line through the
-/// two (counts, actual) points gives the new scale and offset.
-fn trimmed(
+/// there: readings are mapped back to ADC counts (fractions kept) and the
+/// firmware's two-point rule gives the new scale and offset.
+pub fn trimmed(
     field: &str,
     present: &ChannelCal,
     trim: &TwoPoint,
     voltage: bool,
 ) -> Result<ChannelCal> {
-    let ([r1, r2], [a1, a2]) = trim.points(field, voltage)?;
-    let q20 = present.units_per_count_q20 as f64;
-    let counts = |r: f64| (r - f64::from(present.offset)) * f64::from(1u32 << 20) / q20;
-    let (c1, c2) = (counts(r1), counts(r2));
-    if (c2 - c1).abs() < 1.0 {
+    use gleaner_firmware::calibration::{
+        counts_q8_for, two_point, ReferencePoint, COUNT_FRACTION_BITS,
+    };
+    let (reported, actual) = trim.points(field, voltage)?;
+    let unit = if voltage { "µV" } else { "nA" };
+    let mut points = [(0u64, 0u32); 2];
+    for ((r, a), point) in reported.iter().zip(&actual).zip(&mut points) {
+        let whole = |x: f64| {
+            u32::try_from(x.round() as i64)
+                .with_context(|| format!("{field}: {x} {unit} is out of range"))
+        };
+        let counts = counts_q8_for(present, whole(*r)?).with_context(|| {
+            format!("{field}: a reading of {r:.0} {unit} is at or below the channel's zero; use points well above it")
+        })?;
+        *point = (counts, whole(*a)?);
+    }
+    let [(c1, a1), (c2, a2)] = points;
+    if c1.abs_diff(c2) < 1 << COUNT_FRACTION_BITS {
         bail!("{field}: the two reported readings are less than one ADC count apart; use points far apart (near 20 % and 80 % of the range)");
     }
-    let slope = (a2 - a1) / (c2 - c1);
-    if slope <= 0.0 {
+    let ((c1, a1), (c2, a2)) = if c1 < c2 {
+        ((c1, a1), (c2, a2))
+    } else {
+        ((c2, a2), (c1, a1))
+    };
+    if a2 <= a1 {
         bail!("{field}: the actual values do not rise with the reported ones");
     }
-    let units_per_count_q20 = (slope * f64::from(1u32 << 20)).round();
-    let offset = (a1 - slope * c1).round();
-    if !(1.0..=MAX_SCALE_Q20 as f64).contains(&units_per_count_q20) {
+    let cal = two_point(
+        ReferencePoint {
+            counts_q8: c1,
+            value: a1,
+        },
+        ReferencePoint {
+            counts_q8: c2,
+            value: a2,
+        },
+    )
+    .with_context(|| format!("{field}: the corrected scale or offset is out of range"))?;
+    if cal.units_per_count_q20 > MAX_SCALE_Q20 {
         bail!("{field}: the corrected scale is out of range");
     }
-    if !(f64::from(i32::MIN)..=f64::from(i32::MAX)).contains(&offset) {
-        bail!("{field}: the corrected offset is out of range");
-    }
-    Ok(ChannelCal {
-        units_per_count_q20: units_per_count_q20 as u64,
-        offset: offset as i32,
-    })
+    Ok(cal)
 }
 
 fn volts_to_uv(field: &str, v: f64) -> Result<u32> {

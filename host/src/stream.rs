@@ -22,7 +22,10 @@ pub fn message_line(t: &Tracked, host_time_us: u64, node: &NodeSeen) -> Value {
     let m = &t.message;
     let mut line = Map::new();
     line.insert("schema".into(), STREAM_SCHEMA.into());
-    line.insert("kind".into(), UplinkBody::KIND_NAMES[m.body.kind_index()].into());
+    line.insert(
+        "kind".into(),
+        UplinkBody::KIND_NAMES[m.body.kind_index()].into(),
+    );
     line.insert("node_id".into(), node.id.clone().into());
     line.insert("node_name".into(), node.name.clone().into());
     line.insert("boot".into(), t.boot_index.into());
@@ -270,7 +273,12 @@ mod tests {
             1_700_000_000_000_000,
             &NodeSeen::default(),
         );
-        let keys: Vec<&str> = line.as_object().unwrap().keys().map(String::as_str).collect();
+        let keys: Vec<&str> = line
+            .as_object()
+            .unwrap()
+            .keys()
+            .map(String::as_str)
+            .collect();
         for column in REPORT_COLUMNS.split(',') {
             assert!(keys.contains(&column), "{column} missing from {line}");
         }

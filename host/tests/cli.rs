@@ -539,7 +539,10 @@ fn flags_beat_the_environment_which_beats_the_configuration_file() {
         assert_eq!(logs.len(), 1, "{folder:?}");
         // The log is named after the alias, not the device.
         let name = logs[0].as_ref().unwrap().file_name();
-        assert!(name.to_string_lossy().starts_with("bench-node-"), "{name:?}");
+        assert!(
+            name.to_string_lossy().starts_with("bench-node-"),
+            "{name:?}"
+        );
     }
     // A configuration file that does not parse is a bad input naming the file.
     std::fs::write(&config, "baud = \"fast\"\n").unwrap();
@@ -561,7 +564,11 @@ fn completions_and_manual_pages_come_from_the_command_definitions() {
     let dir = tempfile::tempdir().unwrap();
     let script = dir.path().join("gleaner.bash");
     std::fs::write(&script, run(&["completions", "bash"]).1).unwrap();
-    let checked = Command::new("bash").arg("-n").arg(&script).status().unwrap();
+    let checked = Command::new("bash")
+        .arg("-n")
+        .arg(&script)
+        .status()
+        .unwrap();
     assert!(checked.success());
     // One page per command, in roff, naming its options.
     let (ok, page, _) = run(&["man-page"]);
@@ -572,7 +579,10 @@ fn completions_and_manual_pages_come_from_the_command_definitions() {
     assert!(ok, "{err}");
     let record = std::fs::read_to_string(pages.join("gleaner-record.1")).unwrap();
     assert!(record.contains(".TH gleaner-record 1"), "{record}");
-    assert!(record.contains("GLEANER_PORT"), "the environment is documented");
+    assert!(
+        record.contains("GLEANER_PORT"),
+        "the environment is documented"
+    );
     assert!(pages.join("gleaner-node-ping.1").exists());
 }
 
@@ -620,7 +630,10 @@ fn a_dash_reads_standard_input_and_writes_standard_output() {
         prefix.to_str().unwrap(),
     ]);
     assert!(ok, "{err}");
-    for (flag, file) in [(None, "files-reports.csv"), (Some("--events"), "files-events.csv")] {
+    for (flag, file) in [
+        (None, "files-reports.csv"),
+        (Some("--events"), "files-events.csv"),
+    ] {
         let mut args = vec!["export", "-", "--prefix", "-"];
         args.extend(flag);
         let (ok, csv, err) = run_with_input(&args, &bytes);
@@ -629,7 +642,8 @@ fn a_dash_reads_standard_input_and_writes_standard_output() {
     }
     // import -: a raw capture (the emulated node's first seconds) from stdin.
     let hex = std::fs::read_to_string(
-        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../tests/data/qemu-first-seconds.hex"),
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("../tests/data/qemu-first-seconds.hex"),
     )
     .unwrap();
     let raw: Vec<u8> = (0..hex.trim().len())
@@ -651,8 +665,14 @@ fn a_dash_reads_standard_input_and_writes_standard_output() {
         run_with_input(&["import", "-", "--out", imported.to_str().unwrap()], &raw);
     assert!(ok, "{err}");
     let frames = |said: &str| said.split(" frames").next().unwrap().to_string();
-    assert_eq!(frames(&String::from_utf8_lossy(&said_stdin)), frames(&said_file));
-    assert!(frames(&said_file).parse::<u32>().unwrap() >= 5, "{said_file}");
+    assert_eq!(
+        frames(&String::from_utf8_lossy(&said_stdin)),
+        frames(&said_file)
+    );
+    assert!(
+        frames(&said_file).parse::<u32>().unwrap() >= 5,
+        "{said_file}"
+    );
     // Something that is not a log: a bad input, and no files left behind.
     let notes = dir.path().join("notes.txt");
     std::fs::write(&notes, "not a log at all\n").unwrap();
@@ -670,7 +690,13 @@ fn a_dash_reads_standard_input_and_writes_standard_output() {
         .collect();
     assert!(left.is_empty(), "{left:?}");
     // Parquet needs files.
-    let (ok, _, err) = run(&["export", log.to_str().unwrap(), "--parquet", "--prefix", "-"]);
+    let (ok, _, err) = run(&[
+        "export",
+        log.to_str().unwrap(),
+        "--parquet",
+        "--prefix",
+        "-",
+    ]);
     assert!(!ok);
     assert!(err.contains("Parquet goes to files"), "{err}");
 }
@@ -738,15 +764,22 @@ fn the_live_stream_reads_in_python_while_the_virtual_node_runs() {
     let dir = tempfile::tempdir().unwrap();
     let log = dir.path().join("streamed.gleanlog");
     let mut record = gleaner()
-        .args(["record", "-p", &served.path, "--duration", "3s", "--json-lines"])
+        .args([
+            "record",
+            "-p",
+            &served.path,
+            "--duration",
+            "3s",
+            "--json-lines",
+        ])
         .arg("--out")
         .arg(&log)
         .stdout(std::process::Stdio::piped())
         .stderr(std::process::Stdio::piped())
         .spawn()
         .unwrap();
-    let script =
-        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../tests/reference/stream_reader.py");
+    let script = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("../tests/reference/stream_reader.py");
     let read = Command::new(&python)
         .arg(script)
         .stdin(record.stdout.take().unwrap())
@@ -758,7 +791,11 @@ fn the_live_stream_reads_in_python_while_the_virtual_node_runs() {
         "{}",
         String::from_utf8_lossy(&recorded.stderr)
     );
-    assert!(read.status.success(), "{}", String::from_utf8_lossy(&read.stderr));
+    assert!(
+        read.status.success(),
+        "{}",
+        String::from_utf8_lossy(&read.stderr)
+    );
     let seen: serde_json::Value = serde_json::from_slice(&read.stdout).unwrap();
     let reports = seen["kinds"]["report"].as_u64().unwrap_or(0);
     assert!(reports >= 2, "{seen}");

@@ -378,7 +378,14 @@ fn thermal_voltage_matches_scipy_constants() {
 fn the_parquet_export_gives_the_report_totals_in_pyarrow_and_duckdb() {
     let dir = tempfile::tempdir().unwrap();
     let log = dir.path().join("run.gleanlog");
-    gleaner::sim::engine::simulate_to_log(scenario("boiler-pipe", Some(2.0)), 4, &log, 0, &gleaner::progress::none()).unwrap();
+    gleaner::sim::engine::simulate_to_log(
+        scenario("boiler-pipe", Some(2.0)),
+        4,
+        &log,
+        0,
+        &gleaner::progress::none(),
+    )
+    .unwrap();
     let report = gleaner::analysis::analyze_file(&log).unwrap();
     let prefix = dir.path().join("out");
     gleaner::export::export_parquet(&log, &prefix, &gleaner::progress::none()).unwrap();

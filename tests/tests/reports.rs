@@ -17,7 +17,14 @@ fn simulated(
     dir: &std::path::Path,
 ) -> (std::path::PathBuf, RunReport, gleaner::sim::GroundTruth) {
     let log = dir.join("sim.gleanlog");
-    let truth = simulate_to_log(s, 11, &log, 1_700_000_000_000_000, &gleaner::progress::none()).unwrap();
+    let truth = simulate_to_log(
+        s,
+        11,
+        &log,
+        1_700_000_000_000_000,
+        &gleaner::progress::none(),
+    )
+    .unwrap();
     let report = analyze_file(&log).unwrap();
     (log, report, truth)
 }
@@ -173,7 +180,9 @@ fn parquet_export_reads_back_with_the_report_totals() {
     use arrow_array::{Array, StringArray, UInt32Array, UInt64Array};
     let dir = tempfile::tempdir().unwrap();
     let (log, report, _) = simulated(scenario("boiler-pipe", Some(3.0)), dir.path());
-    let done = gleaner::export::export_parquet(&log, &dir.path().join("out"), &gleaner::progress::none()).unwrap();
+    let done =
+        gleaner::export::export_parquet(&log, &dir.path().join("out"), &gleaner::progress::none())
+            .unwrap();
     let file = std::fs::File::open(&done.reports_path).unwrap();
     let reader = parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder::try_new(file)
         .unwrap()

@@ -793,8 +793,7 @@ pub fn analyze_file_with(
         } else {
             "holds no frames from a node (only the recorder's own marks)".to_string()
         };
-        return Err(anyhow::anyhow!("{name}: {why}")
-            .failed_as(crate::failure::Failure::BadInput));
+        return Err(anyhow::anyhow!("{name}: {why}").failed_as(crate::failure::Failure::BadInput));
     }
     Ok(report)
 }

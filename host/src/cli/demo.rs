@@ -165,7 +165,10 @@ impl Cmd {
         _speed: f64,
         log_path: &std::path::Path,
     ) -> Result<GroundTruth> {
-        say!("  no pseudo-terminal here: simulating straight into {}", log_path.display())?;
+        say!(
+            "  no pseudo-terminal here: simulating straight into {}",
+            log_path.display()
+        )?;
         if let Some(dir) = log_path.parent() {
             std::fs::create_dir_all(dir)?;
         }

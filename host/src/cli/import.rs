@@ -35,8 +35,7 @@ impl Cmd {
                 .and_then(|t| t.duration_since(std::time::UNIX_EPOCH).ok())
                 .map_or(0, |d| u64::try_from(d.as_micros()).unwrap_or(0))
         };
-        let mut recorder =
-            Recorder::create(&self.out, &format!("import of {}", input.name))?;
+        let mut recorder = Recorder::create(&self.out, &format!("import of {}", input.name))?;
         recorder.on_bytes(when, &bytes, |_| {})?;
         recorder.finish()?;
         let s = recorder.stats();

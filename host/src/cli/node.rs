@@ -268,10 +268,13 @@ fn explain(outcome: Outcome) -> Result<()> {
 impl Cmd {
     /// Runs the command.
     pub fn run(self) -> Result<()> {
-        let mut session =
-            {
+        let mut session = {
             let reach = self.link.require(None)?;
-            Session::open(&reach.port, reach.baud, Duration::from_secs_f64(self.timeout))?
+            Session::open(
+                &reach.port,
+                reach.baud,
+                Duration::from_secs_f64(self.timeout),
+            )?
         };
         match self.action {
             Action::Ping => {
@@ -279,7 +282,10 @@ impl Cmd {
                 explain(session.request(Command::Ping, Duration::ZERO)?)?;
                 let round_trip_ms = started.elapsed().as_secs_f64() * 1e3;
                 if self.json {
-                    say!("{}", serde_json::json!({ "answered": true, "round_trip_ms": round_trip_ms }))?;
+                    say!(
+                        "{}",
+                        serde_json::json!({ "answered": true, "round_trip_ms": round_trip_ms })
+                    )?;
                 } else {
                     say!("pong in {round_trip_ms:.1} ms")?;
                 }
@@ -290,7 +296,10 @@ impl Cmd {
                     .hello
                     .context("the node accepted but sent no Hello")?;
                 if self.json {
-                    say!("{}", serde_json::to_string_pretty(&NodeInfo::from_hello(&hello))?)?;
+                    say!(
+                        "{}",
+                        serde_json::to_string_pretty(&NodeInfo::from_hello(&hello))?
+                    )?;
                 } else {
                     print_hello(&hello)?;
                 }
@@ -307,7 +316,10 @@ impl Cmd {
                 let config = settings.apply(&current)?;
                 explain(session.request(Command::SetConfig(config.clone()), Duration::ZERO)?)?;
                 if self.json {
-                    say!("{}", serde_json::json!({ "accepted": true, "settings": NodeSettings::from_config(&config) }))?;
+                    say!(
+                        "{}",
+                        serde_json::json!({ "accepted": true, "settings": NodeSettings::from_config(&config) })
+                    )?;
                 } else {
                     say!("configuration accepted and stored")?;
                 }
@@ -327,8 +339,7 @@ impl Cmd {
                     .map_or(0.01, |h| f64::from(h.sample_period_us) / 1e6);
                 let extra =
                     Duration::from_secs_f64(f64::from(samples) * period_s.max(0.001) * 2.0 + 1.0);
-                session.progress =
-                    crate::progress::steps(u64::from(samples), "burst", "samples");
+                session.progress = crate::progress::steps(u64::from(samples), "burst", "samples");
                 let answer = session.request(Command::StartBurst { samples }, extra);
                 session.progress.finish_and_clear();
                 explain(answer?)?;

@@ -123,7 +123,8 @@ impl Cmd {
         let script = CommandScript::new(steps, Duration::from_secs(3));
         let mut streamed;
         let inner: &mut dyn crate::recorder::PortObserver = if self.json_lines {
-            streamed = crate::stream::Streamed::new(&mut observer, Box::new(std::io::stdout()), false);
+            streamed =
+                crate::stream::Streamed::new(&mut observer, Box::new(std::io::stdout()), false);
             &mut streamed
         } else {
             &mut observer

@@ -18,7 +18,12 @@ impl Completions {
     /// Runs the command.
     pub fn run(self) -> Result<()> {
         let mut script = Vec::new();
-        clap_complete::generate(self.shell, &mut super::Cli::command(), "gleaner", &mut script);
+        clap_complete::generate(
+            self.shell,
+            &mut super::Cli::command(),
+            "gleaner",
+            &mut script,
+        );
         use std::io::Write as _;
         std::io::stdout().write_all(&script)?;
         Ok(())

@@ -297,7 +297,8 @@ impl Cmd {
                 let mut writer = std::io::BufWriter::new(file);
                 let mut log =
                     crate::sim::synthetic::SyntheticLog::new((days * 86_400.0) as u64, interval_s);
-                let progress = crate::progress::counting_bytes(&format!("writing {}", out.display()));
+                let progress =
+                    crate::progress::counting_bytes(&format!("writing {}", out.display()));
                 let bytes = std::io::copy(&mut progress.wrap_read(&mut log), &mut writer)?;
                 progress.finish_and_clear();
                 std::io::Write::flush(&mut writer)?;

@@ -353,7 +353,10 @@ mod tests {
         let mut terminal = Terminal::new(TestBackend::new(140, 30)).unwrap();
         terminal.draw(|f| draw(f, &state, "virtual node")).unwrap();
         let coloured = terminal.backend().buffer().clone();
-        assert!(coloured.content.iter().any(|c| c.fg == Color::Yellow), "sagging is yellow");
+        assert!(
+            coloured.content.iter().any(|c| c.fg == Color::Yellow),
+            "sagging is yellow"
+        );
         terminal
             .draw(|f| {
                 draw(f, &state, "virtual node");
