@@ -108,7 +108,7 @@ pub fn write_csv(
     let mut records = 0u64;
     while let Some(record) = reader.next() {
         records += 1;
-        if records % crate::progress::RECORDS_PER_UPDATE == 0 {
+        if records.is_multiple_of(crate::progress::RECORDS_PER_UPDATE) {
             progress.set_position(reader.offset());
         }
         let RecordBody::Frame(bytes) = &record.body else {
@@ -398,7 +398,7 @@ pub fn export_parquet(
     let mut records = 0u64;
     while let Some(mut record) = reader.next() {
         records += 1;
-        if records % crate::progress::RECORDS_PER_UPDATE == 0 {
+        if records.is_multiple_of(crate::progress::RECORDS_PER_UPDATE) {
             progress.set_position(reader.offset());
         }
         let host = record.host_time_us;

@@ -815,3 +815,166 @@ fn the_live_stream_reads_in_python_while_the_virtual_node_runs() {
         .sum();
     assert_eq!(seen["energy_nj"]["drawn"].as_u64(), Some(drawn));
 }
+
+/// Reads from `from` until the text read ends with `marker`; returns it.
+fn read_until(from: &mut impl std::io::Read, marker: &str) -> String {
+    let mut seen = Vec::new();
+    let mut byte = [0u8; 1];
+    while !seen.ends_with(marker.as_bytes()) {
+        let n = from.read(&mut byte).unwrap();
+        assert!(
+            n == 1,
+            "ended before {marker:?}: {}",
+            String::from_utf8_lossy(&seen)
+        );
+        seen.push(byte[0]);
+    }
+    String::from_utf8(seen).unwrap()
+}
+
+#[test]
+fn guided_calibration_brings_a_channel_within_one_code() {
+    use std::io::{BufRead, Write};
+    // greenhouse-day's input voltage channel (12 bits, 3.3 V: one code is
+    // 805.7 µV), built to read 1.5 % high with a 2 mV offset.
+    let dir = tempfile::tempdir().unwrap();
+    let scenario = dir.path().join("bench.toml");
+    let mut text = gleaner_scenario_text("greenhouse-day");
+    text.push_str("\n[front_end.errors.input_voltage]\ngain_error_ppm = 15000.0\noffset = 0.002\n");
+    std::fs::write(&scenario, text).unwrap();
+    let mut serve = gleaner()
+        .args(["sim", "serve", "--bench", "--speed", "100"])
+        .arg(&scenario)
+        .stdin(std::process::Stdio::piped())
+        .stdout(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    let mut bench_in = serve.stdin.take().unwrap();
+    let mut bench_out = std::io::BufReader::new(serve.stdout.take().unwrap());
+    let mut first = String::new();
+    bench_out.read_line(&mut first).unwrap();
+    let path = first
+        .split(" on ")
+        .nth(1)
+        .unwrap()
+        .split(',')
+        .next()
+        .unwrap()
+        .to_string();
+    let mut set_input = |volts: f64| {
+        writeln!(bench_in, "input_v {volts}").unwrap();
+        loop {
+            let mut line = String::new();
+            assert!(
+                bench_out.read_line(&mut line).unwrap() > 0,
+                "the bench went away"
+            );
+            if line.starts_with("bench: input_v =") {
+                break;
+            }
+        }
+    };
+    let code_uv = 3.3e6 / 4096.0;
+    // The mean input reading over a burst, µV.
+    let mean_reading = |path: &str| -> f64 {
+        let (ok, csv, err) = run(&["node", "-p", path, "burst", "100", "--out", "-"]);
+        assert!(ok, "{err}");
+        let values: Vec<f64> = csv
+            .lines()
+            .skip(1)
+            .map(|l| l.split(',').nth(2).unwrap().parse().unwrap())
+            .collect();
+        assert_eq!(values.len(), 100);
+        values.iter().sum::<f64>() / 100.0
+    };
+    set_input(1.1);
+    let before = mean_reading(&path);
+    assert!(
+        (before - 1.1e6).abs() > 10.0 * code_uv,
+        "uncalibrated: {before} µV"
+    );
+
+    let mut calibrate = gleaner()
+        .args(["node", "-p", &path, "--timeout", "5s", "calibrate"])
+        .args(["--channel", "input-voltage", "--samples", "100"])
+        .stdin(std::process::Stdio::piped())
+        .stdout(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    let mut answers = calibrate.stdin.take().unwrap();
+    let mut said = calibrate.stdout.take().unwrap();
+    let guide = read_until(&mut said, "press Enter: ");
+    assert!(guide.contains("reference voltmeter"), "{guide}");
+    for (level, volts) in [(1, 0.1), (2, 1.0)] {
+        if level == 2 {
+            read_until(&mut said, "press Enter: ");
+        }
+        set_input(volts);
+        writeln!(answers).unwrap();
+        read_until(&mut said, &format!("at level {level}, V: "));
+        // The reference meter reads the bench exactly.
+        writeln!(answers, "{volts}").unwrap();
+    }
+    let summary = read_until(&mut said, "[y/N] ");
+    assert!(summary.contains("residual"), "{summary}");
+    writeln!(answers, "y").unwrap();
+    let mut rest = String::new();
+    std::io::Read::read_to_string(&mut said, &mut rest).unwrap();
+    assert!(calibrate.wait().unwrap().success(), "{summary}{rest}");
+    assert!(rest.contains("accepted"), "{rest}");
+
+    for millivolts in [50.0, 200.0, 450.0, 700.0, 900.0, 1100.0] {
+        set_input(millivolts / 1e3);
+        let reading = mean_reading(&path);
+        assert!(
+            (reading - millivolts * 1e3).abs() <= code_uv,
+            "{millivolts} mV reads {reading} µV after calibration"
+        );
+    }
+    serve.kill().unwrap();
+    serve.wait().unwrap();
+}
+
+#[test]
+fn calibration_from_readings_already_taken_needs_no_questions() {
+    let served = Served::start("stalled-converter");
+    let dir = tempfile::tempdir().unwrap();
+    let points = dir.path().join("points.toml");
+    // Taken on a bench earlier: the channel read 1.5 % high with 2 mV offset.
+    std::fs::write(
+        &points,
+        "[input_voltage]\nreported_v = [0.1035, 1.017]\nactual_v = [0.1, 1.0]\n",
+    )
+    .unwrap();
+    let (ok, out, err) = run(&[
+        "node",
+        "-p",
+        &served.path,
+        "calibrate",
+        "--points",
+        points.to_str().unwrap(),
+        "--yes",
+    ]);
+    assert!(ok, "{err}");
+    assert!(out.contains("gain x0.98"), "{out}");
+    assert!(out.contains("accepted"), "{out}");
+    let (ok, info, _) = run(&["node", "-p", &served.path, "--json", "info"]);
+    assert!(ok);
+    let info: serde_json::Value = serde_json::from_str(&info).unwrap();
+    let offset = info["calibration"]["input_voltage"]["offset"]
+        .as_i64()
+        .unwrap();
+    assert!((-2_200..=-1_800).contains(&offset), "{info}");
+    // A bad points file is a bad input, and nothing is sent.
+    std::fs::write(&points, "[input_voltage]\nreported_v = [0.1]\n").unwrap();
+    let code = exit_code(&[
+        "node",
+        "-p",
+        &served.path,
+        "calibrate",
+        "--points",
+        points.to_str().unwrap(),
+        "--yes",
+    ]);
+    assert_eq!(code, Some(6));
+}

@@ -769,7 +769,7 @@ pub fn analyze_file_with(
     while let Some(record) = reader.next() {
         analyzer.add_record_owned(record);
         records += 1;
-        if records % crate::progress::RECORDS_PER_UPDATE == 0 {
+        if records.is_multiple_of(crate::progress::RECORDS_PER_UPDATE) {
             progress.set_position(start + reader.offset());
         }
     }

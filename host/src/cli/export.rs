@@ -34,10 +34,12 @@ impl Cmd {
         let prefix = match (&self.prefix, is_stdio(&self.log)) {
             (Some(prefix), _) => prefix.clone(),
             (None, false) => self.log.with_extension(""),
-            (None, true) => return Err(anyhow::anyhow!(
+            (None, true) => {
+                return Err(anyhow::anyhow!(
                 "a log read from standard input needs --prefix (a path, or - for standard output)"
             )
-            .failed_as(Failure::Usage)),
+                .failed_as(Failure::Usage))
+            }
         };
         if is_stdio(&prefix) {
             return self.to_stdout();

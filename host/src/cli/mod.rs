@@ -18,6 +18,7 @@ macro_rules! say_part {
     }};
 }
 
+pub mod calibrate;
 pub mod demo;
 pub mod export;
 pub mod import;

@@ -86,6 +86,8 @@ pub enum Action {
     SetConfig(SetConfig),
     /// Zero the node's energy totals.
     ResetEnergy,
+    /// Two-point calibration of the channels on the bench, guided step by step.
+    Calibrate(super::calibrate::Calibrate),
     /// Record a burst of samples at the full sampling rate to CSV.
     Burst {
         /// Number of samples.
@@ -187,6 +189,18 @@ impl Session {
         })
     }
 
+    /// Asks for a burst of `samples` samples at the full sampling rate and
+    /// waits for them all (in [`Session::samples`], emptied first).
+    pub fn burst(&mut self, samples: u32) -> Result<()> {
+        self.samples.clear();
+        let period_s = self
+            .hello
+            .as_ref()
+            .map_or(0.01, |h| f64::from(h.sample_period_us) / 1e6);
+        let extra = Duration::from_secs_f64(f64::from(samples) * period_s.max(0.001) * 2.0 + 1.0);
+        explain(self.request(Command::StartBurst { samples }, extra)?)
+    }
+
     /// Sends `command` and waits for its reply; collects `Hello`s and samples meanwhile.
     /// `extra` extends the wait (bursts take time).
     pub fn request(&mut self, command: Command, extra: Duration) -> Result<Outcome> {
@@ -255,7 +269,9 @@ impl Session {
     }
 }
 
-fn explain(outcome: Outcome) -> Result<()> {
+/// Ok for an answer that did what was asked; a refusal is an error carrying
+/// the node's reason.
+pub fn explain(outcome: Outcome) -> Result<()> {
     match outcome {
         Outcome::Refused(reason) => Err(anyhow::anyhow!(
             "the node refused: {reason}; its previous settings stay in force"
@@ -332,17 +348,12 @@ impl Cmd {
                     say!("energy totals reset")?;
                 }
             }
+            Action::Calibrate(calibrate) => calibrate.run(&mut session)?,
             Action::Burst { samples, out } => {
-                let period_s = session
-                    .hello
-                    .as_ref()
-                    .map_or(0.01, |h| f64::from(h.sample_period_us) / 1e6);
-                let extra =
-                    Duration::from_secs_f64(f64::from(samples) * period_s.max(0.001) * 2.0 + 1.0);
                 session.progress = crate::progress::steps(u64::from(samples), "burst", "samples");
-                let answer = session.request(Command::StartBurst { samples }, extra);
+                let done = session.burst(samples);
                 session.progress.finish_and_clear();
-                explain(answer?)?;
+                done?;
                 let mut csv = Vec::new();
                 writeln!(csv, "index,time_us,input_uv,input_na,output_uv,output_na")?;
                 for (i, s, period) in &session.samples {

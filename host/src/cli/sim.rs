@@ -99,6 +99,11 @@ pub struct Serve {
     /// Boot id of the virtual node.
     #[arg(long, default_value_t = 1)]
     pub boot_id: u32,
+    /// Put the node on a virtual bench: lines on standard input set what its
+    /// channels see (`input_v 0.1`, `input_a 0.002`, `output_v 3.3`,
+    /// `output_a 0.0005`, `input_v off`, `off`), to practise calibration.
+    #[arg(long)]
+    pub bench: bool,
 }
 
 impl Serve {
@@ -126,7 +131,12 @@ impl Serve {
         let stop = super::stop_flag()?;
         let scenario = Scenario::load(&self.scenario)?;
         let name = scenario.name.clone();
-        let node = crate::sim::VirtualNode::new(scenario, self.boot_id)?;
+        let mut node = crate::sim::VirtualNode::new(scenario, self.boot_id)?;
+        if self.bench {
+            let bench = crate::sim::bench::Bench::default();
+            node.attach_bench(bench.clone());
+            obey_bench_lines(bench);
+        }
         let port = VirtualPort::spawn_with(node, Some(self.speed), Unread::Drop)?;
         let shown = match &self.link {
             Some(link) => {
@@ -136,7 +146,7 @@ impl Serve {
             }
             None => port.path().to_string(),
         };
-        let mut out = std::io::stdout().lock();
+        let mut out = std::io::stdout();
         writeln!(
             out,
             "virtual node '{name}' (an invented scenario) on {shown}, {}x real time",
@@ -163,6 +173,29 @@ impl Serve {
         }
         Ok(())
     }
+}
+
+/// Reads bench settings from standard input, one per line, on a thread of
+/// its own; says what it did (or why not) on standard output.
+#[cfg(unix)]
+fn obey_bench_lines(bench: crate::sim::bench::Bench) {
+    std::thread::spawn(move || {
+        use std::io::BufRead;
+        for line in std::io::stdin().lock().lines() {
+            let Ok(line) = line else { break };
+            if line.trim().is_empty() {
+                continue;
+            }
+            let said = match bench.obey(&line) {
+                Ok(done) => done,
+                Err(why) => format!("bench: not done: {why:#}"),
+            };
+            let mut out = std::io::stdout().lock();
+            if writeln!(out, "{said}").and_then(|()| out.flush()).is_err() {
+                break;
+            }
+        }
+    });
 }
 
 /// Conditions for a curve.

@@ -38,6 +38,46 @@ pub struct FrontEndParams {
     pub output_shunt_milliohm: u32,
     /// Output current amplifier gain.
     pub output_gain: u32,
+    /// Errors of each channel as built (what two-point calibration removes).
+    #[serde(default)]
+    pub errors: ChannelErrors,
+}
+
+/// A channel's error: it reads `value * (1 + gain_error_ppm / 10^6) + offset`.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ChannelError {
+    /// Gain error, parts per million (15000: reads 1.5 % high).
+    #[serde(default)]
+    pub gain_error_ppm: f64,
+    /// Offset, in the channel's unit (V for voltages, A for currents).
+    #[serde(default)]
+    pub offset: f64,
+}
+
+impl ChannelError {
+    /// What the channel takes `value` to be.
+    pub fn read(&self, value: f64) -> f64 {
+        value * (1.0 + self.gain_error_ppm * 1e-6) + self.offset
+    }
+}
+
+/// The four channels' errors.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ChannelErrors {
+    /// Harvester voltage.
+    #[serde(default)]
+    pub input_voltage: ChannelError,
+    /// Harvester current.
+    #[serde(default)]
+    pub input_current: ChannelError,
+    /// Load voltage.
+    #[serde(default)]
+    pub output_voltage: ChannelError,
+    /// Load current.
+    #[serde(default)]
+    pub output_current: ChannelError,
 }
 
 impl FrontEndParams {
@@ -56,6 +96,7 @@ impl FrontEndParams {
             output_divider_bottom_ohm: 1_000_000,
             output_shunt_milliohm: 10_000,
             output_gain: 50,
+            errors: ChannelErrors::default(),
         }
     }
 
@@ -112,6 +153,12 @@ impl FrontEndParams {
         };
         let amplify =
             |a: f64, milliohm: u32, gain: u32| a * f64::from(milliohm) * 1e-3 * f64::from(gain);
+        let e = &self.errors;
+        let (input_v, input_a) = (e.input_voltage.read(input_v), e.input_current.read(input_a));
+        let (output_v, output_a) = (
+            e.output_voltage.read(output_v),
+            e.output_current.read(output_a),
+        );
         RawSample {
             input_voltage: self.convert(
                 divide(

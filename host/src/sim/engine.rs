@@ -63,6 +63,7 @@ pub struct VirtualNode {
     last: Option<StepOutcome>,
     load_powered: bool,
     shed_pin_wired: bool,
+    bench: Option<super::bench::Bench>,
 }
 
 impl VirtualNode {
@@ -96,6 +97,7 @@ impl VirtualNode {
             last: None,
             load_powered: false,
             shed_pin_wired: true,
+            bench: None,
             scenario,
         })
     }
@@ -104,6 +106,12 @@ impl VirtualNode {
     /// otherwise), to compare runs with and without shedding.
     pub fn wire_shed_pin(&mut self, wired: bool) {
         self.shed_pin_wired = wired;
+    }
+
+    /// Wires the node's channels to a bench: channels it sets read its
+    /// levels instead of the scenario's physics.
+    pub fn attach_bench(&mut self, bench: super::bench::Bench) {
+        self.bench = Some(bench);
     }
 
     /// The scenario.
@@ -143,13 +151,20 @@ impl VirtualNode {
         self.source.advance(dt, outcome.input_a);
         self.truth
             .add(t, &outcome, self.scenario.converter.output_capacitance_f);
-        let raw = self.scenario.front_end.sample(
+        let physics = [
             outcome.input_v,
             outcome.input_a,
             outcome.output_v,
             outcome.load_a,
-            &mut self.rng,
-        );
+        ];
+        let [input_v, input_a, output_v, output_a] = match &self.bench {
+            Some(bench) => bench.levels().over(physics),
+            None => physics,
+        };
+        let raw =
+            self.scenario
+                .front_end
+                .sample(input_v, input_a, output_v, output_a, &mut self.rng);
         self.node.on_sample(t_us, &raw);
         self.last = Some(outcome);
         self.step_index += 1;
@@ -211,7 +226,7 @@ pub fn simulate_to_log(
         node.drain_frames(&mut bytes);
         let t = start_us + node.now_us();
         steps += 1;
-        if steps % crate::progress::RECORDS_PER_UPDATE == 0 {
+        if steps.is_multiple_of(crate::progress::RECORDS_PER_UPDATE) {
             progress.set_position(node.now_us() / 1_000_000);
         }
         for frame in bytes.split(|&b| b == 0).filter(|f| !f.is_empty()) {

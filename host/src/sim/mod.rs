@@ -5,6 +5,7 @@
 //! are typical rather than published say so.
 
 pub mod adc;
+pub mod bench;
 pub mod cell;
 pub mod converter;
 pub mod corpus;

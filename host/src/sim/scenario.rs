@@ -285,6 +285,26 @@ impl Scenario {
         )?;
         positive("front_end.reference_v", self.front_end.reference_v)?;
         within("front_end.noise_lsb", self.front_end.noise_lsb, 0.0, 1000.0)?;
+        let e = &self.front_end.errors;
+        for (name, error) in [
+            ("input_voltage", e.input_voltage),
+            ("input_current", e.input_current),
+            ("output_voltage", e.output_voltage),
+            ("output_current", e.output_current),
+        ] {
+            within(
+                &format!("front_end.errors.{name}.gain_error_ppm"),
+                error.gain_error_ppm,
+                -500_000.0,
+                500_000.0,
+            )?;
+            within(
+                &format!("front_end.errors.{name}.offset"),
+                error.offset,
+                -10.0,
+                10.0,
+            )?;
+        }
         if self.front_end.calibration().is_none() {
             bail!("front_end: a divider, shunt or gain is zero or the scale overflows");
         }
