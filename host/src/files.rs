@@ -72,8 +72,13 @@ impl AtomicFile {
             Some(dir) if !dir.as_os_str().is_empty() => dir,
             _ => Path::new("."),
         };
-        let temp = tempfile::Builder::new()
-            .prefix(".gleaner-partial-")
+        let mut builder = tempfile::Builder::new();
+        builder.prefix(".gleaner-partial-");
+        // Readable as any new file would be (0666 less the umask), not the
+        // owner-only mode temporary files get.
+        #[cfg(unix)]
+        builder.permissions(std::os::unix::fs::PermissionsExt::from_mode(0o666));
+        let temp = builder
             .tempfile_in(dir)
             .with_context(|| format!("cannot create {}", path.display()))?;
         Ok(Self {
@@ -132,6 +137,16 @@ mod tests {
         write_atomic(&path, b"new\n").unwrap();
         assert_eq!(std::fs::read_to_string(&path).unwrap(), "new\n");
         assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 1);
+        #[cfg(unix)]
+        {
+            use std::os::unix::fs::PermissionsExt;
+            let mode = std::fs::metadata(&path).unwrap().permissions().mode();
+            assert_ne!(
+                mode & 0o044,
+                0,
+                "readable by others, as new files are: {mode:o}"
+            );
+        }
     }
 
     #[test]

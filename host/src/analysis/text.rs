@@ -26,9 +26,82 @@ pub fn duration(seconds: f64) -> String {
     }
 }
 
+/// The report's sections, in order: the text report and the HTML page both
+/// carry each (the text leaves out the harvest and sizing sections when the
+/// log has nothing for them).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Section {
+    /// What was recorded, from which node, for how long.
+    Run,
+    /// Energy drawn, delivered and stored, and the efficiency.
+    Energy,
+    /// Time in each converter state.
+    States,
+    /// When and why the load lost its supply.
+    LoadOutages,
+    /// When and why the converter stopped.
+    ConverterOutages,
+    /// Efficiency in bins of input voltage.
+    EfficiencyByInput,
+    /// Energy per day.
+    DailyBudget,
+    /// Hourly harvest against the node's predictions.
+    HarvestPrediction,
+    /// Storage and duty-cycle advice.
+    StorageAndDutyCycle,
+    /// Link quality and warnings.
+    Link,
+}
+
+impl Section {
+    /// Every section, in report order.
+    pub const ALL: [Section; 10] = [
+        Section::Run,
+        Section::Energy,
+        Section::States,
+        Section::LoadOutages,
+        Section::ConverterOutages,
+        Section::EfficiencyByInput,
+        Section::DailyBudget,
+        Section::HarvestPrediction,
+        Section::StorageAndDutyCycle,
+        Section::Link,
+    ];
+
+    /// The heading (upper case in the text report).
+    pub const fn title(self) -> &'static str {
+        match self {
+            Section::Run => "Run",
+            Section::Energy => "Energy",
+            Section::States => "States",
+            Section::LoadOutages => "Load outages",
+            Section::ConverterOutages => "Converter outages",
+            Section::EfficiencyByInput => "Efficiency by input voltage",
+            Section::DailyBudget => "Daily budget",
+            Section::HarvestPrediction => "Harvest prediction",
+            Section::StorageAndDutyCycle => "Storage and duty cycle",
+            Section::Link => "Link",
+        }
+    }
+
+    /// The id of its element on the HTML page.
+    pub fn id(self) -> String {
+        self.title().to_lowercase().replace(' ', "-")
+    }
+}
+
+/// Writes a section's heading, with `detail` after it.
+fn heading(o: &mut String, section: Section, detail: &str) -> std::fmt::Result {
+    writeln!(o, "{}{detail}", section.title().to_uppercase())
+}
+
 /// The load's outages, each with its cause chain.
 fn write_load_outages(o: &mut String, r: &RunReport) -> std::fmt::Result {
-    writeln!(o, "LOAD OUTAGES ({})", r.load_outages.len())?;
+    heading(
+        o,
+        Section::LoadOutages,
+        &format!(" ({})", r.load_outages.len()),
+    )?;
     if r.load_outages.is_empty() {
         writeln!(o, "  none: the load kept its supply throughout")?;
     }
@@ -64,7 +137,11 @@ fn write_harvest(o: &mut String, r: &RunReport) -> std::fmt::Result {
     if h.slots.is_empty() {
         return Ok(());
     }
-    writeln!(o, "HARVEST PREDICTION (hour slots from the node's boot)")?;
+    heading(
+        o,
+        Section::HarvestPrediction,
+        " (hour slots from the node's boot)",
+    )?;
     let pct = |x: Option<f64>| x.map_or("-".to_string(), |v| format!("{:.1} %", v * 100.0));
     writeln!(
         o,
@@ -133,7 +210,7 @@ pub fn render(report: &RunReport) -> String {
 }
 
 fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
-    writeln!(o, "RUN")?;
+    heading(o, Section::Run, "")?;
     if let Some(h) = &r.header {
         writeln!(
             o,
@@ -168,7 +245,7 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
     )?;
     writeln!(o, "  reboots      {}", r.link.reboots)?;
     writeln!(o)?;
-    writeln!(o, "ENERGY")?;
+    heading(o, Section::Energy, "")?;
     writeln!(o, "  drawn from harvester   {}", energy(r.energy.drawn_j))?;
     writeln!(
         o,
@@ -182,7 +259,7 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
         percent(r.energy.efficiency)
     )?;
     writeln!(o)?;
-    writeln!(o, "STATES")?;
+    heading(o, Section::States, "")?;
     for s in r.states.iter().filter(|s| s.seconds > 0.0) {
         writeln!(
             o,
@@ -194,7 +271,11 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
     }
     writeln!(o)?;
     write_load_outages(o, r)?;
-    writeln!(o, "CONVERTER OUTAGES ({})", r.outages.len())?;
+    heading(
+        o,
+        Section::ConverterOutages,
+        &format!(" ({})", r.outages.len()),
+    )?;
     if r.outages.is_empty() {
         writeln!(o, "  none: the converter ran throughout")?;
     }
@@ -221,7 +302,7 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
         writeln!(o, "  ... and {} more (see --json)", r.outages.len() - 50)?;
     }
     writeln!(o)?;
-    writeln!(o, "EFFICIENCY BY INPUT VOLTAGE")?;
+    heading(o, Section::EfficiencyByInput, "")?;
     for b in r.efficiency_by_input.iter().filter(|b| b.drawn_j > 0.0) {
         let bar = b
             .efficiency
@@ -237,9 +318,10 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
         )?;
     }
     writeln!(o)?;
-    writeln!(
+    heading(
         o,
-        "DAILY BUDGET (24 h blocks from the first interval report)"
+        Section::DailyBudget,
+        " (24 h blocks from the first interval report)",
     )?;
     for d in &r.days {
         writeln!(
@@ -260,7 +342,7 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
     writeln!(o)?;
     write_harvest(o, r)?;
     if let Some(s) = &r.sizing {
-        writeln!(o, "STORAGE AND DUTY CYCLE")?;
+        heading(o, Section::StorageAndDutyCycle, "")?;
         if s.outage_s > 0.0 {
             writeln!(o, "  longest outage        {}", duration(s.outage_s))?;
             writeln!(o, "  load while supplied   {}", power(s.load_w))?;
@@ -297,7 +379,7 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
         )?;
     }
     writeln!(o)?;
-    writeln!(o, "LINK")?;
+    heading(o, Section::Link, "")?;
     let l = &r.link;
     writeln!(o, "  frames {}, lost {}, CRC errors {}, framing errors {}, undecodable {}, duplicates {}, reboots {}", l.frames, l.lost_frames, l.crc_errors, l.framing_errors, l.decode_errors, l.duplicates, l.reboots)?;
     for w in &r.warnings {
