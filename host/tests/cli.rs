@@ -713,6 +713,15 @@ fn tables_and_answers_come_as_json_for_scripts() {
         .map(|s| s["name"].as_str().unwrap())
         .collect();
     assert!(names.contains(&"greenhouse-day"), "{names:?}");
+    let (ok, score, err) = run(&["sim", "score", "--scenarios", "2", "--json"]);
+    assert!(ok, "{err}");
+    let score: serde_json::Value = serde_json::from_str(&score).unwrap();
+    assert_eq!(score["schema"], "gleaner.score.v1");
+    assert_eq!(score["scenarios"], 2);
+    let accuracy = score["brownout_last_2h"]["node"]["alpha_accuracy"]
+        .as_f64()
+        .unwrap();
+    assert!((0.0..=1.0).contains(&accuracy), "{score}");
     let served = Served::start("stalled-converter");
     let node = |args: &[&str]| {
         let mut all = vec!["node", "-p", served.path.as_str(), "--json"];

@@ -81,6 +81,9 @@ pub enum Action {
         /// compare the minutes without power.
         #[arg(long)]
         compare_shedding: bool,
+        /// Print JSON instead of a table.
+        #[arg(long)]
+        json: bool,
     },
 }
 
@@ -353,9 +356,14 @@ impl Cmd {
                 scenarios,
                 seed,
                 compare_shedding,
+                json,
             } => {
                 let score = crate::sim::score::score_corpus(seed, scenarios, compare_shedding)?;
-                say_part!("{}", score.render())?;
+                if json {
+                    say!("{}", serde_json::to_string_pretty(&score.to_json())?)?;
+                } else {
+                    say_part!("{}", score.render())?;
+                }
             }
         }
         Ok(())

@@ -198,7 +198,7 @@ pub struct Judged {
 }
 
 /// The four prognostics figures.
-#[derive(Debug, Clone, Copy, PartialEq, Default)]
+#[derive(Debug, Clone, Copy, PartialEq, Default, serde::Serialize)]
 pub struct Metrics {
     /// Forecasts judged.
     pub count: usize,
@@ -512,6 +512,35 @@ fn parallel_map<T: Send>(
 }
 
 impl CorpusScore {
+    /// The figures as JSON (schema `gleaner.score.v1`), protocol 1's and the
+    /// node's side by side.
+    pub fn to_json(&self) -> serde_json::Value {
+        use serde_json::json;
+        let pair = |(today, node): (Metrics, Metrics)| json!({ "protocol_1": today, "node": node });
+        json!({
+            "schema": "gleaner.score.v1",
+            "scenarios": self.scenarios,
+            "days": self.days,
+            "brownouts": self.brownouts,
+            "cutoffs": self.cutoffs,
+            "brownout_last_2h": pair(self.brownout),
+            "cutoff_last_2h": pair(self.cutoff_2h),
+            "cutoff_last_1h": pair(self.cutoff_1h),
+            "sagging_15min_early_share": self.sagging_early_share,
+            "false_sagging_per_day": self.false_sagging_per_day,
+            "by_kind": self.by_kind.iter().map(|k| json!({
+                "kind": k.kind.name(),
+                "brownout_last_2h": k.brownout,
+                "cutoff_last_1h": k.cutoff,
+                "sagging_15min_early_share": k.sagging_early_share,
+                "false_sagging_per_day": k.false_sagging_per_day,
+            })).collect::<Vec<_>>(),
+            "load_off_minutes": self.brownout_minutes.map(|(on, off)| json!({
+                "shedding": on, "no_shedding": off,
+            })),
+        })
+    }
+
     /// The figures as a table, today's and the new side by side.
     pub fn render(&self) -> String {
         use std::fmt::Write;
