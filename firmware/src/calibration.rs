@@ -125,13 +125,19 @@ pub fn two_point(low: ReferencePoint, high: ReferencePoint) -> Option<ChannelCal
 /// `value` (the inverse of [`apply`]); None for a value at or below the
 /// offset, which does not tell its counts.
 pub fn counts_q8_for(cal: &ChannelCal, value: u32) -> Option<u64> {
+    inverse(cal, value, COUNT_FRACTION_BITS)
+}
+
+/// `round((value - offset) * 2^(20 + fraction_bits) / scale)`: the counts
+/// behind `value` in 1/2^`fraction_bits` counts; None at or below the offset.
+fn inverse(cal: &ChannelCal, value: u32, fraction_bits: u32) -> Option<u64> {
     let shifted = i128::from(value).checked_sub(i128::from(cal.offset))?;
     if shifted <= 0 || cal.units_per_count_q20 == 0 {
         return None;
     }
     let q = i128::from(cal.units_per_count_q20);
     let counts = shifted
-        .checked_mul(1 << (SCALE_FRACTION_BITS + COUNT_FRACTION_BITS))?
+        .checked_mul(1 << (SCALE_FRACTION_BITS + fraction_bits))?
         .checked_add(q / 2)?
         .checked_div(q)?;
     u64::try_from(counts).ok()
@@ -193,11 +199,9 @@ pub fn calibrate(cal: &Calibration, raw: &RawSample) -> (Sample, ReportFlags) {
 /// The counts a channel would read for `value` (inverse of [`apply`], rounded,
 /// clamped to `max_count`). Used by simulators and tests to synthesise readings.
 pub fn counts_for(cal: &ChannelCal, value: u32, max_count: u32) -> u32 {
-    let Some(q8) = counts_q8_for(cal, value) else {
-        return 0;
-    };
-    let counts = q8.saturating_add(1 << (COUNT_FRACTION_BITS - 1)) >> COUNT_FRACTION_BITS;
-    u32::try_from(counts).unwrap_or(u32::MAX).min(max_count)
+    inverse(cal, value, 0)
+        .map_or(0, |counts| u32::try_from(counts).unwrap_or(u32::MAX))
+        .min(max_count)
 }
 
 #[cfg(test)]
