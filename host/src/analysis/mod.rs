@@ -57,7 +57,11 @@ pub const NAMES_RENAMED_SINCE_V1: [(&str, &str); 6] = [
 ];
 
 /// Width of the efficiency-by-input-voltage bins, V.
-pub const EFFICIENCY_BIN_V: f64 = 0.05;
+pub const EFFICIENCY_BIN_V: f64 = EFFICIENCY_BIN_UV as f64 / 1e6;
+/// Width of the efficiency-by-input-voltage bins, µV: an interval goes to
+/// bin `input_uv_mean / EFFICIENCY_BIN_UV` (integer division, as
+/// host/sql/efficiency_by_input.sql does).
+pub const EFFICIENCY_BIN_UV: u32 = 50_000;
 
 /// One node boot as its `Hello` describes it.
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -539,7 +543,7 @@ impl Analyzer {
         // Only intervals spent converting say anything about the converter.
         let converting_ms = r.state_ms.harvesting_ms + r.state_ms.sagging_ms;
         if r.drawn_nj > 0 && u64::from(converting_ms) * 10 >= u64::from(r.interval_ms) * 9 {
-            let bin = (input_v / EFFICIENCY_BIN_V).floor() as i64;
+            let bin = i64::from(r.input_uv.mean / EFFICIENCY_BIN_UV);
             let b = self.bins.entry(bin).or_default();
             b.seconds += length_s;
             b.drawn_nj += u128::from(r.drawn_nj);
@@ -765,15 +769,17 @@ pub fn analyze_file_with(
     let name = input.name;
     let mut reader = crate::log::LogReader::new(input.reader);
     let mut analyzer = Analyzer::new();
-    let (start, mut records) = (progress.position(), 0u64);
+    // Several logs may advance one bar from several threads: add what was read.
+    let (mut shown, mut records) = (0u64, 0u64);
     while let Some(record) = reader.next() {
         analyzer.add_record_owned(record);
         records += 1;
         if records.is_multiple_of(crate::progress::RECORDS_PER_UPDATE) {
-            progress.set_position(start + reader.offset());
+            progress.inc(reader.offset() - shown);
+            shown = reader.offset();
         }
     }
-    progress.set_position(start + reader.offset());
+    progress.inc(reader.offset().saturating_sub(shown));
     if let Some(err) = reader.take_io_error() {
         analyzer.warn(format!("reading stopped early: {err}"));
     }

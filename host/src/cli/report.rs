@@ -43,8 +43,13 @@ impl Cmd {
             many => format!("reading {} logs", many.len()),
         };
         let progress = crate::progress::bytes(total, &what);
-        for log in &self.logs {
-            match analyze_file_with(log, &progress) {
+        // One log per worker on every core; the results in the order given.
+        let analysed =
+            crate::parallel::map_in_order(self.logs.len(), crate::parallel::workers(), |i| {
+                analyze_file_with(&self.logs[i], &progress)
+            });
+        for (log, result) in self.logs.iter().zip(analysed) {
+            match result {
                 Ok(report) => reports.push((log.clone(), report)),
                 Err(err) => failed.push(format!("{err:#}")),
             }

@@ -364,7 +364,7 @@ pub fn score_corpus(
     count: usize,
     compare_shedding: bool,
 ) -> anyhow::Result<CorpusScore> {
-    let workers = std::thread::available_parallelism().map_or(1, |n| n.get());
+    let workers = crate::parallel::workers();
     let runs = parallel_map(count, workers, |i| run_corpus_scenario(seed, i, true))?;
     let mut score = CorpusScore {
         scenarios: count,
@@ -484,31 +484,15 @@ fn kind_score(kind: CorpusKind, runs: &[ScenarioRun]) -> KindScore {
     }
 }
 
-/// `f(0..count)` on `workers` threads, in order.
+/// `f(0..count)` on `workers` threads, in order; the first error, if any.
 fn parallel_map<T: Send>(
     count: usize,
     workers: usize,
     f: impl Fn(usize) -> anyhow::Result<T> + Sync,
 ) -> anyhow::Result<Vec<T>> {
-    let next = std::sync::atomic::AtomicUsize::new(0);
-    let results = std::sync::Mutex::new(Vec::with_capacity(count));
-    std::thread::scope(|scope| {
-        for _ in 0..workers.max(1) {
-            scope.spawn(|| loop {
-                let i = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
-                if i >= count {
-                    break;
-                }
-                let result = f(i);
-                if let Ok(mut all) = results.lock() {
-                    all.push((i, result));
-                }
-            });
-        }
-    });
-    let mut all = results.into_inner().unwrap_or_default();
-    all.sort_by_key(|(i, _)| *i);
-    all.into_iter().map(|(_, r)| r).collect()
+    crate::parallel::map_in_order(count, workers, f)
+        .into_iter()
+        .collect()
 }
 
 impl CorpusScore {
