@@ -137,7 +137,7 @@ fn inverse(cal: &ChannelCal, value: u32, fraction_bits: u32) -> Option<u64> {
     }
     let q = i128::from(cal.units_per_count_q20);
     let counts = shifted
-        .checked_mul(1 << (SCALE_FRACTION_BITS + fraction_bits))?
+        .checked_mul(1i128.checked_shl(SCALE_FRACTION_BITS.checked_add(fraction_bits)?)?)?
         .checked_add(q / 2)?
         .checked_div(q)?;
     u64::try_from(counts).ok()

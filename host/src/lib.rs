@@ -40,11 +40,13 @@
 //! ```
 pub mod analysis;
 pub mod cli;
+pub mod dataset;
 pub mod export;
 pub mod failure;
 pub mod files;
 pub mod link;
 pub mod log;
+pub mod parallel;
 pub mod progress;
 pub mod recorder;
 pub mod settings;

@@ -7,7 +7,8 @@ use std::io::Write;
 use std::time::Duration;
 
 use gleaner_protocol::{Outcome, Report, UplinkBody};
-use serde_json::{json, Map, Value};
+use serde::ser::{Serialize, SerializeMap, Serializer};
+use serde_json::{json, Value};
 
 use crate::link::{LinkStats, Tracked};
 use crate::recorder::PortObserver;
@@ -19,27 +20,13 @@ pub const STREAM_SCHEMA: &str = "gleaner.stream.v1";
 /// samples, reply, load, harvest), the node, the boot, sequence and times,
 /// then the message's own fields.
 pub fn message_line(t: &Tracked, host_time_us: u64, node: &NodeSeen) -> Value {
-    let m = &t.message;
-    let mut line = Map::new();
-    line.insert("schema".into(), STREAM_SCHEMA.into());
-    line.insert(
-        "kind".into(),
-        UplinkBody::KIND_NAMES[m.body.kind_index()].into(),
-    );
-    line.insert("node_id".into(), node.id.clone().into());
-    line.insert("node_name".into(), node.name.clone().into());
-    line.insert("boot".into(), t.boot_index.into());
-    line.insert("seq".into(), m.seq.into());
-    line.insert("uptime_ms".into(), m.uptime_ms.into());
-    line.insert("host_time_us".into(), host_time_us.into());
-    line.insert("lost_before".into(), t.lost_before.into());
-    if let Value::Object(fields) = body_fields(&m.body) {
-        // The line's own keys win (a Hello's fields carry a schema of their own).
-        for (key, value) in fields {
-            line.entry(key).or_insert(value);
-        }
-    }
-    Value::Object(line)
+    serde_json::to_value(Line {
+        tracked: t,
+        host_time_us,
+        node,
+        as_row: false,
+    })
+    .unwrap_or(Value::Null)
 }
 
 /// The line for the port going away or coming back.
@@ -55,85 +42,147 @@ pub fn link_line(connected: bool, detail: &str, host_time_us: u64, node: &NodeSe
     })
 }
 
+/// One message as a line of the stream (and a row of the dataset),
+/// serialized straight from the message with no intermediate map.
+#[derive(Debug, Clone, Copy)]
+pub struct Line<'a> {
+    /// The message.
+    pub tracked: &'a Tracked,
+    /// When the host received it, µs since the Unix epoch.
+    pub host_time_us: u64,
+    /// The node it came from.
+    pub node: &'a NodeSeen,
+    /// As a dataset row: the receive time also as `host_time` (a timestamp
+    /// column there).
+    pub as_row: bool,
+}
+
+impl Serialize for Line<'_> {
+    fn serialize<S: Serializer>(&self, serializer: S) -> Result<S::Ok, S::Error> {
+        let (t, m) = (self.tracked, &self.tracked.message);
+        let mut map = serializer.serialize_map(None)?;
+        map.serialize_entry("schema", STREAM_SCHEMA)?;
+        map.serialize_entry("kind", UplinkBody::KIND_NAMES[m.body.kind_index()])?;
+        map.serialize_entry("node_id", &self.node.id)?;
+        map.serialize_entry("node_name", &self.node.name)?;
+        map.serialize_entry("boot", &t.boot_index)?;
+        map.serialize_entry("seq", &m.seq)?;
+        map.serialize_entry("uptime_ms", &m.uptime_ms)?;
+        map.serialize_entry("host_time_us", &self.host_time_us)?;
+        if self.as_row {
+            map.serialize_entry("host_time", &self.host_time_us)?;
+        }
+        map.serialize_entry("lost_before", &t.lost_before)?;
+        body_entries(&mut map, &m.body)?;
+        map.end()
+    }
+}
+
 /// A report's fields, named as the CSV export's columns.
-fn report_fields(r: &Report) -> Value {
+fn report_entries<M: SerializeMap>(map: &mut M, r: &Report) -> Result<(), M::Error> {
+    let channels = [
+        ("input_uv", &r.input_uv),
+        ("input_na", &r.input_na),
+        ("output_uv", &r.output_uv),
+        ("output_na", &r.output_na),
+    ];
+    map.serialize_entry("interval_ms", &r.interval_ms)?;
+    map.serialize_entry("sample_count", &r.sample_count)?;
+    for (name, c) in channels {
+        map.serialize_entry(&format_args!("{name}_min"), &c.min())?;
+        map.serialize_entry(&format_args!("{name}_mean"), &c.mean)?;
+        map.serialize_entry(&format_args!("{name}_max"), &c.max())?;
+    }
+    map.serialize_entry("drawn_nj", &r.drawn_nj)?;
+    map.serialize_entry("delivered_nj", &r.delivered_nj)?;
+    map.serialize_entry("stored_nj", &r.stored_nj)?;
+    map.serialize_entry("state", r.state.name())?;
     let d = &r.state_ms;
-    json!({
-        "interval_ms": r.interval_ms,
-        "sample_count": r.sample_count,
-        "input_uv_min": r.input_uv.min(), "input_uv_mean": r.input_uv.mean, "input_uv_max": r.input_uv.max(),
-        "input_na_min": r.input_na.min(), "input_na_mean": r.input_na.mean, "input_na_max": r.input_na.max(),
-        "output_uv_min": r.output_uv.min(), "output_uv_mean": r.output_uv.mean, "output_uv_max": r.output_uv.max(),
-        "output_na_min": r.output_na.min(), "output_na_mean": r.output_na.mean, "output_na_max": r.output_na.max(),
-        "drawn_nj": r.drawn_nj,
-        "delivered_nj": r.delivered_nj,
-        "stored_nj": r.stored_nj,
-        "state": r.state.name(),
-        "idle_ms": d.idle_ms,
-        "cold_start_ms": d.cold_start_ms,
-        "harvesting_ms": d.harvesting_ms,
-        "sagging_ms": d.sagging_ms,
-        "cutoff_ms": d.cutoff_ms,
-        "stalled_ms": d.stalled_ms,
-        "input_cutoff_in_ms": r.input_cutoff_in_ms,
-        "brownout_in_ms": r.brownout_in_ms,
-        "load_nw": r.load_nw,
-        "net_nw": r.net_nw,
-        "load_powered": r.load_powered,
-        "load_shed": r.load_shed,
-        "flags": r.flags.0,
-    })
+    map.serialize_entry("idle_ms", &d.idle_ms)?;
+    map.serialize_entry("cold_start_ms", &d.cold_start_ms)?;
+    map.serialize_entry("harvesting_ms", &d.harvesting_ms)?;
+    map.serialize_entry("sagging_ms", &d.sagging_ms)?;
+    map.serialize_entry("cutoff_ms", &d.cutoff_ms)?;
+    map.serialize_entry("stalled_ms", &d.stalled_ms)?;
+    map.serialize_entry("input_cutoff_in_ms", &r.input_cutoff_in_ms)?;
+    map.serialize_entry("brownout_in_ms", &r.brownout_in_ms)?;
+    map.serialize_entry("load_nw", &r.load_nw)?;
+    map.serialize_entry("net_nw", &r.net_nw)?;
+    map.serialize_entry("load_powered", &r.load_powered)?;
+    map.serialize_entry("load_shed", &r.load_shed)?;
+    map.serialize_entry("flags", &r.flags.0)
 }
 
 /// The fields of a message body.
-fn body_fields(body: &UplinkBody) -> Value {
+fn body_entries<M: SerializeMap>(map: &mut M, body: &UplinkBody) -> Result<(), M::Error> {
     match body {
-        UplinkBody::Report(r) => report_fields(r),
-        UplinkBody::Event(e) => json!({
-            "from_state": e.from.name(),
-            "to_state": e.to.name(),
-            "cause": e.cause.name(),
-            "trigger_input_uv": e.trigger_input_uv,
-            "trigger_output_uv": e.trigger_output_uv,
-            "input_uv": e.input_uv,
-            "output_uv": e.output_uv,
-        }),
-        UplinkBody::Load(e) => json!({
-            "powered": e.powered,
-            "cause": e.cause.name(),
-            "output_uv": e.output_uv,
-            "input_uv": e.input_uv,
-            "converter_state": e.converter.name(),
-            "converter_state_ms": e.converter_state_ms,
-            "net_nw": e.net_nw,
-        }),
-        UplinkBody::Harvest(h) => json!({
-            "slot": h.slot,
-            "slot_ms": h.slot_ms,
-            "harvested_uj": h.harvested_uj,
-            "ewma_predicted_uj": h.ewma_predicted_uj,
-            "wcma_predicted_uj": h.wcma_predicted_uj,
-            "next_day_uj": h.next_day_uj,
-        }),
-        UplinkBody::Samples(b) => json!({
-            "first_index": b.first_index,
-            "remaining": b.remaining,
-            "period_us": b.period_us,
-            "samples": b.samples.iter().map(|s| json!({
-                "input_uv": s.input_uv, "input_na": s.input_na,
-                "output_uv": s.output_uv, "output_na": s.output_na,
-            })).collect::<Vec<_>>(),
-        }),
+        UplinkBody::Report(r) => report_entries(map, r),
+        UplinkBody::Event(e) => {
+            map.serialize_entry("from_state", e.from.name())?;
+            map.serialize_entry("to_state", e.to.name())?;
+            map.serialize_entry("cause", e.cause.name())?;
+            map.serialize_entry("trigger_input_uv", &e.trigger_input_uv)?;
+            map.serialize_entry("trigger_output_uv", &e.trigger_output_uv)?;
+            map.serialize_entry("input_uv", &e.input_uv)?;
+            map.serialize_entry("output_uv", &e.output_uv)
+        }
+        UplinkBody::Load(e) => {
+            map.serialize_entry("powered", &e.powered)?;
+            map.serialize_entry("cause", e.cause.name())?;
+            map.serialize_entry("output_uv", &e.output_uv)?;
+            map.serialize_entry("input_uv", &e.input_uv)?;
+            map.serialize_entry("converter_state", e.converter.name())?;
+            map.serialize_entry("converter_state_ms", &e.converter_state_ms)?;
+            map.serialize_entry("net_nw", &e.net_nw)
+        }
+        UplinkBody::Harvest(h) => {
+            map.serialize_entry("slot", &h.slot)?;
+            map.serialize_entry("slot_ms", &h.slot_ms)?;
+            map.serialize_entry("harvested_uj", &h.harvested_uj)?;
+            map.serialize_entry("ewma_predicted_uj", &h.ewma_predicted_uj)?;
+            map.serialize_entry("wcma_predicted_uj", &h.wcma_predicted_uj)?;
+            map.serialize_entry("next_day_uj", &h.next_day_uj)
+        }
+        UplinkBody::Samples(b) => {
+            map.serialize_entry("first_index", &b.first_index)?;
+            map.serialize_entry("remaining", &b.remaining)?;
+            map.serialize_entry("period_us", &b.period_us)?;
+            let samples: Vec<Value> = b
+                .samples
+                .iter()
+                .map(|s| {
+                    json!({
+                        "input_uv": s.input_uv, "input_na": s.input_na,
+                        "output_uv": s.output_uv, "output_na": s.output_na,
+                    })
+                })
+                .collect();
+            map.serialize_entry("samples", &samples)
+        }
         UplinkBody::Reply(r) => {
             let (outcome, reason) = match &r.outcome {
                 Outcome::Pong => ("pong", None),
                 Outcome::Accepted => ("accepted", None),
                 Outcome::Refused(why) => ("refused", Some(why.to_string())),
             };
-            json!({ "request_id": r.request_id, "outcome": outcome, "reason": reason })
+            map.serialize_entry("request_id", &r.request_id)?;
+            map.serialize_entry("outcome", outcome)?;
+            map.serialize_entry("reason", &reason)
         }
         UplinkBody::Hello(h) => {
-            serde_json::to_value(crate::cli::node::NodeInfo::from_hello(h)).unwrap_or(Value::Null)
+            // The node's introduction as `node info --json` gives it, less
+            // the keys the line has already.
+            let info = serde_json::to_value(crate::cli::node::NodeInfo::from_hello(h))
+                .unwrap_or(Value::Null);
+            if let Value::Object(fields) = info {
+                for (key, value) in fields
+                    .iter()
+                    .filter(|(k, _)| !matches!(k.as_str(), "schema" | "node_id"))
+                {
+                    map.serialize_entry(key, value)?;
+                }
+            }
+            Ok(())
         }
     }
 }
@@ -185,28 +234,48 @@ impl<'a> Streamed<'a> {
         }
     }
 
-    fn write(&mut self, line: &Value) {
-        if self.closed.is_some() {
-            return;
+    fn write(&mut self, line: &impl Serialize) {
+        write_line(&mut self.out, &mut self.closed, self.stop_when_closed, line);
+    }
+}
+
+/// Writes one line unless the stream has closed; a failure closes it.
+fn write_line(
+    out: &mut dyn Write,
+    closed: &mut Option<std::io::Error>,
+    quietly: bool,
+    line: &impl Serialize,
+) {
+    if closed.is_some() {
+        return;
+    }
+    let written = serde_json::to_writer(&mut *out, line)
+        .map_err(std::io::Error::from)
+        .and_then(|()| out.write_all(b"\n"))
+        .and_then(|()| out.flush());
+    if let Err(e) = written {
+        if !quietly {
+            eprintln!("warning: the JSON Lines stream stopped ({e}); the rest goes on");
         }
-        let written = serde_json::to_writer(&mut self.out, line)
-            .map_err(std::io::Error::from)
-            .and_then(|()| self.out.write_all(b"\n"))
-            .and_then(|()| self.out.flush());
-        if let Err(e) = written {
-            if !self.stop_when_closed {
-                eprintln!("warning: the JSON Lines stream stopped ({e}); the rest goes on");
-            }
-            self.closed = Some(e);
-        }
+        *closed = Some(e);
     }
 }
 
 impl PortObserver for Streamed<'_> {
     fn message(&mut self, tracked: &Tracked, host_time_us: u64, stats: &LinkStats) {
         self.node.learn(&tracked.message.body);
-        let line = message_line(tracked, host_time_us, &self.node);
-        self.write(&line);
+        let line = Line {
+            tracked,
+            host_time_us,
+            node: &self.node,
+            as_row: false,
+        };
+        write_line(
+            &mut self.out,
+            &mut self.closed,
+            self.stop_when_closed,
+            &line,
+        );
         self.inner.message(tracked, host_time_us, stats);
     }
 

@@ -177,48 +177,77 @@ fn report_of_a_fault_names_the_converter() {
 
 #[test]
 fn parquet_export_reads_back_with_the_report_totals() {
-    use arrow_array::{Array, StringArray, UInt32Array, UInt64Array};
+    use arrow_array::{Array, Int64Array, StringArray, TimestampMicrosecondArray};
     let dir = tempfile::tempdir().unwrap();
     let (log, report, _) = simulated(scenario("boiler-pipe", Some(3.0)), dir.path());
     let done =
         gleaner::export::export_parquet(&log, &dir.path().join("out"), &gleaner::progress::none())
             .unwrap();
-    let file = std::fs::File::open(&done.reports_path).unwrap();
-    let reader = parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder::try_new(file)
-        .unwrap()
-        .build()
+    let reports_file = dir.path().join("out-reports.parquet");
+    assert!(done.files.contains(&reports_file), "{:?}", done.files);
+    let file = std::fs::File::open(&reports_file).unwrap();
+    let builder =
+        parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder::try_new(file).unwrap();
+    // The file says what it is and where it came from.
+    let kv = builder
+        .metadata()
+        .file_metadata()
+        .key_value_metadata()
         .unwrap();
-    let (mut drawn, mut rows, mut cut_ms) = (0u64, 0usize, 0u64);
+    let value = |key: &str| {
+        kv.iter()
+            .find(|k| k.key == key)
+            .and_then(|k| k.value.clone())
+    };
+    assert_eq!(
+        value("gleaner.schema").as_deref(),
+        Some("gleaner.dataset.v1")
+    );
+    assert!(value("gleaner.node").unwrap().contains("calibration"));
+    let drawn_field = builder
+        .schema()
+        .field_with_name("drawn_nj")
+        .unwrap()
+        .clone();
+    assert_eq!(
+        drawn_field.metadata().get("unit").map(String::as_str),
+        Some("nJ")
+    );
+    let reader = builder.build().unwrap();
+    let int = |batch: &arrow_array::RecordBatch, name: &str| -> i64 {
+        let col = batch.column_by_name(name).unwrap();
+        col.as_any()
+            .downcast_ref::<Int64Array>()
+            .unwrap()
+            .values()
+            .iter()
+            .sum()
+    };
+    let (mut drawn, mut rows, mut cut_ms) = (0i64, 0usize, 0i64);
     for batch in reader {
         let batch = batch.unwrap();
-        let col = batch
-            .column_by_name("drawn_nj")
-            .unwrap()
-            .as_any()
-            .downcast_ref::<UInt64Array>()
-            .unwrap();
-        drawn += col.values().iter().sum::<u64>();
-        let cut = batch
-            .column_by_name("cutoff_ms")
-            .unwrap()
-            .as_any()
-            .downcast_ref::<UInt32Array>()
-            .unwrap();
-        cut_ms += cut.values().iter().map(|&v| u64::from(v)).sum::<u64>();
-        let state = batch
-            .column_by_name("state")
-            .unwrap()
-            .as_any()
-            .downcast_ref::<StringArray>()
-            .unwrap();
+        drawn += int(&batch, "drawn_nj");
+        cut_ms += int(&batch, "cutoff_ms");
+        let state = batch.column_by_name("state").unwrap();
+        let state = state.as_any().downcast_ref::<StringArray>().unwrap();
         assert!(state.len() == batch.num_rows() && !state.value(0).is_empty());
+        let time = batch.column_by_name("host_time").unwrap();
+        let time = time
+            .as_any()
+            .downcast_ref::<TimestampMicrosecondArray>()
+            .unwrap();
+        assert_eq!(time.timezone(), Some("+00:00"));
+        assert!(time.value(0) >= 1_700_000_000_000_000);
         rows += batch.num_rows();
     }
-    assert_eq!(rows as u64, done.reports);
+    assert_eq!(Some(&(rows as u64)), done.rows.get("reports"));
     assert_eq!(drawn as f64 / 1e9, report.energy.drawn_j);
     let cut_s = report.seconds_in("cutoff").unwrap();
     assert!((cut_ms as f64 / 1e3 - cut_s).abs() < 1e-6);
-    assert_eq!(done.events as usize, report.transitions.len());
+    assert_eq!(
+        done.rows.get("events").copied().unwrap_or(0) as usize,
+        report.transitions.len()
+    );
 }
 
 /// Every field of `old` is in `new` with the same value (fields added since

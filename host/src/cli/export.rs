@@ -10,11 +10,20 @@ use crate::failure::{FailedAs, Failure};
 use crate::files::{is_stdio, open_input};
 
 /// Export a recorded run as CSV (default) or Parquet: one row per report
-/// (units in the column names) and the state transitions in a second file.
+/// (units in the column names) and the state transitions in a second file;
+/// or many runs (logs or folders of them) into one partitioned Parquet
+/// dataset for DuckDB or Spark (`--dataset DIR`).
 #[derive(Debug, Args)]
 pub struct Cmd {
-    /// The log (`-`: standard input).
-    pub log: PathBuf,
+    /// The log (`-`: standard input); with --dataset, any number of logs
+    /// and folders of logs.
+    #[arg(required = true, value_name = "LOG")]
+    pub logs: Vec<PathBuf>,
+    /// Add the logs to the Parquet dataset in this folder (created if
+    /// needed; layout in docs/dataset.md): one process per core, each log's
+    /// files replaced if it was exported before, other files left alone.
+    #[arg(long, conflicts_with_all = ["prefix", "parquet", "events"])]
+    pub dataset: Option<PathBuf>,
     /// Prefix of the files written (default: the log's path without
     /// extension; `-`: the reports table as CSV on standard output).
     #[arg(long, alias = "out")]
@@ -22,8 +31,8 @@ pub struct Cmd {
     /// With `--prefix -`: the events table instead of the reports table.
     #[arg(long)]
     pub events: bool,
-    /// Write Parquet instead of CSV (schema in docs/parquet-schema.md), for
-    /// DuckDB, Spark or pandas when one laptop is not enough.
+    /// Write Parquet instead of CSV (the dataset's columns, one file per
+    /// table; docs/dataset.md), for DuckDB, Spark, pandas or Polars.
     #[arg(long)]
     pub parquet: bool,
 }
@@ -31,9 +40,19 @@ pub struct Cmd {
 impl Cmd {
     /// Runs the command.
     pub fn run(self) -> Result<()> {
-        let prefix = match (&self.prefix, is_stdio(&self.log)) {
+        if let Some(dir) = &self.dataset {
+            return export_dataset(&self.logs, dir);
+        }
+        let [log] = self.logs.as_slice() else {
+            return Err(anyhow::anyhow!(
+                "{} logs given: CSV and --parquet take one log (run once per log), --dataset DIR takes many",
+                self.logs.len()
+            )
+            .failed_as(Failure::Usage));
+        };
+        let prefix = match (&self.prefix, is_stdio(log)) {
             (Some(prefix), _) => prefix.clone(),
-            (None, false) => self.log.with_extension(""),
+            (None, false) => log.with_extension(""),
             (None, true) => {
                 return Err(anyhow::anyhow!(
                 "a log read from standard input needs --prefix (a path, or - for standard output)"
@@ -42,7 +61,7 @@ impl Cmd {
             }
         };
         if is_stdio(&prefix) {
-            return self.to_stdout();
+            return self.to_stdout(log);
         }
         if self.events {
             return Err(anyhow::anyhow!(
@@ -50,20 +69,23 @@ impl Cmd {
             )
             .failed_as(Failure::Usage));
         }
-        let total = crate::progress::total_size([self.log.as_path()]);
-        let progress = crate::progress::bytes(total, &format!("exporting {}", self.log.display()));
+        let total = crate::progress::total_size([log.as_path()]);
+        let progress = crate::progress::bytes(total, &format!("exporting {}", log.display()));
         if self.parquet {
-            let done = crate::export::export_parquet(&self.log, &prefix, &progress)?;
+            let done = crate::export::export_parquet(log, &prefix, &progress)?;
             progress.finish_and_clear();
-            say!(
-                "{} reports to {}",
-                done.reports,
-                done.reports_path.display()
-            )?;
-            say!("{} events to {}", done.events, done.events_path.display())?;
+            for table in crate::dataset::Table::ALL {
+                let rows = done.rows.get(table.name()).copied().unwrap_or(0);
+                if let Some(file) = done.files.iter().find(|f| {
+                    f.to_string_lossy()
+                        .ends_with(&format!("-{}.parquet", table.name()))
+                }) {
+                    say!("{rows} {} to {}", table.name(), file.display())?;
+                }
+            }
             return Ok(());
         }
-        let done = export_csv(&self.log, &prefix, &progress)?;
+        let done = export_csv(log, &prefix, &progress)?;
         progress.finish_and_clear();
         say!(
             "{} reports to {}",
@@ -75,14 +97,14 @@ impl Cmd {
     }
 
     /// Writes one table as CSV to standard output.
-    fn to_stdout(&self) -> Result<()> {
+    fn to_stdout(&self, log: &std::path::Path) -> Result<()> {
         if self.parquet {
             return Err(anyhow::anyhow!(
                 "Parquet goes to files only: give --prefix a path (standard output takes CSV)"
             )
             .failed_as(Failure::Usage));
         }
-        let input = open_input(&self.log, "log")?;
+        let input = open_input(log, "log")?;
         let stdout = std::io::stdout();
         let mut out = std::io::BufWriter::new(stdout.lock());
         let mut sink = std::io::sink();
@@ -95,4 +117,77 @@ impl Cmd {
         out.flush()?;
         Ok(())
     }
+}
+
+/// The logs named: files as given, folders as the `*.gleanlog` files in them.
+pub fn logs_in(paths: &[PathBuf]) -> Result<Vec<PathBuf>> {
+    let mut logs = Vec::new();
+    for path in paths {
+        if path.is_dir() {
+            let mut found: Vec<PathBuf> = std::fs::read_dir(path)
+                .map_err(|e| anyhow::anyhow!("cannot read folder {}: {e}", path.display()))?
+                .flatten()
+                .map(|e| e.path())
+                .filter(|p| p.extension().is_some_and(|x| x == "gleanlog"))
+                .collect();
+            if found.is_empty() {
+                return Err(
+                    anyhow::anyhow!("{} holds no .gleanlog files", path.display())
+                        .failed_as(Failure::BadInput),
+                );
+            }
+            found.sort();
+            logs.extend(found);
+        } else {
+            logs.push(path.clone());
+        }
+    }
+    Ok(logs)
+}
+
+/// Adds `paths` (logs and folders) to the dataset at `dir`, one log per
+/// core; the logs that export are kept even when others fail.
+fn export_dataset(paths: &[PathBuf], dir: &std::path::Path) -> Result<()> {
+    let logs = logs_in(paths)?;
+    if let Some(stdin) = logs.iter().find(|l| is_stdio(l)) {
+        return Err(anyhow::anyhow!(
+            "the dataset is written from log files ({} is standard input): save it to a file first",
+            stdin.display()
+        )
+        .failed_as(Failure::Usage));
+    }
+    let total = crate::progress::total_size(logs.iter().map(PathBuf::as_path));
+    let progress = crate::progress::bytes(total, &format!("exporting {} logs", logs.len()));
+    let done = crate::parallel::map_in_order(logs.len(), crate::parallel::workers(), |i| {
+        crate::dataset::export_log(&logs[i], dir, &progress)
+    });
+    progress.finish_and_clear();
+    let mut failed = 0;
+    for (log, result) in logs.iter().zip(done) {
+        match result {
+            Ok(e) => {
+                let rows: Vec<String> = e.rows.iter().map(|(t, n)| format!("{n} {t}")).collect();
+                say!(
+                    "{}: node {}, {} into {} files",
+                    log.display(),
+                    e.node_id,
+                    rows.join(", "),
+                    e.files.len()
+                )?;
+            }
+            Err(err) => {
+                failed += 1;
+                eprintln!("error: {err:#}");
+            }
+        }
+    }
+    if failed > 0 {
+        return Err(anyhow::anyhow!(
+            "{failed} of {} logs could not be exported (the others are in {})",
+            logs.len(),
+            dir.display()
+        )
+        .failed_as(Failure::BadInput));
+    }
+    Ok(())
 }

@@ -60,6 +60,23 @@ pub enum Action {
         #[arg(long)]
         out: PathBuf,
     },
+    /// Simulate an invented fleet into a folder of logs, one per node (the
+    /// built-in scenarios in turn, each with its own seed and identity), on
+    /// every core: for trying fleet reports and the Parquet dataset.
+    Fleet {
+        /// Nodes in the fleet.
+        #[arg(long, default_value_t = 10)]
+        nodes: usize,
+        /// Days simulated.
+        #[arg(long, default_value_t = 7.0)]
+        days: f64,
+        /// Seed of the fleet.
+        #[arg(long, default_value_t = 1)]
+        seed: u64,
+        /// Folder for the logs.
+        #[arg(long)]
+        dir: PathBuf,
+    },
     /// Run a virtual node on a pseudo-terminal of its own until stopped
     /// (Ctrl-C): practise `watch`, `record` and `node` on it from another
     /// terminal, or attach any serial program. With nobody attached its bytes
@@ -352,6 +369,27 @@ impl Cmd {
                 say!("simulated to {}", out.display())?;
             }
             Action::Serve(serve) => serve.run()?,
+            Action::Fleet {
+                nodes,
+                days,
+                seed,
+                dir,
+            } => {
+                let scenarios = crate::sim::fleet::fleet_scenarios(nodes, days, seed)?;
+                let total: f64 = scenarios.iter().map(Scenario::duration_s).sum();
+                let progress = crate::progress::steps(
+                    total as u64,
+                    &format!("simulating {nodes} nodes"),
+                    "simulated s",
+                );
+                let logs = crate::sim::fleet::simulate_fleet(scenarios, &dir, &progress)?;
+                progress.finish_and_clear();
+                say!(
+                    "{} invented nodes, {days} days each, into {}",
+                    logs.len(),
+                    dir.display()
+                )?;
+            }
             Action::Score {
                 scenarios,
                 seed,

@@ -11,6 +11,7 @@ pub mod converter;
 pub mod corpus;
 pub mod engine;
 pub mod environment;
+pub mod fleet;
 pub mod harvest_eval;
 pub mod load;
 pub mod numeric;

@@ -1,0 +1,33 @@
+-- Per node: converter outages (from a transition into cutoff or stalled
+-- until the next transition out of both; one still open at the end of the
+-- log ends with the node's last message) with their count and total seconds.
+WITH marked AS (
+  SELECT
+    node_id, boot, seq, uptime_ms,
+    CASE WHEN to_state IN ('cutoff', 'stalled') THEN 1 ELSE 0 END AS down,
+    LAG(CASE WHEN to_state IN ('cutoff', 'stalled') THEN 1 ELSE 0 END, 1, 0)
+      OVER (PARTITION BY node_id ORDER BY boot, seq) AS was_down
+  FROM events
+),
+edges AS (
+  SELECT node_id, uptime_ms, down,
+         LEAD(uptime_ms) OVER (PARTITION BY node_id ORDER BY boot, seq) AS next_ms
+  FROM marked
+  WHERE down <> was_down
+),
+last_seen AS (
+  SELECT node_id, MAX(uptime_ms) AS end_ms FROM (
+    SELECT node_id, uptime_ms FROM reports
+    UNION ALL SELECT node_id, uptime_ms FROM events
+    UNION ALL SELECT node_id, uptime_ms FROM loads
+  ) AS everything
+  GROUP BY node_id
+)
+SELECT
+  n.node_id,
+  COUNT(e.uptime_ms) AS outages,
+  COALESCE(SUM(COALESCE(e.next_ms, n.end_ms) - e.uptime_ms), 0) / 1000.0 AS outage_s
+FROM last_seen AS n
+LEFT JOIN edges AS e ON e.node_id = n.node_id AND e.down = 1
+GROUP BY n.node_id
+ORDER BY n.node_id
