@@ -987,3 +987,81 @@ fn calibration_from_readings_already_taken_needs_no_questions() {
     ]);
     assert_eq!(code, Some(6));
 }
+
+#[test]
+fn a_dataset_grows_log_by_log_and_a_bad_log_is_named() {
+    let dir = tempfile::tempdir().unwrap();
+    let logs = dir.path().join("logs");
+    let (ok, _, err) = run(&[
+        "sim",
+        "fleet",
+        "--nodes",
+        "2",
+        "--days",
+        "0.1",
+        "--dir",
+        logs.to_str().unwrap(),
+    ]);
+    assert!(ok, "{err}");
+    let dataset = dir.path().join("dataset");
+    let (ok, said, err) = run(&[
+        "export",
+        "--dataset",
+        dataset.to_str().unwrap(),
+        logs.to_str().unwrap(),
+    ]);
+    assert!(ok, "{err}");
+    assert_eq!(said.lines().count(), 2, "{said}");
+    let parts = |table: &str| -> Vec<std::path::PathBuf> {
+        let mut found = Vec::new();
+        let mut stack = vec![dataset.join(table)];
+        while let Some(d) = stack.pop() {
+            for e in std::fs::read_dir(&d).unwrap().flatten() {
+                if e.path().is_dir() {
+                    stack.push(e.path());
+                } else {
+                    found.push(e.path());
+                }
+            }
+        }
+        found.sort();
+        found
+    };
+    let before = parts("reports");
+    assert_eq!(before.len(), 2, "{before:?}");
+    assert!(before.iter().all(|p| p.to_string_lossy().contains("/node=")
+        && p.to_string_lossy().contains("/day=2026-06-01/")));
+    let first_written = std::fs::metadata(&before[0]).unwrap().modified().unwrap();
+    // A new log adds its own files and leaves the others alone.
+    let extra = synthetic_log(dir.path(), "extra.gleanlog", "0.05");
+    let (ok, _, err) = run(&[
+        "export",
+        "--dataset",
+        dataset.to_str().unwrap(),
+        extra.to_str().unwrap(),
+    ]);
+    assert!(ok, "{err}");
+    let after = parts("reports");
+    assert_eq!(after.len(), 3, "{after:?}");
+    assert_eq!(
+        std::fs::metadata(&before[0]).unwrap().modified().unwrap(),
+        first_written
+    );
+    // Something that is not a log: named, exit 6, and the good logs still go in.
+    let notes = dir.path().join("notes.gleanlog");
+    std::fs::write(&notes, "not a log\n").unwrap();
+    let out = gleaner()
+        .args(["export", "--dataset", dataset.to_str().unwrap()])
+        .arg(&notes)
+        .arg(&extra)
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(6));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("notes.gleanlog"));
+    assert_eq!(parts("reports").len(), 3);
+    // CSV takes one log.
+    assert_eq!(
+        exit_code(&["export", extra.to_str().unwrap(), notes.to_str().unwrap()]),
+        Some(2)
+    );
+}
