@@ -6,6 +6,8 @@ energy columns arrive as timestamps and integers with no casts.
 fleet_sql.py DATASET SQL_DIR [--spark]
 prints JSON {"duckdb": {query: [row, ...]}, "spark": {...},
              "readers": {"pandas": {...}, "polars": {...}}}
+fleet_sql.py DATASET SQL_DIR --engine duckdb|spark
+runs one engine only and prints its answers (for the fleet benchmark).
 """
 import json
 import os
@@ -101,6 +103,11 @@ def readers(dataset):
 def main():
     dataset, sql_dir = sys.argv[1], sys.argv[2]
     sql = queries(sql_dir)
+    if "--engine" in sys.argv:
+        engine = sys.argv[sys.argv.index("--engine") + 1]
+        run = {"duckdb": on_duckdb, "spark": on_spark}[engine]
+        print(json.dumps({engine: run(dataset, sql)}))
+        return
     result = {"duckdb": on_duckdb(dataset, sql), "readers": readers(dataset)}
     if "--spark" in sys.argv[3:]:
         result["spark"] = on_spark(dataset, sql)
