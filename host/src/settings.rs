@@ -76,6 +76,24 @@ pub struct TwoPointTrims {
     pub output_current: Option<TwoPoint>,
 }
 
+impl TwoPointTrims {
+    /// The correction of `channel`, if given.
+    pub fn channel_mut(&mut self, channel: gleaner_protocol::Channel) -> &mut Option<TwoPoint> {
+        use gleaner_protocol::Channel;
+        match channel {
+            Channel::InputVoltage => &mut self.input_voltage,
+            Channel::InputCurrent => &mut self.input_current,
+            Channel::OutputVoltage => &mut self.output_voltage,
+            Channel::OutputCurrent => &mut self.output_current,
+        }
+    }
+
+    /// The correction of `channel`, if given.
+    pub fn channel(&self, channel: gleaner_protocol::Channel) -> Option<TwoPoint> {
+        self.clone().channel_mut(channel).take()
+    }
+}
+
 /// What the node reported at two known inputs, and what a reference meter
 /// read there. Voltage channels take `_v` fields, current channels `_ma`.
 #[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, Deserialize)]

@@ -7,102 +7,62 @@ use std::io::BufRead;
 use std::path::PathBuf;
 
 use anyhow::{bail, Context, Result};
-use clap::{Args, ValueEnum};
+use clap::Args;
 use gleaner_firmware::calibration::{counts_q8_for, COUNT_FRACTION_BITS, SCALE_FRACTION_BITS};
-use gleaner_protocol::{Calibration, ChannelCal, Command, Sample};
+use gleaner_protocol::{Calibration, Channel, ChannelCal, Command, Sample};
 
 use super::node::{explain, Session};
 use crate::failure::{FailedAs, Failure};
 use crate::settings::{NodeSettings, TwoPoint, TwoPointTrims};
 
-/// One of the node's four channels.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
-pub enum Channel {
-    /// The harvester's voltage.
-    InputVoltage,
-    /// The harvester's current.
-    InputCurrent,
-    /// The load's voltage.
-    OutputVoltage,
-    /// The load's current.
-    OutputCurrent,
+/// A channel as typed on the command line (`input-voltage`, ...).
+fn parse_channel(text: &str) -> Result<Channel, String> {
+    Channel::ALL
+        .into_iter()
+        .find(|c| label(*c).replace(' ', "-") == text)
+        .ok_or_else(|| {
+            format!("'{text}' is not a channel (input-voltage, input-current, output-voltage, output-current)")
+        })
 }
 
-impl Channel {
-    /// Every channel, in wire order.
-    pub const ALL: [Channel; 4] = [
-        Channel::InputVoltage,
-        Channel::InputCurrent,
-        Channel::OutputVoltage,
-        Channel::OutputCurrent,
-    ];
-
-    fn label(self) -> &'static str {
-        match self {
-            Channel::InputVoltage => "input voltage",
-            Channel::InputCurrent => "input current",
-            Channel::OutputVoltage => "output voltage",
-            Channel::OutputCurrent => "output current",
-        }
+fn label(c: Channel) -> &'static str {
+    match c {
+        Channel::InputVoltage => "input voltage",
+        Channel::InputCurrent => "input current",
+        Channel::OutputVoltage => "output voltage",
+        Channel::OutputCurrent => "output current",
     }
+}
 
-    fn is_voltage(self) -> bool {
-        matches!(self, Channel::InputVoltage | Channel::OutputVoltage)
+fn is_voltage(c: Channel) -> bool {
+    matches!(c, Channel::InputVoltage | Channel::OutputVoltage)
+}
+
+/// People's unit (V or mA) and how many channel units (µV, nA) make one.
+fn unit(c: Channel) -> (&'static str, f64) {
+    if is_voltage(c) {
+        ("V", 1e6)
+    } else {
+        ("mA", 1e6)
     }
+}
 
-    /// People's unit (V or mA) and how many channel units (µV, nA) make one.
-    fn unit(self) -> (&'static str, f64) {
-        if self.is_voltage() {
-            ("V", 1e6)
-        } else {
-            ("mA", 1e6)
-        }
+fn hookup(c: Channel) -> &'static str {
+    match c {
+        Channel::InputVoltage => "a steady adjustable supply to the harvester input (no harvester), the reference voltmeter across the input terminals",
+        Channel::InputCurrent => "a current source (or a supply through a resistor) into the harvester input, the reference ammeter in series",
+        Channel::OutputVoltage => "a steady adjustable supply to the output terminals (converter unpowered, load removed), the reference voltmeter across them",
+        Channel::OutputCurrent => "an adjustable electronic load (or resistor) on the output, the reference ammeter in series",
     }
+}
 
-    fn hookup(self) -> &'static str {
-        match self {
-            Channel::InputVoltage => "a steady adjustable supply to the harvester input (no harvester), the reference voltmeter across the input terminals",
-            Channel::InputCurrent => "a current source (or a supply through a resistor) into the harvester input, the reference ammeter in series",
-            Channel::OutputVoltage => "a steady adjustable supply to the output terminals (converter unpowered, load removed), the reference voltmeter across them",
-            Channel::OutputCurrent => "an adjustable electronic load (or resistor) on the output, the reference ammeter in series",
-        }
-    }
-
-    /// The channel's reading in a sample, µV or nA.
-    fn reading(self, s: &Sample) -> u32 {
-        match self {
-            Channel::InputVoltage => s.input_uv,
-            Channel::InputCurrent => s.input_na,
-            Channel::OutputVoltage => s.output_uv,
-            Channel::OutputCurrent => s.output_na,
-        }
-    }
-
-    fn cal(self, c: &Calibration) -> ChannelCal {
-        match self {
-            Channel::InputVoltage => c.input_voltage,
-            Channel::InputCurrent => c.input_current,
-            Channel::OutputVoltage => c.output_voltage,
-            Channel::OutputCurrent => c.output_current,
-        }
-    }
-
-    fn trim_slot(self, trims: &mut TwoPointTrims) -> &mut Option<TwoPoint> {
-        match self {
-            Channel::InputVoltage => &mut trims.input_voltage,
-            Channel::InputCurrent => &mut trims.input_current,
-            Channel::OutputVoltage => &mut trims.output_voltage,
-            Channel::OutputCurrent => &mut trims.output_current,
-        }
-    }
-
-    fn trim(self, trims: &TwoPointTrims) -> Option<TwoPoint> {
-        match self {
-            Channel::InputVoltage => trims.input_voltage,
-            Channel::InputCurrent => trims.input_current,
-            Channel::OutputVoltage => trims.output_voltage,
-            Channel::OutputCurrent => trims.output_current,
-        }
+/// The channel's reading in a sample, µV or nA.
+fn reading(c: Channel, s: &Sample) -> u32 {
+    match c {
+        Channel::InputVoltage => s.input_uv,
+        Channel::InputCurrent => s.input_na,
+        Channel::OutputVoltage => s.output_uv,
+        Channel::OutputCurrent => s.output_na,
     }
 }
 
@@ -113,7 +73,7 @@ impl Channel {
 #[derive(Debug, Args)]
 pub struct Calibrate {
     /// A channel to calibrate (repeat for several; default: all four).
-    #[arg(long = "channel", value_enum)]
+    #[arg(long = "channel", value_parser = parse_channel)]
     pub channels: Vec<Channel>,
     /// Samples averaged at each point.
     #[arg(long, default_value_t = 200)]
@@ -181,11 +141,11 @@ impl Calibrate {
         };
         let updated = settings.apply(&present).failed_as(Failure::BadInput)?;
         for channel in Channel::ALL {
-            if let Some(trim) = channel.trim(&trims) {
+            if let Some(trim) = trims.channel(channel) {
                 show_result(
                     channel,
-                    &channel.cal(&present.calibration),
-                    &channel.cal(&updated.calibration),
+                    &*present.calibration.channel(channel),
+                    &*updated.calibration.channel(channel),
                     &trim,
                 )?;
             }
@@ -216,13 +176,13 @@ impl Calibrate {
         let mut answers = Answers(std::io::stdin().lock());
         let mut trims = TwoPointTrims::default();
         for &channel in channels {
-            let (unit, per_unit) = channel.unit();
-            let cal = channel.cal(calibration);
+            let (unit, per_unit) = unit(channel);
+            let cal = *calibration.channel(channel);
             let max_count = (1u64 << calibration.adc_bits.min(31)) - 1;
             let full_scale = max_count as f64 * cal.units_per_count_q20 as f64
                 / f64::from(1u32 << SCALE_FRACTION_BITS)
                 / per_unit;
-            say!("\n{}: connect {}.", channel.label(), channel.hookup())?;
+            say!("\n{}: connect {}.", label(channel), hookup(channel))?;
             say!(
                 "  Two levels far apart work best: near 10 % and 80 % of the range you use (full scale {full_scale:.4} {unit})."
             )?;
@@ -247,7 +207,7 @@ impl Calibrate {
                     point + 1
                 ))?;
             }
-            *channel.trim_slot(&mut trims) = Some(if channel.is_voltage() {
+            *trims.channel_mut(channel) = Some(if is_voltage(channel) {
                 TwoPoint {
                     reported_v: Some(reported),
                     actual_v: Some(actual),
@@ -273,7 +233,7 @@ impl Calibrate {
         let readings: Vec<f64> = session
             .samples
             .iter()
-            .map(|(_, s, _)| f64::from(channel.reading(s)))
+            .map(|(_, s, _)| f64::from(reading(channel, s)))
             .collect();
         if readings.is_empty() {
             bail!("the node sent no samples");
@@ -302,12 +262,12 @@ fn show_result(
     after: &ChannelCal,
     trim: &TwoPoint,
 ) -> Result<()> {
-    let (unit, per_unit) = channel.unit();
+    let (unit, per_unit) = unit(channel);
     let per_count = |c: &ChannelCal| c.units_per_count_q20 as f64 / f64::from(1u32 << 20);
-    let small = if channel.is_voltage() { "µV" } else { "nA" };
+    let small = if is_voltage(channel) { "µV" } else { "nA" };
     say!(
         "\n{}: gain x{:.5} ({:.4} {small} per count, was {:.4}), offset {:+.1} {small} (was {:+})",
-        channel.label(),
+        label(channel),
         per_count(after) / per_count(before),
         per_count(after),
         per_count(before),
