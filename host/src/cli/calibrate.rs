@@ -144,8 +144,8 @@ impl Calibrate {
             if let Some(trim) = trims.channel(channel) {
                 show_result(
                     channel,
-                    &*present.calibration.channel(channel),
-                    &*updated.calibration.channel(channel),
+                    present.calibration.channel(channel),
+                    updated.calibration.channel(channel),
                     &trim,
                 )?;
             }
