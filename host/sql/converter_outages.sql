@@ -1,6 +1,7 @@
 -- Per node: converter outages (from a transition into cutoff or stalled
 -- until the next transition out of both; one still open at the end of the
--- log ends with the node's last message) with their count and total seconds.
+-- log ends with the node's last message) with their count, total and
+-- longest seconds (the longest is what storage must bridge).
 WITH marked AS (
   SELECT
     node_id, boot, seq, uptime_ms,
@@ -26,7 +27,8 @@ last_seen AS (
 SELECT
   n.node_id,
   COUNT(e.uptime_ms) AS outages,
-  COALESCE(SUM(COALESCE(e.next_ms, n.end_ms) - e.uptime_ms), 0) / 1000.0 AS outage_s
+  COALESCE(SUM(COALESCE(e.next_ms, n.end_ms) - e.uptime_ms), 0) / 1000.0 AS outage_s,
+  COALESCE(MAX(COALESCE(e.next_ms, n.end_ms) - e.uptime_ms), 0) / 1000.0 AS longest_outage_s
 FROM last_seen AS n
 LEFT JOIN edges AS e ON e.node_id = n.node_id AND e.down = 1
 GROUP BY n.node_id
