@@ -185,10 +185,21 @@ fn simulate_report_and_export_a_run() {
     let (ok, out, err) = run(&["export", log.to_str().unwrap()]);
     assert!(ok, "{err}");
     assert!(out.contains("reports to"), "{out}");
-    // Two logs make a fleet table.
+    // Two logs make a fleet table, its efficiency by the node's rule: two
+    // copies of one run have that run's efficiency.
     let (ok, out, _) = run(&["report", log.to_str().unwrap(), log.to_str().unwrap()]);
     assert!(ok);
-    assert!(out.contains("FLEET"), "{out}");
+    let fleet = out
+        .lines()
+        .find(|l| l.starts_with("FLEET"))
+        .unwrap_or_else(|| panic!("{out}"));
+    let (_, json, _) = run(&["report", "--json", log.to_str().unwrap()]);
+    let report: serde_json::Value = serde_json::from_str(&json).unwrap();
+    let efficiency = report["energy"]["efficiency"].as_f64().unwrap();
+    assert!(
+        fleet.contains(&format!("{:.1} %", efficiency * 100.0)),
+        "{fleet}"
+    );
 }
 
 #[test]

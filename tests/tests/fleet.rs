@@ -166,14 +166,30 @@ fn check_node(engine: &Value, name: &str, node: &str, r: &RunReport) {
         at("outage time")
     );
     let longest = r.outages.iter().map(|o| o.duration_s).fold(0.0, f64::max);
-    assert!(close(o["longest_outage_s"].as_f64().unwrap(), longest), "{}", at("longest"));
+    assert!(
+        close(o["longest_outage_s"].as_f64().unwrap(), longest),
+        "{}",
+        at("longest")
+    );
     let sizing = rows(engine, "sizing_inputs", node);
     let (sql, advice) = (sizing[0], r.sizing.as_ref().unwrap());
-    assert!(close(sql["load_w"].as_f64().unwrap(), advice.load_w), "{}", at("load power"));
-    assert!(close(sql["active_w"].as_f64().unwrap(), advice.active_w), "{}", at("active power"));
+    assert!(
+        close(sql["load_w"].as_f64().unwrap(), advice.load_w),
+        "{}",
+        at("load power")
+    );
+    assert!(
+        close(sql["active_w"].as_f64().unwrap(), advice.active_w),
+        "{}",
+        at("active power")
+    );
     let sleep = sql["sleep_w"].as_f64().unwrap_or(0.0);
     assert!(close(sleep, advice.sleep_w), "{}", at("sleep power"));
-    assert!(close(sql["output_v_max"].as_f64().unwrap(), advice.v_max), "{}", at("v max"));
+    assert!(
+        close(sql["output_v_max"].as_f64().unwrap(), advice.v_max),
+        "{}",
+        at("v max")
+    );
     let mut by_cause: BTreeMap<&str, u64> = BTreeMap::new();
     for l in &r.load_outages {
         *by_cause.entry(l.cause.as_str()).or_default() += 1;

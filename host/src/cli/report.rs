@@ -132,11 +132,14 @@ fn write_fleet_table(out: &mut impl Write, reports: &[(PathBuf, RunReport)]) -> 
         outages += r.outages.len();
         lost += r.link.lost_frames;
     }
-    let eff = if drawn > 0.0 {
-        format!("{:.1} %", (delivered + stored) / drawn * 100.0)
-    } else {
-        "-".into()
-    };
+    // The fleet's efficiency by the node's own rule (and its energy floor).
+    let nj = |joules: f64| (joules * 1e9).round();
+    let eff = gleaner_firmware::meter::efficiency_ppm(
+        nj(drawn) as u64,
+        nj(delivered) as u64,
+        nj(stored) as i64,
+    )
+    .map_or("-".into(), |ppm| format!("{:.1} %", f64::from(ppm) / 1e4));
     writeln!(
         out,
         "{:<40} {:>12} {:>12} {:>12} {:>9} {:>8} {:>6}",
