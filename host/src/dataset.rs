@@ -219,6 +219,8 @@ struct Part {
     writer: ArrowWriter<AtomicFile>,
     /// Messages not written yet, with their receive times.
     rows: Vec<(Tracked, u64)>,
+    /// Where it goes.
+    path: PathBuf,
 }
 
 /// Exports the log at `log` into the dataset at `dir`, advancing `progress`
@@ -265,7 +267,11 @@ fn write_tables(log: &Path, progress: &ProgressBar, place: &Place<'_>) -> Result
         std::fs::File::open(log).with_context(|| format!("cannot open log {}", log.display()))?;
     let mut reader = LogReader::new(file);
     let mut tracker = LinkTracker::new();
-    let mut parts: BTreeMap<PathBuf, (Table, Part)> = BTreeMap::new();
+    // One open file per table: rows come in time order, so a table's file
+    // for a day is finished when the next day starts (memory stays at one
+    // row group per table, whatever the log's length).
+    let mut open: BTreeMap<Table, (PathBuf, Part)> = BTreeMap::new();
+    let mut written: std::collections::BTreeSet<PathBuf> = std::collections::BTreeSet::new();
     let mut exported = Exported {
         node_id: node_id.clone(),
         ..Exported::default()
@@ -287,12 +293,16 @@ fn write_tables(log: &Path, progress: &ProgressBar, place: &Place<'_>) -> Result
         let Some(table) = Table::of(&t.message.body) else {
             continue;
         };
-        let path = place(table, &node_id, &utc_day(record.host_time_us));
-        if !parts.contains_key(&path) {
-            let part = open_part(&path, table, &metadata)?;
-            parts.insert(path.clone(), (table, part));
+        let place = place(table, &node_id, &utc_day(record.host_time_us));
+        if open.get(&table).is_none_or(|(at, _)| *at != place) {
+            if let Some((_, part)) = open.remove(&table) {
+                exported.files.push(finish(part, table, &node)?);
+            }
+            let path = unused(&place, &written);
+            written.insert(path.clone());
+            open.insert(table, (place, open_part(&path, table, &metadata)?));
         }
-        if let Some((_, part)) = parts.get_mut(&path) {
+        if let Some((_, part)) = open.get_mut(&table) {
             part.rows.push((t, record.host_time_us));
             if part.rows.len() >= BATCH_ROWS {
                 write_rows(part, table, &node)?;
@@ -312,12 +322,33 @@ fn write_tables(log: &Path, progress: &ProgressBar, place: &Place<'_>) -> Result
                 .failed_as(crate::failure::Failure::BadInput),
         );
     }
-    for (path, (table, mut part)) in parts {
-        write_rows(&mut part, table, &node)?;
-        part.writer.into_inner()?.commit()?;
-        exported.files.push(path);
+    for (table, (_, part)) in open {
+        exported.files.push(finish(part, table, &node)?);
     }
+    exported.files.sort();
     Ok(exported)
+}
+
+/// `path`, or when this export has written it already (the host clock went
+/// back into an earlier day), `path` with `-2`, `-3`, ... before `.parquet`.
+fn unused(path: &Path, written: &std::collections::BTreeSet<PathBuf>) -> PathBuf {
+    let mut candidate = path.to_path_buf();
+    let mut n = 2;
+    while written.contains(&candidate) {
+        let stem = path
+            .file_stem()
+            .map_or(String::new(), |s| s.to_string_lossy().into_owned());
+        candidate = path.with_file_name(format!("{stem}-{n}.parquet"));
+        n += 1;
+    }
+    candidate
+}
+
+/// Writes a part's last rows and gives the file its name.
+fn finish(mut part: Part, table: Table, node: &NodeSeen) -> Result<PathBuf> {
+    write_rows(&mut part, table, node)?;
+    part.writer.into_inner()?.commit()?;
+    Ok(part.path)
 }
 
 /// Key-value metadata of every part file of a log.
@@ -363,6 +394,7 @@ fn open_part(
     Ok(Part {
         writer,
         rows: Vec::new(),
+        path: path.to_path_buf(),
     })
 }
 
