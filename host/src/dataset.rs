@@ -34,7 +34,9 @@ use crate::stream::{Line, NodeSeen};
 pub const DATASET_SCHEMA: &str = "gleaner.dataset.v1";
 
 /// Rows per row group.
-const BATCH_ROWS: usize = 65_536;
+const ROW_GROUP_ROWS: usize = 65_536;
+/// Messages held before they are encoded into the open row group.
+const BATCH_ROWS: usize = 8_192;
 
 /// The tables of the dataset.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
@@ -387,6 +389,7 @@ fn open_part(
             .with_context(|| format!("cannot create {}", folder.display()))?;
     }
     let properties = WriterProperties::builder()
+        .set_max_row_group_size(ROW_GROUP_ROWS)
         .set_compression(CODEC)
         .set_key_value_metadata(Some(metadata.to_vec()))
         .build();
