@@ -242,13 +242,25 @@ pub fn export_log(log: &Path, dir: &Path, progress: &ProgressBar) -> Result<Expo
 
 /// Writes the log's tables as `PREFIX-reports.parquet`,
 /// `PREFIX-events.parquet` and `PREFIX-loads.parquet` (the dataset's
-/// columns, one file per table; tables without rows are not written).
+/// columns, one file per table, each written even when it has no rows).
 pub fn export_files(log: &Path, prefix: &Path, progress: &ProgressBar) -> Result<Exported> {
-    write_tables(log, progress, &|table, _, _| {
+    let place = |table: Table, _: &str, _: &str| {
         let mut name = prefix.as_os_str().to_owned();
         name.push(format!("-{}.parquet", table.name()));
         PathBuf::from(name)
-    })
+    };
+    let mut exported = write_tables(log, progress, &place)?;
+    for table in Table::ALL {
+        let path = place(table, "", "");
+        if !exported.files.contains(&path) {
+            let empty = open_part(&path, table, &[])?;
+            exported
+                .files
+                .push(finish(empty, table, &NodeSeen::default())?);
+        }
+    }
+    exported.files.sort();
+    Ok(exported)
 }
 
 /// Where a row goes: the file for a table, node id and UTC day.

@@ -15,7 +15,7 @@ row = con.execute(
                sum(sagging_ms) / 1e3, sum(cutoff_ms) / 1e3, sum(stalled_ms) / 1e3
         from read_parquet('{prefix}-reports.parquet')"""
 ).fetchone()
-outages = con.execute(f"select count(*) from read_parquet('{prefix}-events.parquet') where \"to\" in ('cutoff', 'stalled')").fetchone()[0]
+outages = con.execute(f"select count(*) from read_parquet('{prefix}-events.parquet') where to_state in ('cutoff', 'stalled')").fetchone()[0]
 first = con.execute(f"select state from read_parquet('{prefix}-reports.parquet') limit 1").fetchone()[0]
 outages += int(first in ("cutoff", "stalled"))
 drawn, delivered, stored = row[0], row[1], row[2]
