@@ -12,6 +12,27 @@ use gleaner::recorder::{run_port, PortObserver, Recorder};
 use gleaner::sim::port::VirtualPort;
 use gleaner::sim::{GroundTruth, Scenario, VirtualNode};
 
+/// The repository's top folder.
+pub fn workspace() -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .parent()
+        .map_or_else(|| PathBuf::from(".."), Path::to_path_buf)
+}
+
+/// The Python with the reference libraries: `GLEANER_PYTHON`, else the
+/// `.venv` that `bash .ci/run` makes (asserted to exist).
+pub fn reference_python() -> PathBuf {
+    let python = std::env::var_os("GLEANER_PYTHON")
+        .map(PathBuf::from)
+        .unwrap_or_else(|| workspace().join(".venv/bin/python"));
+    assert!(
+        python.exists(),
+        "no Python with the reference libraries at {}: run `bash .ci/run` once (it makes .venv)",
+        python.display()
+    );
+    python
+}
+
 /// A scenario, shortened to `hours` when given.
 pub fn scenario(name: &str, hours: Option<f64>) -> Scenario {
     let mut s = Scenario::builtin(name).expect("built-in scenario");

@@ -18,14 +18,7 @@ use gleaner::link::LinkTracker;
 use gleaner::recorder::{run_port, Recorder, HELLO_REQUEST_ID};
 use gleaner::settings::NodeSettings;
 use gleaner_protocol::{Outcome, UplinkBody};
-use gleaner_tests::Collect;
-
-fn workspace() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR"))
-        .parent()
-        .unwrap()
-        .to_path_buf()
-}
+use gleaner_tests::{workspace, Collect};
 
 /// Builds the board binary once and returns its path.
 fn board_elf() -> &'static Path {

@@ -5,26 +5,17 @@
 //! time and energy columns with no casts.
 
 use std::collections::BTreeMap;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::process::Command;
 
 use gleaner::analysis::{analyze_file, RunReport, EFFICIENCY_BIN_V};
 use gleaner::sim::fleet::{fleet_scenarios, simulate_fleet};
+use gleaner_tests::{reference_python, workspace};
 use serde_json::Value;
-
-fn workspace() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR"))
-        .parent()
-        .unwrap()
-        .to_path_buf()
-}
 
 /// Runs host/sql on both engines over `dataset`.
 fn sql_answers(dataset: &Path) -> Value {
-    let python = std::env::var_os("GLEANER_PYTHON")
-        .map(PathBuf::from)
-        .unwrap_or_else(|| workspace().join(".venv/bin/python"));
-    assert!(python.exists(), "no {python:?}: run `bash .ci/run` once");
+    let python = reference_python();
     let out = Command::new(&python)
         .arg(workspace().join("tests/reference/fleet_sql.py"))
         .arg(dataset)

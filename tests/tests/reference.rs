@@ -16,26 +16,12 @@ use gleaner::sim::solar::{thermal_voltage, PvCell, SingleDiode};
 use gleaner::sim::source::SourceParams;
 use gleaner::sim::VirtualNode;
 use gleaner_protocol::*;
-use gleaner_tests::{rel, scenario};
+use gleaner_tests::{reference_python, rel, scenario, workspace};
 use serde_json::{json, Value};
-
-fn workspace() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR"))
-        .parent()
-        .unwrap()
-        .to_path_buf()
-}
 
 /// Runs a reference script and parses the JSON it prints.
 fn python(script: &str, args: &[&str]) -> Value {
-    let python = std::env::var_os("GLEANER_PYTHON")
-        .map(PathBuf::from)
-        .unwrap_or_else(|| workspace().join(".venv/bin/python"));
-    assert!(
-        python.exists(),
-        "no Python with the reference libraries at {}: run `bash .ci/run` once (it makes .venv)",
-        python.display()
-    );
+    let python = reference_python();
     let out = Command::new(&python)
         .arg(workspace().join("tests/reference").join(script))
         .args(args)
