@@ -1,7 +1,7 @@
 //! Default configuration and the validation rules the node enforces.
 
 use gleaner_protocol::{
-    Calibration, Channel, ChannelCal, NodeConfig, NodeName, Refusal, Thresholds,
+    Calibration, Channel, ChannelCal, ConverterModel, NodeConfig, NodeName, Refusal, Thresholds,
 };
 
 use crate::calibration::{current_shunt, voltage_divider, Adc};
@@ -26,6 +26,10 @@ pub const MAX_SAG_MARGIN_UV: u32 = 1_000_000;
 pub const MAX_STORAGE_UF: u32 = 1_000_000_000;
 /// Highest accepted load voltage threshold (60 V).
 pub const MAX_LOAD_UV: u32 = 60_000_000;
+/// Lowest accepted MPPT fraction of a converter (5 %; 0 says there is none).
+pub const MIN_MPPT_FRACTION_PPM: u32 = 50_000;
+/// Highest accepted MPPT fraction of a converter (99 %).
+pub const MAX_MPPT_FRACTION_PPM: u32 = 990_000;
 /// Largest accepted channel scale: 10^9 units per count, in Q20.
 pub const MAX_SCALE_Q20: u64 = 1_000_000_000 << 20;
 
@@ -79,6 +83,7 @@ pub fn default_config() -> NodeConfig {
         output_storage_uf: 0,
         load_restore_ms: 30_000,
         name: NodeName::new(),
+        converter: ConverterModel::UNKNOWN,
     }
 }
 
@@ -135,6 +140,10 @@ pub fn validate(config: &NodeConfig) -> Result<(), Refusal> {
     if !name_is_valid(&config.name) {
         return Err(Refusal::NodeNameInvalid);
     }
+    let fraction = config.converter.mppt_fraction_ppm;
+    if fraction != 0 && !(MIN_MPPT_FRACTION_PPM..=MAX_MPPT_FRACTION_PPM).contains(&fraction) {
+        return Err(Refusal::MpptFractionOutOfRange);
+    }
     Ok(())
 }
 
@@ -160,7 +169,7 @@ mod tests {
     #[test]
     fn each_rule_refuses_its_bad_case_with_its_reason() {
         type Breaker = fn(&mut NodeConfig);
-        let cases: [(Breaker, Refusal); 19] = [
+        let cases: [(Breaker, Refusal); 21] = [
             (|c| c.calibration.adc_bits = 7, Refusal::AdcBitsOutOfRange),
             (|c| c.calibration.adc_bits = 25, Refusal::AdcBitsOutOfRange),
             (
@@ -225,6 +234,14 @@ mod tests {
             ),
             (|c| c.name = name("bad\nname"), Refusal::NodeNameInvalid),
             (|c| c.name = name(" padded"), Refusal::NodeNameInvalid),
+            (
+                |c| c.converter.mppt_fraction_ppm = MIN_MPPT_FRACTION_PPM - 1,
+                Refusal::MpptFractionOutOfRange,
+            ),
+            (
+                |c| c.converter.mppt_fraction_ppm = MAX_MPPT_FRACTION_PPM + 1,
+                Refusal::MpptFractionOutOfRange,
+            ),
         ];
         for (break_it, reason) in cases {
             let mut config = default_config();
@@ -243,6 +260,10 @@ mod tests {
         c.thresholds.load_restart_uv = MAX_LOAD_UV;
         c.thresholds.load_min_uv = MAX_LOAD_UV - 1;
         c.name = name("greenhouse-3 row:B_2.1");
+        assert_eq!(validate(&c), Ok(()));
+        c.converter.mppt_fraction_ppm = MIN_MPPT_FRACTION_PPM;
+        assert_eq!(validate(&c), Ok(()));
+        c.converter.mppt_fraction_ppm = MAX_MPPT_FRACTION_PPM;
         assert_eq!(validate(&c), Ok(()));
         c.name = name(&"x".repeat(gleaner_protocol::NODE_NAME_LEN));
         assert_eq!(validate(&c), Ok(()));

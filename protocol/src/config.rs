@@ -117,6 +117,31 @@ pub struct Thresholds {
     pub brownout_horizon_ms: u32,
 }
 
+/// How the converter treats its input and output, as far as the forecasts
+/// need to know (from its data sheet or its setting resistors).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct ConverterModel {
+    /// The fraction of the source's open-circuit voltage at which the
+    /// converter holds its input while converting at full power (fractional
+    /// open-circuit-voltage MPPT), in ppm; 0 when its input follows another
+    /// rule (a resistive input, a fixed voltage) or is not known.
+    pub mppt_fraction_ppm: u32,
+    /// True when the converter regulates its output: once the output is full
+    /// it draws only what the load takes, its input rises towards open
+    /// circuit, and the node no longer sees the voltage its stop comparator
+    /// watches while it converts.
+    pub output_regulated: bool,
+}
+
+impl ConverterModel {
+    /// Nothing known: forecasts read the input as it is measured.
+    pub const UNKNOWN: ConverterModel = ConverterModel {
+        mppt_fraction_ppm: 0,
+        output_regulated: false,
+    };
+}
+
 /// Everything a node can be told to change, validated on the node.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
@@ -133,4 +158,6 @@ pub struct NodeConfig {
     pub load_restore_ms: u32,
     /// The user's name for the node; empty when unset.
     pub name: NodeName,
+    /// What the node knows of its converter.
+    pub converter: ConverterModel,
 }

@@ -25,11 +25,13 @@
 //! * any other change (a field added, removed or reordered, a variant moved)
 //!   bumps the major number. Hosts refuse a node whose major version differs
 //!   from their own ([`ProtocolVersion::check_compatible`]), but read recorded
-//!   protocol 1 frames through [`v1`].
+//!   protocol 1 and 2 frames through [`v1`] and [`v2`] ([`decode_uplink_any`]).
 //!
-//! Protocol 2 (this crate) added the node's identity and name, the load's
+//! Protocol 2 added the node's identity and name, the load's
 //! supply thresholds, load events, the brown-out forecast with averaged load
 //! and net power, hourly harvest slots with their predictions, and the trigger values of transitions.
+//! Protocol 3 added what the node knows of its converter ([`ConverterModel`]:
+//! its MPPT fraction and whether it regulates its output) to the configuration.
 //!
 //! Golden-byte tests pin the encoding of every message kind.
 //!
@@ -66,6 +68,7 @@
     )
 )]
 
+mod compat;
 mod config;
 mod decoder;
 mod downlink;
@@ -73,10 +76,13 @@ mod error;
 mod frame;
 mod uplink;
 pub mod v1;
+pub mod v2;
 mod version;
 
+pub use compat::{decode_uplink_any, OLDER_MAJORS};
 pub use config::{
-    Calibration, Channel, ChannelCal, NodeConfig, NodeName, Thresholds, NODE_NAME_LEN,
+    Calibration, Channel, ChannelCal, ConverterModel, NodeConfig, NodeName, Thresholds,
+    NODE_NAME_LEN,
 };
 pub use decoder::{Decoder, DecoderStats, FrameSplitter};
 pub use downlink::{Command, Downlink, MAX_BURST_SAMPLES};

@@ -448,6 +448,8 @@ pub enum Refusal {
     LoadThresholdsOutOfRange,
     /// The node name holds characters other than letters, digits, space and `-_.:`.
     NodeNameInvalid,
+    /// The converter's MPPT fraction is neither 0 nor between 5 % and 99 %.
+    MpptFractionOutOfRange,
 }
 
 impl Refusal {
@@ -475,6 +477,9 @@ impl Refusal {
             }
             Refusal::NodeNameInvalid => {
                 "the node name may hold only letters, digits, spaces and - _ . : (no leading or trailing space)"
+            }
+            Refusal::MpptFractionOutOfRange => {
+                "the converter's MPPT fraction must be 0 (none) or 5 % to 99 % of open circuit"
             }
         }
     }

@@ -11,13 +11,12 @@ use postcard::experimental::max_size::MaxSize;
 use serde::{Deserialize, Serialize};
 
 use crate::config::{Calibration, NodeName};
-use crate::frame::{open_frame, parse_body, Message};
+use crate::frame::Message;
 use crate::uplink::{
     ChannelStats, ConfigSource, ConverterState, EnergyTotals, Reply, ReportFlags, SampleBlock,
     StateDurations, TransitionCause,
 };
 use crate::version::{FirmwareVersion, ProtocolVersion};
-use crate::FrameError;
 
 /// Protocol 1's thresholds.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
@@ -118,7 +117,7 @@ impl Message for Uplink {
 /// Protocol 1 had no load thresholds: its storage forecast counted down to
 /// `output_down_uv`, so that stands in for the load's minimum, `output_up_uv`
 /// for its restart, and the forecast horizon for the brown-out horizon. The
-/// name is empty.
+/// name is empty and the converter unknown.
 impl From<NodeConfig> for crate::NodeConfig {
     fn from(c: NodeConfig) -> Self {
         let t = c.thresholds;
@@ -142,6 +141,7 @@ impl From<NodeConfig> for crate::NodeConfig {
             output_storage_uf: c.output_storage_uf,
             load_restore_ms: c.load_restore_ms,
             name: NodeName::new(),
+            converter: crate::ConverterModel::UNKNOWN,
         }
     }
 }
@@ -228,48 +228,5 @@ impl From<Uplink> for crate::Uplink {
             uptime_ms: m.uptime_ms,
             body,
         }
-    }
-}
-
-/// Decodes an uplink frame of either protocol: the current layout, or
-/// protocol 1's converted. `prefer_major` (from the boot's `Hello`, when
-/// known) says which to try first. Returns the message and the major
-/// version it was read as. COBS is undone in place.
-pub fn decode_uplink_any(
-    encoded: &mut [u8],
-    prefer_major: Option<u8>,
-) -> Result<(crate::Uplink, u8), FrameError> {
-    let body = open_frame(encoded)?;
-    let current = crate::PROTOCOL_VERSION.major;
-    // A `Hello` names its own version first, at the same place in both
-    // layouts: a protocol 1 Hello read as the current layout, or any other
-    // read as protocol 1, is refused here. (A Hello of a newer major passes,
-    // so the caller can say which versions differ.)
-    let is_v1 = |message: &crate::Uplink| match &message.body {
-        crate::UplinkBody::Hello(h) => Some(h.protocol.major == 1),
-        _ => None,
-    };
-    let try_current = || {
-        let message = parse_body::<crate::Uplink>(body)?;
-        match is_v1(&message) {
-            Some(true) => Err(FrameError::Malformed),
-            _ => Ok((message, current)),
-        }
-    };
-    let try_v1 = || {
-        let message: crate::Uplink = parse_body::<Uplink>(body)?.into();
-        match is_v1(&message) {
-            Some(false) => Err(FrameError::Malformed),
-            _ => Ok((message, 1)),
-        }
-    };
-    if prefer_major == Some(1) {
-        try_v1().or_else(|_| try_current())
-    } else {
-        // A newer kind than ours is reported as such, not retried as protocol 1.
-        try_current().or_else(|error| match error {
-            FrameError::UnknownVariant => Err(error),
-            _ => try_v1().map_err(|_| error),
-        })
     }
 }

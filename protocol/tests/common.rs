@@ -42,6 +42,10 @@ pub fn example_config() -> NodeConfig {
         output_storage_uf: 100_000,
         load_restore_ms: 30_000,
         name: NodeName::try_from("greenhouse-3").unwrap(),
+        converter: ConverterModel {
+            mppt_fraction_ppm: 780_000,
+            output_regulated: true,
+        },
     }
 }
 

@@ -22,7 +22,7 @@ fn decode_all(bytes: &[u8]) -> (Vec<Result<Uplink, FrameError>>, DecoderStats) {
 // Golden bytes: an accidental change of the wire format fails here. Regenerate
 // only with a deliberate protocol version bump.
 const GOLDEN: [(&str, &str); 7] = [
-    ("hello", "01020c020201020117ef9bafcdf8acd1910181dcff870c904e0c80c0ea92030c8080d2f83e178080d5a5064c8080d5a5060680ea30e0dc2ad0860380897a80d461c801904ee0d403d00fc0ee6d80897ac0ee6de807a08d06b0ea010c677265656e686f7573652d3301959aef3af8948c2fa313f51ce0c600"),
+    ("hello", "01020c020301020117ef9bafcdf8acd1910181dcff870c904e0c80c0ea92030c8080d2f83e178080d5a506508080d5a5060680ea30e0dc2ad0860380897a80d461c801904ee0d403d00fc0ee6d80897ac0ee6de807a08d06b0ea010c677265656e686f7573652d33e0cd2f0101959aef3af8948c2fa31354b7b12c00"),
     ("report", "34e12180dddb0101e80764809f49a09c019875c0843dd08603c0b802a0b5c901904ee80790a10fd0e20ef0f0e401809f49a8ad3202020103e8070101010d01c0cbc902a8ad32a09c010101054d312ce800"),
     ("event", "1de221fadedb0102020404f8d42a80a8c301d08e2ae09abd01399c8f8a00"),
     ("samples", "050788270372e007e80708809f49c0843da0b5c90190a10fa0a549c0843da0b5c90190a10fc0ab49c0843da0b5c90190a10fe0b149c0843da0b5c90190a10f80b849c0843da0b5c90190a10fa0be49c0843da0b5c90190a10fc0c449c0843da0b5c90190a10fe0ca49c0843da0b5c90190a10fc57926e800"),
@@ -31,8 +31,12 @@ const GOLDEN: [(&str, &str); 7] = [
     ("harvest", "20b12280bab703060180dddb01a0fe0a01c09a0c01a8a50b01e0fb7304df1a6900"),
 ];
 
+// Protocol 2's `Hello` (the only kind whose layout protocol 3 changed), as
+// protocol 2 had it: still read, through `decode_uplink_any`.
+const GOLDEN_V2_HELLO: &str = "01020c020201020117ef9bafcdf8acd1910181dcff870c904e0c80c0ea92030c8080d2f83e178080d5a5064c8080d5a5060680ea30e0dc2ad0860380897a80d461c801904ee0d403d00fc0ee6d80897ac0ee6de807a08d06b0ea010c677265656e686f7573652d3301959aef3af8948c2fa313f51ce0c600";
+
 // Protocol 1's golden bytes of the same messages (as protocol 1 had them):
-// still read, through `v1::decode_uplink_any`.
+// still read, through `decode_uplink_any`.
 const GOLDEN_V1: [(&str, &str); 5] = [
     ("hello", "01020c02010102010e81dcff870c904e0c80c0ea92030c8080d2f83e178080d5a506368080d5a5060680ea30e0dc2ad0860380897a80d461c801904ee0d403d00fe807a08d06b0ea0101959aef3af8948c2fa3135d55ec7100"),
     ("report", "34e12180dddb0101e80764809f49a09c019875c0843dd08603c0b802a0b5c901904ee80790a10fd0e20ef0f0e401809f49a8ad3202020103e8070101010601c0cbc90201054ec8586c00"),
@@ -77,7 +81,7 @@ fn protocol_1_frames_are_still_read() {
             .map(|i| u8::from_str_radix(&golden[i..i + 2], 16).unwrap())
             .collect();
         // A log knows its boot's protocol from the boot's Hello.
-        let (message, major) = v1::decode_uplink_any(&mut bytes, Some(1)).unwrap();
+        let (message, major) = decode_uplink_any(&mut bytes, Some(1)).unwrap();
         assert_eq!((major, message.body.kind_name()), (1, name));
         decoded.push(message);
     }
@@ -104,8 +108,43 @@ fn protocol_1_frames_are_still_read() {
     // A current frame is read as the current protocol.
     let mut frame = frame_of(&example_hello());
     frame.pop();
-    let (message, major) = v1::decode_uplink_any(&mut frame, None).unwrap();
+    let (message, major) = decode_uplink_any(&mut frame, None).unwrap();
     assert_eq!((major, message), (PROTOCOL_VERSION.major, example_hello()));
+}
+
+fn unhex(text: &str) -> Vec<u8> {
+    (0..text.len())
+        .step_by(2)
+        .map(|i| u8::from_str_radix(&text[i..i + 2], 16).unwrap())
+        .collect()
+}
+
+#[test]
+fn protocol_2_frames_are_still_read() {
+    let mut bytes = unhex(GOLDEN_V2_HELLO);
+    bytes.pop(); // the frame's trailing delimiter
+    let (message, major) = decode_uplink_any(&mut bytes, Some(2)).unwrap();
+    assert_eq!(major, 2);
+    let UplinkBody::Hello(hello) = message.body else {
+        panic!("a hello")
+    };
+    assert_eq!(hello.protocol.major, 2);
+    // Protocol 2 nodes were not told their converter.
+    assert_eq!(hello.config.converter, ConverterModel::UNKNOWN);
+    let UplinkBody::Hello(current) = example_hello().body else {
+        panic!("a hello")
+    };
+    assert_eq!(hello.config.thresholds, current.config.thresholds);
+    assert_eq!(hello.config.name, current.config.name);
+    // Without the boot's version at hand, the Hello says it itself.
+    let mut bytes = unhex(GOLDEN_V2_HELLO);
+    bytes.pop();
+    assert_eq!(decode_uplink_any(&mut bytes, None).unwrap().1, 2);
+    // The other kinds kept their layout: protocol 3's bytes read as protocol 2's.
+    let mut report = frame_of(&example_report());
+    report.pop();
+    let (message, major) = decode_uplink_any(&mut report, Some(2)).unwrap();
+    assert_eq!((major, message), (2, example_report()));
 }
 
 #[test]
@@ -121,7 +160,7 @@ fn golden_bytes_of_downlinks() {
     };
     assert_eq!(
         hex(&frame_of(&set)),
-        "0905020c80c0ea92030c8080d2f83e178080d5a506418080d5a5060680ea30e0dc2ad0860380897a80d461c801904ee0d403d00fc0ee6d80897ac0ee6de807a08d06b0ea010c677265656e686f7573652d33dda5f7ca00"
+        "0905020c80c0ea92030c8080d2f83e178080d5a506458080d5a5060680ea30e0dc2ad0860380897a80d461c801904ee0d403d00fc0ee6d80897ac0ee6de807a08d06b0ea010c677265656e686f7573652d33e0cd2f01d731962000"
     );
 }
 
@@ -282,7 +321,7 @@ fn wire_sizes_of_typical_messages() {
     let report = frame_of(&example_report()).len();
     let samples = frame_of(&example_samples(8)).len();
     let hello = frame_of(&example_hello()).len();
-    assert_eq!((report, samples, hello), (81, 120, 120));
+    assert_eq!((report, samples, hello), (81, 120, 124));
     assert!(
         samples as f64 / 8.0 <= 16.0,
         "a four-channel sample costs at most 16 bytes on the wire"
@@ -347,11 +386,11 @@ fn unknown_variants_are_named_as_such() {
 
 #[test]
 fn version_rule() {
-    assert!(ProtocolVersion::check_compatible(ProtocolVersion { major: 2, minor: 9 }).is_ok());
+    assert!(ProtocolVersion::check_compatible(ProtocolVersion { major: 3, minor: 9 }).is_ok());
     let err =
-        ProtocolVersion::check_compatible(ProtocolVersion { major: 1, minor: 0 }).unwrap_err();
+        ProtocolVersion::check_compatible(ProtocolVersion { major: 2, minor: 0 }).unwrap_err();
     let text = err.to_string();
-    assert!(text.contains("2.0") && text.contains("1.0"), "{text}");
+    assert!(text.contains("3.0") && text.contains("2.0"), "{text}");
 }
 
 fn any_stats() -> impl Strategy<Value = ChannelStats> {

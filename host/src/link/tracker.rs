@@ -3,7 +3,8 @@
 //! framing errors with nothing good is most likely a wrong baud rate.
 
 use gleaner_protocol::{
-    v1, FrameError, ProtocolVersion, Uplink, UplinkBody, VersionMismatch, PROTOCOL_VERSION,
+    decode_uplink_any, FrameError, ProtocolVersion, Uplink, UplinkBody, VersionMismatch,
+    OLDER_MAJORS, PROTOCOL_VERSION,
 };
 use serde::Serialize;
 
@@ -95,7 +96,7 @@ impl LinkTracker {
 
     /// As [`Self::accept_encoded`], decoding in place (the bytes are overwritten).
     pub fn accept_in_place(&mut self, encoded: &mut [u8]) -> Result<Option<Tracked>, TrackError> {
-        match v1::decode_uplink_any(encoded, self.boot_major) {
+        match decode_uplink_any(encoded, self.boot_major) {
             Ok((message, _)) => self.accept(message),
             Err(error) => {
                 self.count_error(error);
@@ -119,8 +120,8 @@ impl LinkTracker {
     pub fn accept(&mut self, message: Uplink) -> Result<Option<Tracked>, TrackError> {
         let mut reboot = false;
         if let UplinkBody::Hello(hello) = &message.body {
-            // Protocol 1 is still read (converted); any other major must match ours.
-            if hello.protocol.major != 1 {
+            // Protocols 1 and 2 are still read (converted); any other major must match ours.
+            if !OLDER_MAJORS.contains(&hello.protocol.major) {
                 ProtocolVersion::check_compatible(hello.protocol).map_err(TrackError::Version)?;
             }
             self.boot_major = Some(hello.protocol.major);

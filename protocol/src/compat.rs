@@ -1,0 +1,66 @@
+//! Reading frames of every protocol major a host may meet in a log: the
+//! current one, and protocols 1 and 2 converted ([`crate::v1`], [`crate::v2`]).
+
+use crate::frame::{open_frame, parse_body};
+use crate::{FrameError, Uplink, UplinkBody, PROTOCOL_VERSION};
+
+/// The older majors still read, oldest first.
+pub const OLDER_MAJORS: [u8; 2] = [1, 2];
+
+/// Decodes an uplink body in the layout of protocol `major`, converted.
+fn parse_as(major: u8, body: &[u8]) -> Result<Uplink, FrameError> {
+    match major {
+        1 => parse_body::<crate::v1::Uplink>(body).map(Into::into),
+        2 => parse_body::<crate::v2::Uplink>(body).map(Into::into),
+        _ => parse_body::<Uplink>(body),
+    }
+}
+
+/// A `Hello` names its own version first, at the same place in every
+/// layout: one read in the layout of `major` must say `major` (a current
+/// layout also passes a newer one, so the caller can say which versions
+/// differ). Other messages carry no version and pass.
+fn consistent(message: &Uplink, major: u8) -> bool {
+    match &message.body {
+        UplinkBody::Hello(h) if major == PROTOCOL_VERSION.major => {
+            h.protocol.major >= PROTOCOL_VERSION.major
+        }
+        UplinkBody::Hello(h) => h.protocol.major == major,
+        _ => true,
+    }
+}
+
+/// Decodes an uplink frame of any protocol this crate reads: the current
+/// layout, or protocol 1's or 2's converted. `prefer_major` (from the boot's
+/// `Hello`, when known) says which to try first. Returns the message and the
+/// major version it was read as. COBS is undone in place.
+pub fn decode_uplink_any(
+    encoded: &mut [u8],
+    prefer_major: Option<u8>,
+) -> Result<(Uplink, u8), FrameError> {
+    let body = open_frame(encoded)?;
+    let current = PROTOCOL_VERSION.major;
+    let attempt = |major: u8| {
+        let message = parse_as(major, body)?;
+        if consistent(&message, major) {
+            Ok((message, major))
+        } else {
+            Err(FrameError::Malformed)
+        }
+    };
+    if let Some(major) = prefer_major.filter(|m| OLDER_MAJORS.contains(m)) {
+        if let Ok(found) = attempt(major) {
+            return Ok(found);
+        }
+    }
+    match attempt(current) {
+        Ok(found) => Ok(found),
+        // A newer kind than ours is reported as such, not retried as an older one.
+        Err(FrameError::UnknownVariant) => Err(FrameError::UnknownVariant),
+        Err(error) => OLDER_MAJORS
+            .iter()
+            .rev()
+            .find_map(|&major| attempt(major).ok())
+            .ok_or(error),
+    }
+}
