@@ -24,6 +24,7 @@
 //! * [`brownout_ms`]: the time until the load browns out, from the usable
 //!   storage energy, the net drain, and the input cutoff when one is in sight.
 
+use gleaner_protocol::ConverterModel;
 use heapless::HistoryBuf;
 
 use crate::wide::Wide;
@@ -299,7 +300,12 @@ pub struct Trend<const W: usize> {
     /// Intervals in the block (saturating: a block of a few minutes holds
     /// far fewer than 65,535).
     block_count: u16,
+    /// Intervals in the block that knew each value.
+    value_counts: [u16; W],
 }
+
+/// A point's value that no interval of its block knew.
+pub const UNKNOWN: u32 = u32::MAX;
 
 /// A trend of one value.
 pub type InputTrend = Trend<1>;
@@ -325,10 +331,13 @@ impl<const W: usize> Trend<W> {
             block_time_sum: 0,
             block_sum: [0; W],
             block_count: 0,
+            value_counts: [0; W],
         }
     }
 
-    /// Adds the mean values of an interval centred on `t_ms`.
+    /// Adds the mean values of an interval centred on `t_ms`; [`UNKNOWN`]
+    /// for a value the interval does not know (the block's point averages
+    /// the intervals that knew it, or is unknown itself).
     pub fn push_values(&mut self, t_ms: u64, values: [u32; W]) {
         // Wrapping on purpose: only differences of times are used.
         #[allow(clippy::cast_possible_truncation)]
@@ -338,17 +347,27 @@ impl<const W: usize> Trend<W> {
         }
         let offset = t_wrapped.wrapping_sub(self.block_start_ms);
         self.block_time_sum = self.block_time_sum.saturating_add(offset);
-        for (sum, value) in self.block_sum.iter_mut().zip(values) {
-            *sum = sum.saturating_add(u64::from(value));
+        let known = self.block_sum.iter_mut().zip(self.value_counts.iter_mut());
+        for ((sum, count), value) in known.zip(values) {
+            if value != UNKNOWN {
+                *sum = sum.saturating_add(u64::from(value));
+                *count = count.saturating_add(1);
+            }
         }
         self.block_count = self.block_count.saturating_add(1);
         if offset < self.block_ms {
             return;
         }
-        let count = u64::from(self.block_count);
-        let means = self
-            .block_sum
-            .map(|sum| u32::try_from(sum.checked_div(count).unwrap_or(0)).unwrap_or(u32::MAX));
+        let mut means = [UNKNOWN; W];
+        for ((mean, &sum), &count) in means
+            .iter_mut()
+            .zip(&self.block_sum)
+            .zip(&self.value_counts)
+        {
+            if let Some(m) = sum.checked_div(u64::from(count)) {
+                *mean = u32::try_from(m).unwrap_or(UNKNOWN).min(UNKNOWN - 1);
+            }
+        }
         let mean_offset = self
             .block_time_sum
             .checked_div(u32::from(self.block_count))
@@ -358,6 +377,7 @@ impl<const W: usize> Trend<W> {
         self.block_time_sum = 0;
         self.block_sum = [0; W];
         self.block_count = 0;
+        self.value_counts = [0; W];
     }
 
     /// Forgets every point (after a restart of the converter, say).
@@ -366,6 +386,7 @@ impl<const W: usize> Trend<W> {
         self.block_time_sum = 0;
         self.block_sum = [0; W];
         self.block_count = 0;
+        self.value_counts = [0; W];
     }
 
     /// Milliseconds from the newest point to `now_ms` (wrapping times).
@@ -425,19 +446,19 @@ impl<const W: usize> Trend<W> {
 impl FadeTrend {
     /// Milliseconds from the newest point until the input voltage reaches
     /// `threshold` while the source's power fades away (see [`fade_ms`]).
+    /// Points whose power is [`UNKNOWN`] count for the voltage only.
     pub fn fade_time_to(&self, threshold: u32) -> Option<u32> {
-        if self.points.len() < MIN_LOG_DECLINE_POINTS {
-            return None;
-        }
         let (mut voltage, mut power_line, mut power) =
             (Sums::default(), Sums::default(), QuadSums::default());
         for (dt_ms, [v, p]) in self.since_newest() {
             let t_s = i128::from(dt_ms / 1000);
             voltage.add(t_s, i128::from(v));
-            power_line.add(t_s, i128::from(p));
-            power.add(t_s, i128::from(p));
+            if p != UNKNOWN {
+                power_line.add(t_s, i128::from(p));
+                power.add(t_s, i128::from(p));
+            }
         }
-        if !power_line.falls_clearly() {
+        if power.n < MIN_LOG_DECLINE_POINTS as i128 || !power_line.falls_clearly() {
             return None; // a flat or noisy power is no fading source
         }
         fade_ms(&voltage, &power, i128::from(threshold))
@@ -512,10 +533,164 @@ pub struct InputSeen {
     pub input_uv: u32,
     /// Lowest input voltage of the interval.
     pub input_min_uv: u32,
+    /// Highest input voltage of the interval.
+    pub input_max_uv: u32,
+    /// Highest input current of the interval.
+    pub input_max_na: u32,
     /// Mean input power (energy drawn over the interval).
     pub input_nw: u32,
     /// Length of the interval, µs.
     pub length_us: u64,
+    /// Mean output voltage (a regulated output sits at its ceiling while the
+    /// converter throttles its input).
+    pub output_uv: u32,
+}
+
+/// The output counts as held at its regulated ceiling within this share of
+/// it, ppm (0.1 %: well above the noise of an interval mean, below the fall
+/// of a storage that the converter no longer keeps full).
+pub const REGULATION_BAND_PPM: u32 = 1_000;
+
+/// True when a regulated output at `output_uv` is held at its ceiling (the
+/// converter throttles its input).
+pub fn output_held(output_uv: u32, ceiling_uv: u32) -> bool {
+    let band = u64::from(ceiling_uv)
+        .saturating_mul(u64::from(REGULATION_BAND_PPM))
+        .checked_div(1_000_000)
+        .unwrap_or(0);
+    u64::from(output_uv).saturating_add(band) >= u64::from(ceiling_uv)
+}
+
+/// Parts per million.
+const PPM: u64 = 1_000_000;
+
+/// True when an interval's lowest input sample fell at least halfway from
+/// its highest towards `fraction_ppm` of it: a load burst asked more than the
+/// source gives, and the converter worked at its full-power point for a moment.
+fn reached_full_power(seen: &InputSeen, fraction_ppm: u32) -> bool {
+    let halfway_ppm = PPM.saturating_add(u64::from(fraction_ppm)) / 2;
+    u64::from(seen.input_min_uv).saturating_mul(PPM)
+        <= u64::from(seen.input_max_uv).saturating_mul(halfway_ppm)
+}
+
+/// The input voltage the converter's stop comparator watches, estimated from
+/// an interval's input.
+///
+/// A converter that holds its input at a fraction of the open-circuit voltage
+/// works at that point while it converts at full power, and the node measures
+/// it (the interval's mean). Once a regulated output is full (`output_held`),
+/// the converter draws only what the load takes, in bursts at that point (its
+/// comparator still looks there) with its input resting near open circuit in
+/// between. A load burst that asks more than the source gives shows the point
+/// itself (the interval's lowest sample); without one, the highest sample
+/// reads about the open-circuit voltage, a little under it for a soft source
+/// (`softness_ppm`, learned by [`Softness`]), and the point is the fraction of it.
+pub fn watched_input_uv(
+    seen: &InputSeen,
+    converter: &ConverterModel,
+    output_held: bool,
+    softness_ppm: u32,
+) -> u32 {
+    let fraction = converter.mppt_fraction_ppm;
+    if fraction == 0 || !converter.output_regulated {
+        return seen.input_uv;
+    }
+    if reached_full_power(seen, fraction) {
+        return seen.input_min_uv;
+    }
+    if !output_held {
+        return seen.input_uv;
+    }
+    let watched = u64::from(seen.input_max_uv)
+        .saturating_mul(u64::from(fraction))
+        .saturating_mul(u64::from(softness_ppm))
+        .checked_div(PPM.saturating_mul(PPM))
+        .unwrap_or(0);
+    u32::try_from(watched).unwrap_or(u32::MAX)
+}
+
+/// The power the source could give at the converter's full-power point, nW,
+/// or [`UNKNOWN`]: the interval's mean while the converter works at full
+/// power; the lowest voltage times the highest current when a load burst
+/// reached full power while the output was held (a fractional-MPPT converter
+/// whose output is regulated); unknown between such bursts (the converter
+/// takes only what the load needs).
+pub fn available_nw(seen: &InputSeen, converter: &ConverterModel, output_held: bool) -> u32 {
+    let fraction = converter.mppt_fraction_ppm;
+    if fraction == 0 || !converter.output_regulated {
+        return seen.input_nw;
+    }
+    if reached_full_power(seen, fraction) {
+        // µV · nA = 1e-15 W = 1e-6 nW.
+        let nw = u64::from(seen.input_min_uv)
+            .saturating_mul(u64::from(seen.input_max_na))
+            .checked_div(PPM)
+            .unwrap_or(0);
+        return u32::try_from(nw).unwrap_or(UNKNOWN - 1).min(UNKNOWN - 1);
+    }
+    if output_held {
+        UNKNOWN
+    } else {
+        seen.input_nw
+    }
+}
+
+/// How far a throttled input sits under the open-circuit voltage, learned
+/// from the load's bursts: when one asks more than the source gives, the
+/// converter works at its full-power point for a moment and the interval's
+/// lowest sample reads the watched point itself, so
+/// `lowest / (fraction × highest)` is open circuit over the throttled
+/// reading. A burst that did not quite reach full power reads more than the
+/// truth, so the smallest ratio since the converter started is kept
+/// (slightly small when a cloud passed within an interval: the safe side).
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct Softness {
+    /// 0 until learned.
+    ratio_ppm: u32,
+}
+
+impl Softness {
+    /// Nothing learned.
+    pub const fn new() -> Self {
+        Softness { ratio_ppm: 0 }
+    }
+
+    /// The ratio, ppm; one (the throttled reading taken for open circuit)
+    /// until learned.
+    pub const fn ratio_ppm(&self) -> u32 {
+        if self.ratio_ppm == 0 {
+            1_000_000
+        } else {
+            self.ratio_ppm
+        }
+    }
+
+    /// Learns from an interval with the output held (`fraction_ppm` of the
+    /// converter) when a burst in it reached full power.
+    pub fn push(&mut self, seen: &InputSeen, fraction_ppm: u32) {
+        if !reached_full_power(seen, fraction_ppm) {
+            return;
+        }
+        let reading = u64::from(seen.input_max_uv).saturating_mul(u64::from(fraction_ppm));
+        let Some(ratio) = u64::from(seen.input_min_uv)
+            .saturating_mul(PPM)
+            .saturating_mul(PPM)
+            .checked_div(reading)
+        else {
+            return;
+        };
+        let ratio = u32::try_from(ratio.max(PPM)).unwrap_or(u32::MAX);
+        self.ratio_ppm = if self.ratio_ppm == 0 {
+            ratio
+        } else {
+            self.ratio_ppm.min(ratio)
+        };
+    }
+
+    /// Forgets what was learned.
+    pub fn clear(&mut self) {
+        *self = Softness::new();
+    }
 }
 
 /// Time constant over which a held dip is forgotten (10 minutes: several of a
@@ -582,8 +757,12 @@ pub struct CutoffForecaster {
     recent: FadeTrend,
     /// Input voltage over the last half hour.
     long: InputTrend,
-    /// How far the input falls below its mean within an interval, held.
+    /// How far the input falls below the watched point within an interval, held.
     dip: HeldDip,
+    /// Highest interval mean of the output since the converter started, µV.
+    output_ceiling_uv: u32,
+    /// How far the throttled input sits under open circuit.
+    softness: Softness,
 }
 
 impl Default for CutoffForecaster {
@@ -599,18 +778,24 @@ impl CutoffForecaster {
             recent: FadeTrend::new(Fit::Squared, RECENT_TREND_BLOCK_MS),
             long: InputTrend::new(Fit::Squared, LONG_TREND_BLOCK_MS),
             dip: HeldDip::new(),
+            output_ceiling_uv: 0,
+            softness: Softness::new(),
         }
     }
 
-    /// Adds the means of an interval centred on `t_ms`.
-    pub fn push(&mut self, t_ms: u64, seen: InputSeen) {
-        self.recent
-            .push_values(t_ms, [seen.input_uv, seen.input_nw]);
-        self.long.push(t_ms, seen.input_uv);
-        self.dip.push(
-            seen.input_uv.saturating_sub(seen.input_min_uv),
-            seen.length_us,
-        );
+    /// Adds the means of an interval centred on `t_ms`, read as `converter` says.
+    pub fn push(&mut self, t_ms: u64, seen: InputSeen, converter: &ConverterModel) {
+        self.output_ceiling_uv = self.output_ceiling_uv.max(seen.output_uv);
+        let held = output_held(seen.output_uv, self.output_ceiling_uv);
+        if held && converter.output_regulated && converter.mppt_fraction_ppm > 0 {
+            self.softness.push(&seen, converter.mppt_fraction_ppm);
+        }
+        let watched = watched_input_uv(&seen, converter, held, self.softness.ratio_ppm());
+        let available = available_nw(&seen, converter, held);
+        self.recent.push_values(t_ms, [watched, available]);
+        self.long.push(t_ms, watched);
+        self.dip
+            .push(watched.saturating_sub(seen.input_min_uv), seen.length_us);
     }
 
     /// Forgets everything (the converter restarted).
@@ -618,6 +803,8 @@ impl CutoffForecaster {
         self.recent.clear();
         self.long.clear();
         self.dip.clear();
+        self.output_ceiling_uv = 0;
+        self.softness.clear();
     }
 
     /// Milliseconds from `now_ms` until the input is cut off at `hold_uv`.
@@ -629,15 +816,18 @@ impl CutoffForecaster {
         // The curve is read only where the half hour is a steady fall (the
         // line through it is good): a cloud's dip and recovery is no sunset.
         let curve = long.and_then(|_| self.long.log_decline_to(trip_uv));
-        [
-            from_now(recent_age, self.recent.time_to_reach(trip_uv)),
-            from_now(recent_age, self.recent.fade_time_to(trip_uv)),
-            from_now(long_age, long),
-            from_now(long_age, curve),
-        ]
-        .into_iter()
-        .flatten()
-        .min()
+        // A source whose power fades follows the fade model; the voltage
+        // trends lag its acceleration.
+        from_now(recent_age, self.recent.fade_time_to(trip_uv)).or_else(|| {
+            [
+                from_now(recent_age, self.recent.time_to_reach(trip_uv)),
+                from_now(long_age, long),
+                from_now(long_age, curve),
+            ]
+            .into_iter()
+            .flatten()
+            .min()
+        })
     }
 }
 
@@ -886,9 +1076,13 @@ mod tests {
                 InputSeen {
                     input_uv: v,
                     input_min_uv: v,
+                    input_max_uv: v,
+                    input_max_na: 100,
                     input_nw: 100_000,
                     length_us: 10_000_000,
+                    output_uv: 3_300_000,
                 },
+                &ConverterModel::UNKNOWN,
             );
             short_only.push(i * 10_000, v);
         }
@@ -969,6 +1163,101 @@ mod tests {
         }
         assert_eq!(steady.fade_time_to(800_000), None);
         Ok(())
+    }
+
+    /// An interval of a fractional-MPPT converter: mean, lowest and highest
+    /// input, highest input current, mean output.
+    fn interval(mean: u32, min: u32, max: u32, max_na: u32, output_uv: u32) -> InputSeen {
+        InputSeen {
+            input_uv: mean,
+            input_min_uv: min,
+            input_max_uv: max,
+            input_max_na: max_na,
+            input_nw: 150_000,
+            length_us: 10_000_000,
+            output_uv,
+        }
+    }
+
+    const MPPT_80: ConverterModel = ConverterModel {
+        mppt_fraction_ppm: 800_000,
+        output_regulated: true,
+    };
+
+    #[test]
+    fn the_watched_point_is_read_as_the_converter_works() {
+        // Output held at 3.300 V (within 0.1 %: 3.2967 V and up).
+        assert!(output_held(3_297_000, 3_300_000));
+        assert!(!output_held(3_296_000, 3_300_000));
+        let calm = interval(1_250_000, 1_249_000, 1_251_000, 200_000, 3_300_000);
+        // Throttled, no burst at full power: 80 % of the highest sample,
+        // 1.0008 V; with a source 3 % soft, 1.0308 V.
+        assert_eq!(
+            watched_input_uv(&calm, &MPPT_80, true, 1_000_000),
+            1_000_800
+        );
+        assert_eq!(
+            watched_input_uv(&calm, &MPPT_80, true, 1_030_000),
+            1_030_824
+        );
+        // The storage falling (not held): the converter works at its point.
+        assert_eq!(
+            watched_input_uv(&calm, &MPPT_80, false, 1_030_000),
+            1_250_000
+        );
+        // A burst pulled a sample from 1.251 V to 1.04 V, past halfway to
+        // 80 % (1.1259 V): that sample is the point.
+        let burst = interval(1_230_000, 1_040_000, 1_251_000, 3_000_000, 3_299_000);
+        assert_eq!(
+            watched_input_uv(&burst, &MPPT_80, true, 1_000_000),
+            1_040_000
+        );
+        // Without a fraction, the mean is the point.
+        assert_eq!(
+            watched_input_uv(&burst, &ConverterModel::UNKNOWN, true, 1_000_000),
+            1_230_000
+        );
+    }
+
+    #[test]
+    fn available_power_is_known_at_full_power_only() {
+        let calm = interval(1_250_000, 1_249_000, 1_251_000, 200_000, 3_300_000);
+        let burst = interval(1_230_000, 1_040_000, 1_251_000, 3_000_000, 3_299_000);
+        // 1.04 V at 3 mA = 3.12 mW.
+        assert_eq!(available_nw(&burst, &MPPT_80, true), 3_120_000);
+        assert_eq!(available_nw(&calm, &MPPT_80, true), UNKNOWN);
+        assert_eq!(available_nw(&calm, &MPPT_80, false), 150_000);
+        assert_eq!(available_nw(&calm, &ConverterModel::UNKNOWN, true), 150_000);
+    }
+
+    #[test]
+    fn softness_is_the_smallest_ratio_of_bursts_at_full_power() {
+        let mut soft = Softness::new();
+        assert_eq!(soft.ratio_ppm(), 1_000_000);
+        // No burst at full power: nothing learned.
+        soft.push(&interval(1_250_000, 1_249_000, 1_251_000, 0, 0), 800_000);
+        assert_eq!(soft.ratio_ppm(), 1_000_000);
+        // 1.04 / (0.8 · 1.25) = 1.04; then a burst that stopped short, 1.10.
+        soft.push(&interval(1_200_000, 1_040_000, 1_250_000, 0, 0), 800_000);
+        assert_eq!(soft.ratio_ppm(), 1_040_000);
+        soft.push(&interval(1_200_000, 1_100_000, 1_250_000, 0, 0), 800_000);
+        assert_eq!(soft.ratio_ppm(), 1_040_000);
+        soft.clear();
+        assert_eq!(soft.ratio_ppm(), 1_000_000);
+    }
+
+    #[test]
+    fn blocks_average_the_values_they_know() {
+        let mut trend = FadeTrend::new(Fit::Squared, 20_000);
+        trend.push_values(0, [1_000_000, 300]);
+        trend.push_values(10_000, [1_000_100, UNKNOWN]);
+        trend.push_values(20_000, [1_000_200, 600]);
+        // Voltage over three intervals, power over the two that knew it.
+        assert_eq!(trend.points.recent(), Some(&(10_000, [1_000_100, 450])));
+        for t in [30_000, 40_000, 50_000] {
+            trend.push_values(t, [1_000_000, UNKNOWN]);
+        }
+        assert_eq!(trend.points.recent(), Some(&(40_000, [1_000_000, UNKNOWN])));
     }
 
     #[test]

@@ -545,12 +545,16 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             let seen = InputSeen {
                 input_uv,
                 input_min_uv: summary.input_uv.min(),
+                input_max_uv: summary.input_uv.max(),
+                input_max_na: summary.input_na.max(),
                 input_nw: u32::try_from(input_nw).unwrap_or(u32::MAX),
                 length_us,
+                output_uv: summary.output_uv.mean,
             };
             // The means stand for the middle of the interval.
             let middle_ms = now_ms.saturating_sub(length_us / 2000);
-            self.cutoff_forecast.push(middle_ms, seen);
+            self.cutoff_forecast
+                .push(middle_ms, seen, &self.config.converter);
             self.cutoff_forecast.time_to_cutoff(now_ms, t.hold_uv)
         } else {
             None

@@ -54,6 +54,12 @@ pub struct NodeSettings {
     pub brownout_horizon_s: Option<f64>,
     /// The node's name (letters, digits, space and - _ . :).
     pub name: Option<String>,
+    /// The fraction of the source's open-circuit voltage at which the
+    /// converter holds its input (fractional open-circuit MPPT, from its data
+    /// sheet or setting resistors), 0.05 to 0.99; 0 when it has none.
+    pub mppt_fraction: Option<f64>,
+    /// True when the converter regulates its output voltage.
+    pub output_regulated: Option<bool>,
     /// The front-end, from which the calibration is computed.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub front_end: Option<FrontEndParams>,
@@ -228,6 +234,8 @@ impl NodeSettings {
             load_restart_v: v(t.load_restart_uv),
             brownout_horizon_s: s(t.brownout_horizon_ms),
             name: Some(c.name.as_str().to_owned()),
+            mppt_fraction: Some(f64::from(c.converter.mppt_fraction_ppm) / 1e6),
+            output_regulated: Some(c.converter.output_regulated),
             front_end: None,
             two_point: None,
         }
@@ -298,6 +306,17 @@ impl NodeSettings {
                     gleaner_protocol::NODE_NAME_LEN
                 )
             })?;
+        }
+        if let Some(f) = self.mppt_fraction {
+            if !(0.0..=1.0).contains(&f) {
+                bail!(
+                    "mppt_fraction = {f} is outside 0 to 1 (a share of the open-circuit voltage)"
+                );
+            }
+            c.converter.mppt_fraction_ppm = (f * 1e6).round() as u32;
+        }
+        if let Some(regulated) = self.output_regulated {
+            c.converter.output_regulated = regulated;
         }
         if let Some(fe) = &self.front_end {
             if self.two_point.is_some() {

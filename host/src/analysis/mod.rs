@@ -93,6 +93,27 @@ pub struct BootInfo {
     pub report_interval_s: f64,
     /// Output storage, F.
     pub storage_f: f64,
+    /// The converter's MPPT fraction of open circuit; None when it has none
+    /// or the node was not told (protocol 1 and 2 logs).
+    pub mppt_fraction: Option<f64>,
+    /// True when the node was told its converter regulates its output.
+    pub output_regulated: bool,
+}
+
+impl BootInfo {
+    /// How the converter was described to the node, in words.
+    pub fn converter_words(&self) -> String {
+        let input = match self.mppt_fraction {
+            Some(f) => format!("MPPT at {:.0} % of open circuit", f * 100.0),
+            None => "no MPPT fraction".to_owned(),
+        };
+        let output = if self.output_regulated {
+            "regulated output"
+        } else {
+            "unregulated output"
+        };
+        format!("{input}, {output}")
+    }
 }
 
 /// Time in one state.
@@ -474,6 +495,11 @@ impl Analyzer {
             load_min_v: f64::from(t.load_min_uv) / 1e6,
             report_interval_s: f64::from(h.config.report_interval_ms) / 1e3,
             storage_f: f64::from(h.config.output_storage_uf) / 1e6,
+            mppt_fraction: match h.config.converter.mppt_fraction_ppm {
+                0 => None,
+                ppm => Some(f64::from(ppm) / 1e6),
+            },
+            output_regulated: h.config.converter.output_regulated,
         };
         match self.boots.iter_mut().find(|b| b.index == index) {
             Some(existing) => *existing = info,

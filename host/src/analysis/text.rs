@@ -221,7 +221,7 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
     for b in &r.boots {
         writeln!(
             o,
-            "  boot {}       node {}{}, id {:08x}, firmware {}, protocol {}, config {} (start {:.3} V, stop {:.3} V, load minimum {:.3} V, storage {} F)",
+            "  boot {}       node {}{}, id {:08x}, firmware {}, protocol {}, config {} (start {:.3} V, stop {:.3} V, load minimum {:.3} V, storage {} F, {})",
             b.index,
             b.node_id,
             if b.node_name.is_empty() { String::new() } else { format!(" \"{}\"", b.node_name) },
@@ -232,7 +232,8 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
             b.start_v,
             b.stop_v,
             b.load_min_v,
-            b.storage_f
+            b.storage_f,
+            b.converter_words()
         )?;
     }
     writeln!(o, "  duration     {}", duration(r.duration_s))?;

@@ -128,6 +128,12 @@ pub struct SetConfig {
     /// Output storage, µF (0: none).
     #[arg(long)]
     pub output_storage_uf: Option<u32>,
+    /// The converter's MPPT fraction of the open-circuit voltage, 0.05 to 0.99 (0: none).
+    #[arg(long)]
+    pub mppt_fraction: Option<f64>,
+    /// Whether the converter regulates its output voltage.
+    #[arg(long)]
+    pub output_regulated: Option<bool>,
 }
 
 impl SetConfig {
@@ -152,7 +158,9 @@ impl SetConfig {
             output_good_v,
             output_lost_v,
             debounce_ms,
-            output_storage_uf
+            output_storage_uf,
+            mppt_fraction,
+            output_regulated
         );
         Ok(s)
     }
@@ -426,6 +434,19 @@ pub fn print_hello(h: &Hello) -> std::io::Result<()> {
         "  output storage    {} µF, load restored after {} ms",
         h.config.output_storage_uf,
         h.config.load_restore_ms
+    )?;
+    let converter = &h.config.converter;
+    say!(
+        "  converter         {}, {} output",
+        match converter.mppt_fraction_ppm {
+            0 => "no MPPT fraction".to_owned(),
+            ppm => format!("MPPT at {:.1} % of open circuit", f64::from(ppm) / 1e4),
+        },
+        if converter.output_regulated {
+            "regulated"
+        } else {
+            "unregulated"
+        }
     )?;
     say!(
         "totals since reset: drawn {} nJ, delivered {} nJ, stored {} nJ",

@@ -151,6 +151,7 @@ fn run(page: &mut String, r: &RunReport) {
             "start / stop",
             "load minimum",
             "storage",
+            "converter",
         ],
         r.boots.iter().map(|b| {
             let name = if b.node_name.is_empty() {
@@ -168,6 +169,7 @@ fn run(page: &mut String, r: &RunReport) {
                 format!("{:.3} V / {:.3} V", b.start_v, b.stop_v),
                 format!("{:.3} V", b.load_min_v),
                 format!("{} F", b.storage_f),
+                escape(&b.converter_words()),
             ]
         }),
     );
