@@ -80,13 +80,18 @@ pub fn wanted_transition(
 /// `Sagging`: a passing cloud's dip is over before then, a sunset is not.
 pub const FORECAST_CONFIRM_DIVISOR: u32 = 4;
 
-/// How long the condition for a transition with `cause` must hold: the
-/// debounce time, and for a forecast a quarter of the horizon.
-pub fn hold_time_ms(cause: TransitionCause, t: &Thresholds) -> u32 {
-    match cause {
-        TransitionCause::ForecastUnderHorizon => t
-            .debounce_ms
-            .max(t.forecast_horizon_ms / FORECAST_CONFIRM_DIVISOR),
+/// How long the condition for a transition from `from` with `cause` must
+/// hold: the debounce time; for Sagging raised by a forecast, and for leaving
+/// Sagging once the input and forecast are clear, a quarter of the horizon
+/// (a forecast missing for a few minutes while clouds pass does not end a
+/// warning that the next minutes renew).
+pub fn hold_time_ms(from: ConverterState, cause: TransitionCause, t: &Thresholds) -> u32 {
+    let confirm = t
+        .debounce_ms
+        .max(t.forecast_horizon_ms / FORECAST_CONFIRM_DIVISOR);
+    match (from, cause) {
+        (_, TransitionCause::ForecastUnderHorizon) => confirm,
+        (ConverterState::Sagging, TransitionCause::Recovered) => confirm,
         _ => t.debounce_ms,
     }
 }
@@ -150,7 +155,8 @@ impl CutoffDetector {
                 trigger: *seen,
             },
         };
-        if now_ms.saturating_sub(pending.since_ms) < u64::from(hold_time_ms(pending.cause, t)) {
+        let hold_ms = hold_time_ms(self.state, pending.cause, t);
+        if now_ms.saturating_sub(pending.since_ms) < u64::from(hold_ms) {
             self.pending = Some(pending);
             return None;
         }
@@ -294,7 +300,7 @@ mod tests {
     }
 
     #[test]
-    fn a_short_forecast_must_last_a_quarter_horizon_before_sagging() -> Result<(), &'static str> {
+    fn sagging_is_raised_and_left_after_a_quarter_horizon() -> Result<(), &'static str> {
         // Default horizon 60 s, debounce 200 ms: the forecast needs 15 s.
         let mut detector = CutoffDetector::new(0);
         let mut seen = obs(GOOD, OUT_UP);
@@ -313,6 +319,20 @@ mod tests {
             .update(1_000 + confirm, &seen, &T)
             .ok_or("Sagging after a quarter horizon")?;
         assert_eq!((event.to, event.cause), (Sagging, ForecastUnderHorizon));
+        // Leaving needs as long: a forecast gone for less (clouds hide the
+        // trend) keeps the warning up.
+        let start = 1_000 + confirm + 100;
+        seen.input_cutoff_in_ms = None;
+        for ms in (start..start + confirm).step_by(100) {
+            assert_eq!(detector.update(ms, &seen, &T), None);
+        }
+        let event = detector
+            .update(start + confirm, &seen, &T)
+            .ok_or("Harvesting after a quarter horizon clear")?;
+        assert_eq!((event.to, event.cause), (Harvesting, Recovered));
+        // Other transitions keep the debounce time.
+        assert_eq!(hold_time_ms(Stalled, Recovered, &T), T.debounce_ms);
+        assert_eq!(hold_time_ms(Sagging, InputBelowHold, &T), T.debounce_ms);
         Ok(())
     }
 
