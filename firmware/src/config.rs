@@ -26,10 +26,10 @@ pub const MAX_SAG_MARGIN_UV: u32 = 1_000_000;
 pub const MAX_STORAGE_UF: u32 = 1_000_000_000;
 /// Highest accepted load voltage threshold (60 V).
 pub const MAX_LOAD_UV: u32 = 60_000_000;
-/// Lowest accepted MPPT fraction of a converter (5 %; 0 says there is none).
-pub const MIN_MPPT_FRACTION_PPM: u32 = 50_000;
-/// Highest accepted MPPT fraction of a converter (99 %).
-pub const MAX_MPPT_FRACTION_PPM: u32 = 990_000;
+/// Lowest accepted MPPT fraction of a converter (0 says there is none).
+pub const MIN_MPPT_FRACTION_PPM: u32 = ConverterModel::MIN_MPPT_FRACTION_PPM;
+/// Highest accepted MPPT fraction of a converter.
+pub const MAX_MPPT_FRACTION_PPM: u32 = ConverterModel::MAX_MPPT_FRACTION_PPM;
 /// Largest accepted channel scale: 10^9 units per count, in Q20.
 pub const MAX_SCALE_Q20: u64 = 1_000_000_000 << 20;
 

@@ -56,7 +56,8 @@ pub struct NodeSettings {
     pub name: Option<String>,
     /// The fraction of the source's open-circuit voltage at which the
     /// converter holds its input (fractional open-circuit MPPT, from its data
-    /// sheet or setting resistors), 0.05 to 0.99; 0 when it has none.
+    /// sheet or setting resistors); 0 when it has none. The node refuses a
+    /// value outside its accepted range.
     pub mppt_fraction: Option<f64>,
     /// True when the converter regulates its output voltage.
     pub output_regulated: Option<bool>,
@@ -375,8 +376,14 @@ mod tests {
         config.thresholds.input_idle_na = 1_234;
         config.load_restore_ms = 90_500;
         config.name = gleaner_protocol::NodeName::try_from("greenhouse 3").unwrap();
+        config.converter.mppt_fraction_ppm = 780_000;
+        config.converter.output_regulated = true;
         let settings = NodeSettings::from_config(&config);
         assert_eq!(settings.stop_v, Some(0.312345));
+        assert_eq!(
+            (settings.mppt_fraction, settings.output_regulated),
+            (Some(0.78), Some(true))
+        );
         assert_eq!(settings.load_restore_s, Some(90.5));
         let other = gleaner_firmware::config::default_config();
         assert_eq!(settings.apply(&other).unwrap(), config);
@@ -410,6 +417,11 @@ mod tests {
         .apply(&default_config())
         .unwrap_err();
         assert!(err.to_string().contains("start_v"));
+        let err = NodeSettings::from_toml("mppt_fraction = 78")
+            .unwrap()
+            .apply(&default_config())
+            .unwrap_err();
+        assert!(err.to_string().contains("mppt_fraction = 78"), "{err}");
     }
 
     #[test]

@@ -135,6 +135,11 @@ pub struct ConverterModel {
 }
 
 impl ConverterModel {
+    /// Lowest MPPT fraction a node accepts (5 %; 0 says there is none).
+    pub const MIN_MPPT_FRACTION_PPM: u32 = 50_000;
+    /// Highest MPPT fraction a node accepts (99 %).
+    pub const MAX_MPPT_FRACTION_PPM: u32 = 990_000;
+
     /// Nothing known: forecasts read the input as it is measured.
     pub const UNKNOWN: ConverterModel = ConverterModel {
         mppt_fraction_ppm: 0,

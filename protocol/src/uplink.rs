@@ -448,7 +448,8 @@ pub enum Refusal {
     LoadThresholdsOutOfRange,
     /// The node name holds characters other than letters, digits, space and `-_.:`.
     NodeNameInvalid,
-    /// The converter's MPPT fraction is neither 0 nor between 5 % and 99 %.
+    /// The converter's MPPT fraction is neither 0 nor between
+    /// [`crate::ConverterModel::MIN_MPPT_FRACTION_PPM`] and its maximum.
     MpptFractionOutOfRange,
 }
 
@@ -479,7 +480,7 @@ impl Refusal {
                 "the node name may hold only letters, digits, spaces and - _ . : (no leading or trailing space)"
             }
             Refusal::MpptFractionOutOfRange => {
-                "the converter's MPPT fraction must be 0 (none) or 5 % to 99 % of open circuit"
+                "the converter's MPPT fraction must be 0 (none) or within the accepted share of open circuit"
             }
         }
     }
@@ -491,6 +492,12 @@ impl core::fmt::Display for Refusal {
             Refusal::ChannelScaleOutOfRange(channel) => {
                 write!(f, "{} (channel {})", self.describe(), channel.name())
             }
+            Refusal::MpptFractionOutOfRange => write!(
+                f,
+                "the converter's MPPT fraction must be 0 (none) or {} % to {} % of open circuit",
+                crate::ConverterModel::MIN_MPPT_FRACTION_PPM / 10_000,
+                crate::ConverterModel::MAX_MPPT_FRACTION_PPM / 10_000
+            ),
             other => f.write_str(other.describe()),
         }
     }

@@ -607,3 +607,12 @@ proptest! {
         prop_assert_eq!(decode_frame::<Downlink>(&mut frame), Ok(d));
     }
 }
+
+#[test]
+fn a_refusal_of_the_mppt_fraction_names_the_accepted_range() {
+    // The range comes from the constants the node checks against.
+    assert_eq!(
+        Refusal::MpptFractionOutOfRange.to_string(),
+        "the converter's MPPT fraction must be 0 (none) or 5 % to 99 % of open circuit"
+    );
+}

@@ -128,7 +128,7 @@ pub struct SetConfig {
     /// Output storage, µF (0: none).
     #[arg(long)]
     pub output_storage_uf: Option<u32>,
-    /// The converter's MPPT fraction of the open-circuit voltage, 0.05 to 0.99 (0: none).
+    /// The converter's MPPT fraction of the open-circuit voltage (0: none).
     #[arg(long)]
     pub mppt_fraction: Option<f64>,
     /// Whether the converter regulates its output voltage.
