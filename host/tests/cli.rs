@@ -112,11 +112,21 @@ fn lists_the_built_in_scenarios() {
     assert!(out.to_lowercase().contains("invented"));
 }
 
+/// `text` with `from` replaced by `to`; fails when `from` is not there (a
+/// changed scenario file would otherwise leave the test testing nothing).
+fn replaced(text: &str, from: &str, to: &str) -> String {
+    assert!(text.contains(from), "the scenario no longer holds {from:?}");
+    text.replace(from, to)
+}
+
 #[test]
 fn the_demo_runs_end_to_end_and_says_what_next() {
     let dir = tempfile::tempdir().unwrap();
-    let text =
-        gleaner_scenario_text("stalled-converter").replace("duration_h = 2.0", "duration_h = 0.2");
+    let text = replaced(
+        &gleaner_scenario_text("stalled-converter"),
+        "duration_h = 2.0",
+        "duration_h = 0.2",
+    );
     let file = dir.path().join("short.toml");
     std::fs::write(&file, text).unwrap();
     let out_dir = dir.path().join("runs");
@@ -268,7 +278,11 @@ fn a_bad_scenario_file_names_the_field() {
     let file = dir.path().join("bad.toml");
     std::fs::write(
         &file,
-        gleaner_scenario_text("crate-beacon").replace("n_vt = 0.0905", "n_vt = -1.0"),
+        replaced(
+            &gleaner_scenario_text("crate-beacon"),
+            "n_vt = 0.0905",
+            "n_vt = -1.0",
+        ),
     )
     .unwrap();
     let (ok, _, err) = run(&["demo", "--scenario", file.to_str().unwrap(), "--plain"]);

@@ -146,6 +146,9 @@ impl ConverterState {
         ConverterState::Stalled,
     ];
 
+    /// How many states there are.
+    pub const COUNT: usize = Self::ALL.len();
+
     /// A short lowercase name.
     pub const fn name(self) -> &'static str {
         match self {

@@ -322,7 +322,7 @@ pub struct Analyzer {
     first_t_s: Option<f64>,
     covered_s: f64,
     gaps: u32,
-    state_s: [f64; 6],
+    state_s: [f64; ConverterState::COUNT],
     drawn_nj: u128,
     delivered_nj: u128,
     stored_nj: i128,
@@ -375,7 +375,7 @@ impl Analyzer {
             first_t_s: None,
             covered_s: 0.0,
             gaps: 0,
-            state_s: [0.0; 6],
+            state_s: [0.0; ConverterState::COUNT],
             drawn_nj: 0,
             delivered_nj: 0,
             stored_nj: 0,
@@ -613,7 +613,7 @@ impl Analyzer {
         self.last_input_v = input_v;
         self.last_output_v = output_v;
 
-        let mut state_s = [0.0; 6];
+        let mut state_s = [0.0; ConverterState::COUNT];
         for state in ConverterState::ALL {
             state_s[state_index(state)] = f64::from(r.state_ms.get(state)) / 1e3;
         }

@@ -2,6 +2,7 @@
 //! buckets are merged and the bucket width doubles, so memory stays flat
 //! however long the run.
 
+use gleaner_protocol::ConverterState;
 use serde::Serialize;
 
 /// Most buckets kept.
@@ -30,7 +31,7 @@ pub struct Point {
     #[serde(skip)]
     weight_s: f64,
     #[serde(skip)]
-    state_s: [f64; 6],
+    state_s: [f64; ConverterState::COUNT],
 }
 
 /// The bounded series.
@@ -61,7 +62,7 @@ pub struct Sample {
     /// Cumulative delivered energy, J.
     pub delivered_total_j: f64,
     /// Seconds in each state during the report.
-    pub state_s: [f64; 6],
+    pub state_s: [f64; ConverterState::COUNT],
 }
 
 fn merge(a: &mut Point, b: &Point) {
@@ -82,7 +83,7 @@ fn merge(a: &mut Point, b: &Point) {
     a.state = dominant(&a.state_s);
 }
 
-fn dominant(state_s: &[f64; 6]) -> u8 {
+fn dominant(state_s: &[f64; ConverterState::COUNT]) -> u8 {
     let mut best = 0;
     for (i, &s) in state_s.iter().enumerate() {
         if s > state_s[best] {

@@ -9,18 +9,20 @@ use ratatui::text::{Line, Span};
 use ratatui::widgets::{Axis, Block, Borders, Chart, Dataset, GraphType, Paragraph};
 use ratatui::Frame;
 
+use gleaner_protocol::ConverterState;
+
 use super::plain::event_line;
 use super::LiveState;
 use crate::analysis::text::{duration, energy};
 
-fn state_colour(name: &str) -> Color {
-    match name {
-        "harvesting" => Color::Green,
-        "sagging" => Color::Yellow,
-        "cutoff" => Color::Red,
-        "stalled" => Color::Magenta,
-        "cold-start" => Color::Cyan,
-        _ => Color::Gray,
+fn state_colour(state: Option<ConverterState>) -> Color {
+    match state {
+        Some(ConverterState::Harvesting) => Color::Green,
+        Some(ConverterState::Sagging) => Color::Yellow,
+        Some(ConverterState::CutOff) => Color::Red,
+        Some(ConverterState::Stalled) => Color::Magenta,
+        Some(ConverterState::ColdStart) => Color::Cyan,
+        Some(ConverterState::Idle) | None => Color::Gray,
     }
 }
 
@@ -139,7 +141,7 @@ fn draw_status(frame: &mut Frame, area: Rect, s: &LiveState) {
         Span::styled(
             name.to_uppercase(),
             Style::default()
-                .fg(state_colour(name))
+                .fg(state_colour(s.state))
                 .add_modifier(Modifier::BOLD),
         ),
     ])];
