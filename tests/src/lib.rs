@@ -19,18 +19,67 @@ pub fn workspace() -> PathBuf {
         .map_or_else(|| PathBuf::from(".."), Path::to_path_buf)
 }
 
+/// True when a missing outside tool fails a test instead of skipping it:
+/// `.ci/run` sets `GLEANER_REQUIRE_TOOLS=1` (a skip there would hide a
+/// broken set-up); a plain `cargo test` skips with the reason on stderr.
+pub fn tools_required() -> bool {
+    std::env::var_os("GLEANER_REQUIRE_TOOLS").is_some_and(|v| v == "1")
+}
+
+/// `found`, or None after saying on stderr which test tier is skipped and
+/// how to get `what`; fails instead when tools are required.
+fn present_or_skip(found: Option<PathBuf>, what: &str, how: &str) -> Option<PathBuf> {
+    if found.is_none() {
+        assert!(!tools_required(), "{what} is missing: {how}");
+        // Written to stderr itself, not through `eprintln!`, which the test
+        // harness captures for passing tests: the skip must be seen.
+        use std::io::Write;
+        let _ = writeln!(std::io::stderr(), "skipped: {what} is missing ({how})");
+    }
+    found
+}
+
 /// The Python with the reference libraries: `GLEANER_PYTHON`, else the
-/// `.venv` that `bash .ci/run` makes (asserted to exist).
-pub fn reference_python() -> PathBuf {
+/// `.venv` that `bash .ci/run` makes; None (the test skips) without it.
+pub fn reference_python() -> Option<PathBuf> {
     let python = std::env::var_os("GLEANER_PYTHON")
         .map(PathBuf::from)
         .unwrap_or_else(|| workspace().join(".venv/bin/python"));
-    assert!(
-        python.exists(),
-        "no Python with the reference libraries at {}: run `bash .ci/run` once (it makes .venv)",
-        python.display()
-    );
-    python
+    present_or_skip(
+        python.exists().then_some(python),
+        "a Python with the reference libraries",
+        "run `bash .ci/run` once (it makes .venv) or set GLEANER_PYTHON",
+    )
+}
+
+/// True when `program --version` runs.
+fn runs(program: &Path) -> bool {
+    std::process::Command::new(program)
+        .arg("--version")
+        .output()
+        .is_ok_and(|o| o.status.success())
+}
+
+/// The Arm system emulator for the emulated node; None (the test skips) without it.
+pub fn qemu() -> Option<PathBuf> {
+    let qemu = PathBuf::from("qemu-system-arm");
+    present_or_skip(
+        runs(&qemu).then_some(qemu),
+        "qemu-system-arm",
+        "apt-get install qemu-system-arm, or run `bash .ci/run`",
+    )
+}
+
+/// The headless browser: `GLEANER_BROWSER`, else `chromium`; None (the test
+/// skips) without it.
+pub fn browser() -> Option<PathBuf> {
+    let browser = std::env::var_os("GLEANER_BROWSER")
+        .map_or_else(|| PathBuf::from("chromium"), PathBuf::from);
+    present_or_skip(
+        runs(&browser).then_some(browser),
+        "a headless browser",
+        "install Debian's chromium (`bash .ci/run` does) or set GLEANER_BROWSER",
+    )
 }
 
 /// A scenario, shortened to `hours` when given.

