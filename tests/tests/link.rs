@@ -206,6 +206,78 @@ fn a_reboot_is_detected_and_logged() {
     assert!((report.energy.drawn_j - 0.006).abs() < 1e-12);
 }
 
+/// What the recorder's thread saw, passed to the test as it happens.
+enum Seen {
+    Message,
+    Link(bool),
+}
+
+/// Keeps what the recorder saw and signals each event on a channel, so the
+/// test waits for the recorder instead of sleeping for a guessed time.
+struct Signalling {
+    messages: Vec<Tracked>,
+    changes: Vec<bool>,
+    tx: std::sync::mpsc::Sender<Seen>,
+}
+
+impl gleaner::recorder::PortObserver for Signalling {
+    fn message(&mut self, tracked: &Tracked, _host_time_us: u64, _stats: &LinkStats) {
+        self.messages.push(tracked.clone());
+        let _ = self.tx.send(Seen::Message);
+    }
+    fn tick(&mut self, _stats: &LinkStats, _idle_for: Duration) -> bool {
+        false
+    }
+    fn link_changed(&mut self, connected: bool, _detail: &str) {
+        self.changes.push(connected);
+        let _ = self.tx.send(Seen::Link(connected));
+    }
+}
+
+/// Generous: the events come in milliseconds; a loaded machine may take seconds.
+const EVENT_DEADLINE: Duration = Duration::from_secs(20);
+
+/// Waits for `count` messages, failing after the deadline.
+fn await_messages(rx: &std::sync::mpsc::Receiver<Seen>, mut count: usize) {
+    while count > 0 {
+        match rx
+            .recv_timeout(EVENT_DEADLINE)
+            .expect("the recorder reports each message")
+        {
+            Seen::Message => count -= 1,
+            Seen::Link(connected) => panic!("link changed to {connected} while messages were due"),
+        }
+    }
+}
+
+/// Waits for the link to change to `connected`.
+fn await_link(rx: &std::sync::mpsc::Receiver<Seen>, connected: bool) {
+    match rx
+        .recv_timeout(EVENT_DEADLINE)
+        .expect("the recorder reports the link change")
+    {
+        Seen::Link(now) => assert_eq!(now, connected),
+        Seen::Message => panic!("a message while the link should change to {connected}"),
+    }
+}
+
+/// Waits until the recorder has the port open: on every connect it asks the
+/// node for its `Hello`, so a whole frame arrives on the node's side.
+fn await_hello_request(master: &mut TTYPort) {
+    master.set_timeout(Duration::from_millis(100)).unwrap();
+    let deadline = Instant::now() + EVENT_DEADLINE;
+    let mut byte = [0u8; 1];
+    loop {
+        assert!(
+            Instant::now() < deadline,
+            "the recorder opened the port and asked for a Hello"
+        );
+        if matches!(std::io::Read::read(master, &mut byte), Ok(1)) && byte[0] == 0 {
+            return;
+        }
+    }
+}
+
 #[test]
 fn ten_unplug_replug_cycles_reconnect_each_time_and_mark_every_gap() {
     const CYCLES: u16 = 10;
@@ -216,17 +288,22 @@ fn ten_unplug_replug_cycles_reconnect_each_time_and_mark_every_gap() {
     std::os::unix::fs::symlink(&first_path, &link).unwrap();
     let stop = Arc::new(AtomicBool::new(false));
     let link_name = link.to_string_lossy().into_owned();
+    let (tx, rx) = std::sync::mpsc::channel();
     let recorder_thread = {
         let (stop, log, link_name) = (stop.clone(), log.clone(), link_name.clone());
         std::thread::spawn(move || {
             let mut recorder = Recorder::create(&log, &link_name).unwrap();
-            let mut observer = Collect::new(|_, _| false);
+            let mut observer = Signalling {
+                messages: Vec::new(),
+                changes: Vec::new(),
+                tx,
+            };
             run_port(&mut recorder, &link_name, 115_200, &stop, &mut observer).unwrap();
             recorder.finish().unwrap();
             observer
         })
     };
-    std::thread::sleep(Duration::from_millis(300));
+    await_hello_request(&mut master);
     // Each cycle: five frames arrive, the device disappears, three frames are
     // sent while it is gone (lost), and it comes back under the same name.
     let mut expected = Vec::new();
@@ -244,15 +321,16 @@ fn ten_unplug_replug_cycles_reconnect_each_time_and_mark_every_gap() {
             .collect();
         master.write_all(&batch).unwrap();
         expected.extend(base..base + 5);
-        std::thread::sleep(Duration::from_millis(250));
+        await_messages(&rx, 5);
         drop(master);
         drop(slave);
         std::fs::remove_file(&link).unwrap();
-        std::thread::sleep(Duration::from_millis(350));
+        await_link(&rx, false);
         let (m, s, path) = scripted();
         std::os::unix::fs::symlink(&path, &link).unwrap();
         (master, slave) = (m, s);
-        std::thread::sleep(Duration::from_millis(500));
+        await_link(&rx, true);
+        await_hello_request(&mut master);
     }
     let last = CYCLES * 8;
     master
@@ -264,13 +342,12 @@ fn ten_unplug_replug_cycles_reconnect_each_time_and_mark_every_gap() {
         )))
         .unwrap();
     expected.push(last);
-    std::thread::sleep(Duration::from_millis(300));
+    await_messages(&rx, 1);
     stop.store(true, Ordering::Relaxed);
     let observer = recorder_thread.join().unwrap();
     let seqs: Vec<u16> = observer.messages.iter().map(|t| t.message.seq).collect();
     assert_eq!(seqs, expected, "nothing outside the gaps is lost");
-    let changes: Vec<bool> = observer.changes.iter().map(|c| c.0).collect();
-    assert_eq!(changes, [false, true].repeat(usize::from(CYCLES)));
+    assert_eq!(observer.changes, [false, true].repeat(usize::from(CYCLES)));
     let markers: Vec<MarkerKind> = LogReader::new(std::fs::File::open(&log).unwrap())
         .filter_map(|r| match r.body {
             RecordBody::Marker { kind, .. } => Some(kind),
