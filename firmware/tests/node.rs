@@ -177,14 +177,69 @@ fn a_storage_failure_refuses_and_keeps_the_old_configuration() {
     assert_eq!(*n.config(), default_config());
 }
 
+/// Flash that outlives a node: the boots before and after a reboot share it.
+#[derive(Clone, Default)]
+struct SharedFlash(std::rc::Rc<std::cell::RefCell<MemoryStorage<STORE_LEN>>>);
+
+impl embedded_storage::ReadStorage for SharedFlash {
+    type Error = config_store::PowerCut;
+    fn read(&mut self, offset: u32, bytes: &mut [u8]) -> Result<(), Self::Error> {
+        self.0.borrow_mut().read(offset, bytes)
+    }
+    fn capacity(&self) -> usize {
+        STORE_LEN
+    }
+}
+
+impl embedded_storage::Storage for SharedFlash {
+    fn write(&mut self, offset: u32, bytes: &[u8]) -> Result<(), Self::Error> {
+        self.0.borrow_mut().write(offset, bytes)
+    }
+}
+
 #[test]
 fn stored_configuration_survives_a_reboot() {
-    let mut storage = MemoryStorage::<STORE_LEN>::new();
+    let flash = SharedFlash::default();
+    let boot = |config, config_source, boot_id| {
+        Node::new(NodeParts {
+            config,
+            config_source,
+            node_id: 7,
+            boot_id,
+            sample_period_us: 10_000,
+            load_pin: NoPin,
+            storage: flash.clone(),
+        })
+    };
+    let mut first = boot(default_config(), ConfigSource::Defaults, 1);
     let mut good = default_config();
     good.thresholds.debounce_ms = 750;
-    config_store::save(&mut storage, &good).unwrap();
-    let loaded = config_store::load(&mut storage);
-    assert_eq!((loaded.config, loaded.source), (good, ConfigSource::Stored));
+    good.converter.mppt_fraction_ppm = 800_000;
+    let mut buf = [0u8; MAX_DOWNLINK_FRAME_LEN];
+    let set = Downlink {
+        request_id: 3,
+        command: Command::SetConfig(good.clone()),
+    };
+    first.on_received(encode_frame(&set, &mut buf).unwrap());
+    drop(first);
+    // The board at its next boot: what the flash holds, then a new node.
+    let loaded = config_store::load(&mut flash.clone());
+    assert_eq!(
+        (&loaded.config, loaded.source),
+        (&good, ConfigSource::Stored)
+    );
+    let mut second = boot(loaded.config, loaded.source, 2);
+    let mut out = [0u8; MAX_UPLINK_FRAME_LEN];
+    let mut hello = second.next_frame(&mut out).map(|f| f.to_vec()).unwrap();
+    let body_len = hello.len() - 1; // without the delimiter
+    let message = decode_frame::<Uplink>(&mut hello[..body_len]).unwrap();
+    let UplinkBody::Hello(h) = message.body else {
+        panic!("the first frame of a boot is its Hello")
+    };
+    assert_eq!(
+        (h.boot_id, h.config, h.config_source),
+        (2, good, ConfigSource::Stored)
+    );
 }
 
 #[test]
