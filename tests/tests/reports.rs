@@ -305,20 +305,27 @@ fn old_fields_unchanged(old: &serde_json::Value, new: &serde_json::Value, path: 
     }
 }
 
+/// Today's report of the fixture log `name` (in tests/data), checked to
+/// keep every figure of the JSON report the old build made of it.
+fn fixture_reports_as_it_did(name: &str) -> gleaner::analysis::RunReport {
+    let dir = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("data");
+    let report = analyze_file(&dir.join(format!("{name}.gleanlog"))).unwrap();
+    let new = serde_json::to_value(&report).unwrap();
+    let old: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(dir.join(format!("{name}.report.json"))).unwrap(),
+    )
+    .unwrap();
+    old_fields_unchanged(&old, &new, "");
+    report
+}
+
 #[test]
 fn a_protocol_2_log_reports_as_it_did() {
     // The log and its JSON report were made by the protocol 2 build of this
     // tool (invented greenhouse evening, 3.5 h: Sagging, a cutoff, a load
     // brown-out and harvest slots); today's build keeps every figure and
     // says the node was not told its converter.
-    let dir = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("data");
-    let report = analyze_file(&dir.join("protocol2-greenhouse-evening.gleanlog")).unwrap();
-    let new = serde_json::to_value(&report).unwrap();
-    let old: serde_json::Value = serde_json::from_str(
-        &std::fs::read_to_string(dir.join("protocol2-greenhouse-evening.report.json")).unwrap(),
-    )
-    .unwrap();
-    old_fields_unchanged(&old, &new, "");
+    let report = fixture_reports_as_it_did("protocol2-greenhouse-evening");
     let boot = &report.boots[0];
     assert_eq!(boot.protocol, "2.0");
     assert_eq!((boot.mppt_fraction, boot.output_regulated), (None, false));
@@ -330,14 +337,7 @@ fn a_protocol_1_log_reports_as_it_did() {
     // The log and its JSON report were made by the protocol 1 build of this
     // tool (invented orchard-night scenario, 1.5 h); the report of today's
     // build keeps every figure, and says the node is unknown.
-    let dir = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("data");
-    let report = analyze_file(&dir.join("protocol1-orchard-night.gleanlog")).unwrap();
-    let new = serde_json::to_value(&report).unwrap();
-    let old: serde_json::Value = serde_json::from_str(
-        &std::fs::read_to_string(dir.join("protocol1-orchard-night.report.json")).unwrap(),
-    )
-    .unwrap();
-    old_fields_unchanged(&old, &new, "");
+    let report = fixture_reports_as_it_did("protocol1-orchard-night");
     assert_eq!(report.boots[0].node_id, "0000000000000000");
     assert_eq!(report.boots[0].protocol, "1.0");
     assert!(report.load_outages.is_empty());
