@@ -445,7 +445,8 @@ impl<const W: usize> Trend<W> {
 
 impl FadeTrend {
     /// Milliseconds from the newest point until the input voltage reaches
-    /// `threshold` while the source's power fades away (see [`fade_ms`]).
+    /// `threshold` while the source's power fades away: a power law in the
+    /// time left for the power, the diode law's logarithm for the voltage.
     /// Points whose power is [`UNKNOWN`] count for the voltage only.
     pub fn fade_time_to(&self, threshold: u32) -> Option<u32> {
         let (mut voltage, mut power_line, mut power) =
