@@ -103,6 +103,10 @@ pub struct BootInfo {
 impl BootInfo {
     /// How the converter was described to the node, in words.
     pub fn converter_words(&self) -> String {
+        if self.mppt_fraction.is_none() && !self.output_regulated {
+            // Protocol 1 and 2 nodes were never told; neither was this one.
+            return "converter not described".to_owned();
+        }
         let input = match self.mppt_fraction {
             Some(f) => format!("MPPT at {:.0} % of open circuit", f * 100.0),
             None => "no MPPT fraction".to_owned(),
