@@ -26,10 +26,6 @@ pub const MAX_SAG_MARGIN_UV: u32 = 1_000_000;
 pub const MAX_STORAGE_UF: u32 = 1_000_000_000;
 /// Highest accepted load voltage threshold (60 V).
 pub const MAX_LOAD_UV: u32 = 60_000_000;
-/// Lowest accepted MPPT fraction of a converter (0 says there is none).
-pub const MIN_MPPT_FRACTION_PPM: u32 = ConverterModel::MIN_MPPT_FRACTION_PPM;
-/// Highest accepted MPPT fraction of a converter.
-pub const MAX_MPPT_FRACTION_PPM: u32 = ConverterModel::MAX_MPPT_FRACTION_PPM;
 /// Largest accepted channel scale: 10^9 units per count, in Q20.
 pub const MAX_SCALE_Q20: u64 = 1_000_000_000 << 20;
 
@@ -141,7 +137,8 @@ pub fn validate(config: &NodeConfig) -> Result<(), Refusal> {
         return Err(Refusal::NodeNameInvalid);
     }
     let fraction = config.converter.mppt_fraction_ppm;
-    if fraction != 0 && !(MIN_MPPT_FRACTION_PPM..=MAX_MPPT_FRACTION_PPM).contains(&fraction) {
+    let accepted = ConverterModel::MIN_MPPT_FRACTION_PPM..=ConverterModel::MAX_MPPT_FRACTION_PPM;
+    if fraction != 0 && !accepted.contains(&fraction) {
         return Err(Refusal::MpptFractionOutOfRange);
     }
     Ok(())
@@ -235,11 +232,11 @@ mod tests {
             (|c| c.name = name("bad\nname"), Refusal::NodeNameInvalid),
             (|c| c.name = name(" padded"), Refusal::NodeNameInvalid),
             (
-                |c| c.converter.mppt_fraction_ppm = MIN_MPPT_FRACTION_PPM - 1,
+                |c| c.converter.mppt_fraction_ppm = ConverterModel::MIN_MPPT_FRACTION_PPM - 1,
                 Refusal::MpptFractionOutOfRange,
             ),
             (
-                |c| c.converter.mppt_fraction_ppm = MAX_MPPT_FRACTION_PPM + 1,
+                |c| c.converter.mppt_fraction_ppm = ConverterModel::MAX_MPPT_FRACTION_PPM + 1,
                 Refusal::MpptFractionOutOfRange,
             ),
         ];
@@ -261,9 +258,9 @@ mod tests {
         c.thresholds.load_min_uv = MAX_LOAD_UV - 1;
         c.name = name("greenhouse-3 row:B_2.1");
         assert_eq!(validate(&c), Ok(()));
-        c.converter.mppt_fraction_ppm = MIN_MPPT_FRACTION_PPM;
+        c.converter.mppt_fraction_ppm = ConverterModel::MIN_MPPT_FRACTION_PPM;
         assert_eq!(validate(&c), Ok(()));
-        c.converter.mppt_fraction_ppm = MAX_MPPT_FRACTION_PPM;
+        c.converter.mppt_fraction_ppm = ConverterModel::MAX_MPPT_FRACTION_PPM;
         assert_eq!(validate(&c), Ok(()));
         c.name = name(&"x".repeat(gleaner_protocol::NODE_NAME_LEN));
         assert_eq!(validate(&c), Ok(()));

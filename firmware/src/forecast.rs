@@ -204,11 +204,17 @@ impl Sums {
         self.yy = self.yy.sat_add(y.sat_mul(y));
     }
 
-    /// The fitted line's value at t = 0 and its slope in Q16, per unit of t.
-    fn line(&self) -> Option<(i128, i128)> {
+    /// The centred sums `(sxx, sxy)`: n Σt² - (Σt)² and n Σty - Σt Σy.
+    fn centred(&self) -> Option<(i128, i128)> {
         let n = self.n;
         let sxx = n.wide_mul(self.tt)?.wide_sub(self.t.wide_mul(self.t)?)?;
         let sxy = n.wide_mul(self.ty)?.wide_sub(self.t.wide_mul(self.y)?)?;
+        Some((sxx, sxy))
+    }
+
+    /// The fitted line's value at t = 0 and its slope in Q16, per unit of t.
+    fn line(&self) -> Option<(i128, i128)> {
+        let (sxx, sxy) = self.centred()?;
         if sxx <= 0 {
             return None;
         }
@@ -217,16 +223,17 @@ impl Sums {
             .y
             .wide_mul(sxx)?
             .wide_sub(self.t.wide_mul(sxy)?)?
-            .wide_div(n.wide_mul(sxx)?)?;
+            .wide_div(self.n.wide_mul(sxx)?)?;
         Some((at_zero, slope_q16))
     }
 
     /// The centred sums `(sxx, sxy)` of a line that falls with r² >= 1/2.
     fn clear_fall(&self) -> Option<(i128, i128)> {
-        let n = self.n;
-        let sxx = n.wide_mul(self.tt)?.wide_sub(self.t.wide_mul(self.t)?)?;
-        let sxy = n.wide_mul(self.ty)?.wide_sub(self.t.wide_mul(self.y)?)?;
-        let syy = n.wide_mul(self.yy)?.wide_sub(self.y.wide_mul(self.y)?)?;
+        let (sxx, sxy) = self.centred()?;
+        let syy = self
+            .n
+            .wide_mul(self.yy)?
+            .wide_sub(self.y.wide_mul(self.y)?)?;
         if sxx <= 0 || sxy >= 0 {
             return None; // all points at one time, or not falling
         }
@@ -557,7 +564,7 @@ pub const REGULATION_BAND_PPM: u32 = 1_000;
 pub fn output_held(output_uv: u32, ceiling_uv: u32) -> bool {
     let band = u64::from(ceiling_uv)
         .saturating_mul(u64::from(REGULATION_BAND_PPM))
-        .checked_div(1_000_000)
+        .checked_div(PPM)
         .unwrap_or(0);
     u64::from(output_uv).saturating_add(band) >= u64::from(ceiling_uv)
 }

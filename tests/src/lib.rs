@@ -3,6 +3,7 @@
 
 use std::path::{Path, PathBuf};
 use std::sync::atomic::AtomicBool;
+use std::sync::OnceLock;
 use std::time::Duration;
 
 use anyhow::Result;
@@ -42,29 +43,37 @@ fn present_or_skip(found: Option<PathBuf>, what: &str, how: &str) -> Option<Path
 /// The Python with the reference libraries: `GLEANER_PYTHON`, else the
 /// `.venv` that `bash .ci/run` makes; None (the test skips) without it.
 pub fn reference_python() -> Option<PathBuf> {
-    let python = std::env::var_os("GLEANER_PYTHON")
-        .map(PathBuf::from)
-        .unwrap_or_else(|| workspace().join(".venv/bin/python"));
+    static FOUND: OnceLock<Option<PathBuf>> = OnceLock::new();
+    let found = FOUND.get_or_init(|| {
+        let python = std::env::var_os("GLEANER_PYTHON")
+            .map(PathBuf::from)
+            .unwrap_or_else(|| workspace().join(".venv/bin/python"));
+        python.exists().then_some(python)
+    });
     present_or_skip(
-        python.exists().then_some(python),
+        found.clone(),
         "a Python with the reference libraries",
         "run `bash .ci/run` once (it makes .venv) or set GLEANER_PYTHON",
     )
 }
 
-/// True when `program --version` runs.
-fn runs(program: &Path) -> bool {
-    std::process::Command::new(program)
-        .arg("--version")
-        .output()
-        .is_ok_and(|o| o.status.success())
+/// `program` when `program --version` runs (looked up once per test binary).
+fn runnable(cell: &'static OnceLock<Option<PathBuf>>, program: PathBuf) -> Option<PathBuf> {
+    cell.get_or_init(|| {
+        std::process::Command::new(&program)
+            .arg("--version")
+            .output()
+            .is_ok_and(|o| o.status.success())
+            .then_some(program)
+    })
+    .clone()
 }
 
 /// The Arm system emulator for the emulated node; None (the test skips) without it.
 pub fn qemu() -> Option<PathBuf> {
-    let qemu = PathBuf::from("qemu-system-arm");
+    static FOUND: OnceLock<Option<PathBuf>> = OnceLock::new();
     present_or_skip(
-        runs(&qemu).then_some(qemu),
+        runnable(&FOUND, PathBuf::from("qemu-system-arm")),
         "qemu-system-arm",
         "apt-get install qemu-system-arm, or run `bash .ci/run`",
     )
@@ -73,10 +82,11 @@ pub fn qemu() -> Option<PathBuf> {
 /// The headless browser: `GLEANER_BROWSER`, else `chromium`; None (the test
 /// skips) without it.
 pub fn browser() -> Option<PathBuf> {
+    static FOUND: OnceLock<Option<PathBuf>> = OnceLock::new();
     let browser = std::env::var_os("GLEANER_BROWSER")
         .map_or_else(|| PathBuf::from("chromium"), PathBuf::from);
     present_or_skip(
-        runs(&browser).then_some(browser),
+        runnable(&FOUND, browser),
         "a headless browser",
         "install Debian's chromium (`bash .ci/run` does) or set GLEANER_BROWSER",
     )

@@ -103,21 +103,34 @@ pub struct BootInfo {
 impl BootInfo {
     /// How the converter was described to the node, in words.
     pub fn converter_words(&self) -> String {
-        if self.mppt_fraction.is_none() && !self.output_regulated {
-            // Protocol 1 and 2 nodes were never told; neither was this one.
-            return "converter not described".to_owned();
-        }
-        let input = match self.mppt_fraction {
-            Some(f) => format!("MPPT at {:.0} % of open circuit", f * 100.0),
-            None => "no MPPT fraction".to_owned(),
-        };
-        let output = if self.output_regulated {
-            "regulated output"
-        } else {
-            "unregulated output"
-        };
-        format!("{input}, {output}")
+        converter_words(self.mppt_fraction, self.output_regulated)
     }
+}
+
+/// The MPPT fraction a node was told, None when none (0 on the wire).
+pub fn mppt_fraction(converter: &gleaner_protocol::ConverterModel) -> Option<f64> {
+    match converter.mppt_fraction_ppm {
+        0 => None,
+        ppm => Some(f64::from(ppm) / 1e6),
+    }
+}
+
+/// A converter description in words, as the report and `node info` show it.
+pub fn converter_words(mppt_fraction: Option<f64>, output_regulated: bool) -> String {
+    if mppt_fraction.is_none() && !output_regulated {
+        // Protocol 1 and 2 nodes were never told; neither was this one.
+        return "converter not described".to_owned();
+    }
+    let input = match mppt_fraction {
+        Some(f) => format!("MPPT at {:.0} % of open circuit", f * 100.0),
+        None => "no MPPT fraction".to_owned(),
+    };
+    let output = if output_regulated {
+        "regulated output"
+    } else {
+        "unregulated output"
+    };
+    format!("{input}, {output}")
 }
 
 /// Time in one state.
@@ -499,10 +512,7 @@ impl Analyzer {
             load_min_v: f64::from(t.load_min_uv) / 1e6,
             report_interval_s: f64::from(h.config.report_interval_ms) / 1e3,
             storage_f: f64::from(h.config.output_storage_uf) / 1e6,
-            mppt_fraction: match h.config.converter.mppt_fraction_ppm {
-                0 => None,
-                ppm => Some(f64::from(ppm) / 1e6),
-            },
+            mppt_fraction: mppt_fraction(&h.config.converter),
             output_regulated: h.config.converter.output_regulated,
         };
         match self.boots.iter_mut().find(|b| b.index == index) {

@@ -437,16 +437,11 @@ pub fn print_hello(h: &Hello) -> std::io::Result<()> {
     )?;
     let converter = &h.config.converter;
     say!(
-        "  converter         {}, {} output",
-        match converter.mppt_fraction_ppm {
-            0 => "no MPPT fraction".to_owned(),
-            ppm => format!("MPPT at {:.1} % of open circuit", f64::from(ppm) / 1e4),
-        },
-        if converter.output_regulated {
-            "regulated"
-        } else {
-            "unregulated"
-        }
+        "  converter         {}",
+        crate::analysis::converter_words(
+            crate::analysis::mppt_fraction(converter),
+            converter.output_regulated
+        )
     )?;
     say!(
         "totals since reset: drawn {} nJ, delivered {} nJ, stored {} nJ",
