@@ -38,7 +38,14 @@ pub fn decode_uplink_any(
     encoded: &mut [u8],
     prefer_major: Option<u8>,
 ) -> Result<(Uplink, u8), FrameError> {
-    let body = open_frame(encoded)?;
+    parse_uplink_any(open_frame(encoded)?, prefer_major)
+}
+
+/// As [`decode_uplink_any`], for the postcard bytes of a frame already
+/// opened ([`crate::open_frame`]). A read with `prefer_major` `None` may be
+/// made ahead of time; it needs repeating only when the boot turns out to
+/// speak an older major and the read gave another one.
+pub fn parse_uplink_any(body: &[u8], prefer_major: Option<u8>) -> Result<(Uplink, u8), FrameError> {
     let current = PROTOCOL_VERSION.major;
     let attempt = |major: u8| {
         let message = parse_as(major, body)?;

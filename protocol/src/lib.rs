@@ -79,7 +79,7 @@ pub mod v1;
 pub mod v2;
 mod version;
 
-pub use compat::{decode_uplink_any, OLDER_MAJORS};
+pub use compat::{decode_uplink_any, parse_uplink_any, OLDER_MAJORS};
 pub use config::{
     Calibration, Channel, ChannelCal, ConverterModel, NodeConfig, NodeName, Thresholds,
     NODE_NAME_LEN,
