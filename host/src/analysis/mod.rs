@@ -20,7 +20,9 @@ use gleaner_protocol::{ConverterState, Event, Hello, Report, UplinkBody};
 use serde::Serialize;
 
 use crate::failure::FailedAs;
+use crate::link::tracker::TrackError;
 use crate::link::{LinkStats, LinkTracker, Tracked};
+use crate::log::split::LogItem;
 use crate::log::{LogHeader, MarkerKind, Record, RecordBody};
 use harvest::{HarvestForecast, HarvestSlots};
 use load_outages::{LoadOutage, LoadOutages};
@@ -423,21 +425,27 @@ impl Analyzer {
         self.warnings.push(warning);
     }
 
-    /// Takes one log record, decoding frames in place (cheaper than
-    /// [`Self::add_record`] when the record is not needed afterwards).
-    pub fn add_record_owned(&mut self, mut record: Record) {
-        if let RecordBody::Frame(bytes) = &mut record.body {
-            match self.tracker.accept_in_place(bytes) {
-                Ok(Some(tracked)) => self.add_tracked(record.host_time_us, &tracked),
-                Ok(None) => {}
-                Err(crate::link::tracker::TrackError::Version(v)) => {
-                    self.warnings.push(format!("a frame was skipped: {v}"));
-                }
-                Err(_) => {}
+    /// Takes one log item (a record with its frame read ahead).
+    pub fn add_item(&mut self, item: LogItem<'_>) {
+        match item {
+            LogItem::Frame {
+                host_time_us,
+                frame,
+            } => {
+                let placed = self.tracker.accept_ahead(frame);
+                self.add_placed(host_time_us, placed);
             }
-            return;
+            LogItem::Other(record) => self.add_record(&record),
         }
-        self.add_record(&record);
+    }
+
+    fn add_placed(&mut self, host_time_us: u64, placed: Result<Option<Tracked>, TrackError>) {
+        match placed {
+            Ok(Some(tracked)) => self.add_tracked(host_time_us, &tracked),
+            Ok(None) => {}
+            Err(TrackError::Version(v)) => self.warnings.push(format!("a frame was skipped: {v}")),
+            Err(TrackError::Frame(_)) => {}
+        }
     }
 
     /// Takes one log record.
@@ -448,14 +456,10 @@ impl Analyzer {
                     self.header = Some(h.clone());
                 }
             }
-            RecordBody::Frame(bytes) => match self.tracker.accept_encoded(bytes) {
-                Ok(Some(tracked)) => self.add_tracked(record.host_time_us, &tracked),
-                Ok(None) => {}
-                Err(crate::link::tracker::TrackError::Version(v)) => {
-                    self.warnings.push(format!("a frame was skipped: {v}"));
-                }
-                Err(_) => {}
-            },
+            RecordBody::Frame(bytes) => {
+                let placed = self.tracker.accept_encoded(bytes);
+                self.add_placed(record.host_time_us, placed);
+            }
             RecordBody::Marker {
                 kind: MarkerKind::PortLost,
                 ..
@@ -794,45 +798,41 @@ impl Analyzer {
     }
 }
 
-/// Analyses a log file (`-`: standard input), streaming.
+/// Analyses a log file (`-`: standard input), streaming, on every core.
 pub fn analyze_file(path: &std::path::Path) -> anyhow::Result<RunReport> {
-    analyze_file_with(path, &crate::progress::none())
+    analyze_file_with(path, crate::parallel::workers(), &crate::progress::none())
 }
 
-/// As [`analyze_file`], advancing `progress` by the bytes read.
+/// As [`analyze_file`], reading on up to `workers` threads and advancing
+/// `progress` by the bytes read.
 pub fn analyze_file_with(
     path: &std::path::Path,
+    workers: usize,
     progress: &indicatif::ProgressBar,
 ) -> anyhow::Result<RunReport> {
-    let input = crate::files::open_input(path, "log")?;
-    let size = input.size.unwrap_or(0);
-    let name = input.name;
-    let mut reader = crate::log::LogReader::new(input.reader);
     let mut analyzer = Analyzer::new();
     // Several logs may advance one bar from several threads: add what was read.
-    let (mut shown, mut records) = (0u64, 0u64);
-    while let Some(record) = reader.next() {
-        analyzer.add_record_owned(record);
-        records += 1;
-        if records.is_multiple_of(crate::progress::RECORDS_PER_UPDATE) {
-            progress.inc(reader.offset() - shown);
-            shown = reader.offset();
-        }
-    }
-    progress.inc(reader.offset().saturating_sub(shown));
-    if let Some(err) = reader.take_io_error() {
+    let summary = crate::log::split::read_log(path, workers, &mut |n| progress.inc(n), |item| {
+        analyzer.add_item(item)
+    })?;
+    if let Some(err) = &summary.io_error {
         analyzer.warn(format!("reading stopped early: {err}"));
     }
-    for w in reader.warnings() {
+    for w in &summary.warnings {
         analyzer.warn(w.to_string());
     }
     let report = analyzer.finish();
     if report.message_counts.values().sum::<u64>() == 0 {
-        let not_a_log = reader
-            .warnings()
+        let not_a_log = summary
+            .warnings
             .iter()
             .any(|w| matches!(w, crate::log::ReadWarning::NotALog));
-        let why = if size == 0 {
+        let name = if crate::files::is_stdio(path) {
+            "standard input".to_string()
+        } else {
+            path.display().to_string()
+        };
+        let why = if summary.bytes == 0 && summary.io_error.is_none() {
             "is empty".to_string()
         } else if not_a_log {
             crate::log::ReadWarning::NotALog.to_string()

@@ -43,11 +43,13 @@ impl Cmd {
             many => format!("reading {} logs", many.len()),
         };
         let progress = crate::progress::bytes(total, &what);
-        // One log per worker on every core; the results in the order given.
-        let analysed =
-            crate::parallel::map_in_order(self.logs.len(), crate::parallel::workers(), |i| {
-                analyze_file_with(&self.logs[i], &progress)
-            });
+        // Every core: one log per worker, or one log read in parts by all;
+        // the results in the order given.
+        let workers = crate::parallel::workers();
+        let per_log = workers.div_ceil(self.logs.len()).max(1);
+        let analysed = crate::parallel::map_in_order(self.logs.len(), workers, |i| {
+            analyze_file_with(&self.logs[i], per_log, &progress)
+        });
         for (log, result) in self.logs.iter().zip(analysed) {
             match result {
                 Ok(report) => reports.push((log.clone(), report)),

@@ -7,7 +7,7 @@ pub mod script;
 pub mod tracker;
 
 pub use ports::{list_ports, open_port, PortInfo, DEFAULT_BAUD};
-pub use tracker::{LinkStats, LinkTracker, Tracked};
+pub use tracker::{LinkStats, LinkTracker, ReadAhead, Tracked};
 
 /// The wire bytes of `command` sent as request `request_id` (one COBS frame
 /// with its terminating zero), for every host-side client of a node.

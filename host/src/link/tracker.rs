@@ -3,7 +3,7 @@
 //! framing errors with nothing good is most likely a wrong baud rate.
 
 use gleaner_protocol::{
-    decode_uplink_any, FrameError, ProtocolVersion, Uplink, UplinkBody, VersionMismatch,
+    open_frame, parse_uplink_any, FrameError, ProtocolVersion, Uplink, UplinkBody, VersionMismatch,
     OLDER_MAJORS, PROTOCOL_VERSION,
 };
 use serde::Serialize;
@@ -53,6 +53,33 @@ pub struct Tracked {
     pub message: Uplink,
 }
 
+/// A frame opened (COBS undone, CRC checked) and read as the current
+/// protocol before the tracker sees it, perhaps on another thread: the
+/// tracker reads it again only when its boot speaks an older major.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ReadAhead<'a> {
+    /// The frame's postcard bytes; None when its COBS, CRC or length was wrong.
+    pub body: Option<&'a [u8]>,
+    /// The message and the major it was read as (no preferred major), or why not.
+    pub read: Result<(Uplink, u8), FrameError>,
+}
+
+impl<'a> ReadAhead<'a> {
+    /// Opens and reads one encoded frame (without its delimiter), in place.
+    pub fn open(encoded: &'a mut [u8]) -> Self {
+        match open_frame(encoded) {
+            Ok(body) => ReadAhead {
+                body: Some(body),
+                read: parse_uplink_any(body, None),
+            },
+            Err(error) => ReadAhead {
+                body: None,
+                read: Err(error),
+            },
+        }
+    }
+}
+
 /// Follows sequence numbers, uptime and boot ids across frames.
 #[derive(Debug, Clone, Default)]
 pub struct LinkTracker {
@@ -96,7 +123,27 @@ impl LinkTracker {
 
     /// As [`Self::accept_encoded`], decoding in place (the bytes are overwritten).
     pub fn accept_in_place(&mut self, encoded: &mut [u8]) -> Result<Option<Tracked>, TrackError> {
-        match decode_uplink_any(encoded, self.boot_major) {
+        self.accept_ahead(ReadAhead::open(encoded))
+    }
+
+    /// Places a frame read ahead: the same result as [`Self::accept_encoded`]
+    /// on its bytes.
+    pub fn accept_ahead(&mut self, frame: ReadAhead<'_>) -> Result<Option<Tracked>, TrackError> {
+        let older = self.boot_major.filter(|m| OLDER_MAJORS.contains(m));
+        let decoded = match (frame.body, older) {
+            // An older boot's layout is tried first, as a read preferring it
+            // would have.
+            (Some(body), Some(older))
+                if frame
+                    .read
+                    .as_ref()
+                    .map_or(true, |(_, major)| *major != older) =>
+            {
+                parse_uplink_any(body, Some(older))
+            }
+            _ => frame.read,
+        };
+        match decoded {
             Ok((message, _)) => self.accept(message),
             Err(error) => {
                 self.count_error(error);

@@ -14,10 +14,11 @@
 
 mod format;
 mod reader;
+pub mod split;
 mod writer;
 
 pub use format::{LogHeader, MarkerKind, Record, RecordBody, FORMAT_VERSION, MAGIC, MAX_BODY_LEN};
-pub use reader::{LogReader, ReadWarning};
+pub use reader::{LogReader, ReadWarning, RecordRef};
 pub use writer::LogWriter;
 
 /// Microseconds since the Unix epoch, now.

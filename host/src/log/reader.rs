@@ -44,11 +44,40 @@ pub struct LogReader<R> {
     start: usize,
     end: usize,
     offset: u64,
+    /// Stop before the first valid record at or after this offset.
+    stop_at: u64,
     eof: bool,
     checked_magic: bool,
     damaged_from: Option<(u64, u64)>,
     warnings: Vec<ReadWarning>,
     io_error: Option<std::io::Error>,
+}
+
+/// One record as it lies in the reader's buffer: a frame's bytes are lent,
+/// mutable (to be decoded in place) until the next read.
+#[derive(Debug, PartialEq, Eq)]
+pub enum RecordRef<'a> {
+    /// A frame as received (COBS bytes without the delimiter).
+    Frame {
+        /// Microseconds since the Unix epoch when the host received it.
+        host_time_us: u64,
+        /// The frame's bytes.
+        bytes: &'a mut [u8],
+    },
+    /// Any other record, owned.
+    Other(Record),
+}
+
+/// What lies at the reader's position.
+enum Probe {
+    /// A valid record of this body length.
+    Valid(usize),
+    /// Not a valid record here (bad length, CRC or content).
+    Invalid,
+    /// A record prefix whose body runs past the end of the input.
+    Torn(usize),
+    /// Fewer bytes than a record prefix are left (maybe none).
+    End(usize),
 }
 
 const WINDOW: usize = RECORD_PREFIX_LEN + MAX_BODY_LEN;
@@ -62,6 +91,7 @@ impl<R: Read> LogReader<R> {
             start: 0,
             end: 0,
             offset: 0,
+            stop_at: u64::MAX,
             eof: false,
             checked_magic: false,
             damaged_from: None,
@@ -70,9 +100,46 @@ impl<R: Read> LogReader<R> {
         }
     }
 
+    /// Moves to byte `offset` of the file to read a part of it, stopping
+    /// before the first valid record at or after `stop_at` (records that
+    /// start earlier are read whole, and damage is skipped past `stop_at` as
+    /// in one read). At offset 0 the signature is checked again. The buffer
+    /// is kept, so one reader reads many parts without allocating.
+    pub fn restart(&mut self, offset: u64, stop_at: u64) -> std::io::Result<()>
+    where
+        R: std::io::Seek,
+    {
+        self.input.seek(std::io::SeekFrom::Start(offset))?;
+        self.start = 0;
+        self.end = 0;
+        self.offset = offset;
+        self.stop_at = stop_at;
+        self.eof = false;
+        self.checked_magic = offset > 0;
+        self.damaged_from = None;
+        Ok(())
+    }
+
+    /// Moves to the first valid record at or after the present position (or
+    /// to the end), silently: for a part of a log that starts anywhere.
+    pub fn seek_record(&mut self) {
+        loop {
+            match self.probe() {
+                Probe::Valid(_) => return,
+                Probe::End(have) => return self.consume(have),
+                Probe::Invalid | Probe::Torn(_) => self.consume(1),
+            }
+        }
+    }
+
     /// Warnings so far (damage skipped, torn tail).
     pub fn warnings(&self) -> &[ReadWarning] {
         &self.warnings
+    }
+
+    /// Takes the warnings so far.
+    pub fn take_warnings(&mut self) -> Vec<ReadWarning> {
+        std::mem::take(&mut self.warnings)
     }
 
     /// An I/O error that ended reading early, if any.
@@ -80,7 +147,7 @@ impl<R: Read> LogReader<R> {
         self.io_error.take()
     }
 
-    /// Bytes consumed so far.
+    /// Bytes consumed so far (the file offset, for a reader that resumed).
     pub fn offset(&self) -> u64 {
         self.offset
     }
@@ -126,6 +193,114 @@ impl<R: Read> LogReader<R> {
         }
     }
 
+    /// Checks for a valid record at the present position, reading as needed.
+    fn probe(&mut self) -> Probe {
+        let have = self.fill(RECORD_PREFIX_LEN);
+        if have < RECORD_PREFIX_LEN {
+            return Probe::End(have);
+        }
+        let head = &self.buf[self.start..self.start + RECORD_PREFIX_LEN];
+        let len = u32::from_le_bytes([head[0], head[1], head[2], head[3]]) as usize;
+        let crc = u32::from_le_bytes([head[4], head[5], head[6], head[7]]);
+        if !(BODY_PREFIX_LEN..=MAX_BODY_LEN).contains(&len) {
+            return Probe::Invalid;
+        }
+        let have = self.fill(RECORD_PREFIX_LEN + len);
+        if have < RECORD_PREFIX_LEN + len {
+            return Probe::Torn(have);
+        }
+        let body = &self.buf[self.start + RECORD_PREFIX_LEN..self.start + RECORD_PREFIX_LEN + len];
+        // A frame's content is never judged here; other kinds must parse.
+        let valid =
+            frame_crc(body) == crc && (body[0] == KIND_FRAME || Self::parse(body).is_some());
+        if valid {
+            Probe::Valid(len)
+        } else {
+            Probe::Invalid
+        }
+    }
+
+    fn check_magic(&mut self) -> bool {
+        self.checked_magic = true;
+        let have = self.fill(MAGIC.len());
+        if have >= MAGIC.len() && &self.buf[self.start..self.start + MAGIC.len()] == MAGIC {
+            self.consume(MAGIC.len());
+        } else if have > 0 {
+            self.warnings.push(ReadWarning::NotALog);
+            if have < MAGIC.len() {
+                self.consume(have);
+                return false;
+            }
+        }
+        true
+    }
+
+    /// The next record, a frame's bytes lent in place (no copy): what a
+    /// reader that decodes frames should call.
+    pub fn next_ref(&mut self) -> Option<RecordRef<'_>> {
+        if !self.checked_magic && !self.check_magic() {
+            return None;
+        }
+        loop {
+            match self.probe() {
+                Probe::End(have) => {
+                    self.end_damage();
+                    if have > 0 {
+                        self.warnings.push(ReadWarning::TornTail {
+                            offset: self.offset,
+                            bytes: have as u64,
+                        });
+                        self.consume(have);
+                    }
+                    return None;
+                }
+                // Either a torn tail or a damaged length near the end: a torn
+                // tail is the common case and loses only this record.
+                Probe::Torn(have) if self.damaged_from.is_none() => {
+                    self.warnings.push(ReadWarning::TornTail {
+                        offset: self.offset,
+                        bytes: have as u64,
+                    });
+                    self.consume(have);
+                    return None;
+                }
+                Probe::Torn(_) | Probe::Invalid => self.skip_damaged_byte(),
+                Probe::Valid(_) if self.offset >= self.stop_at => {
+                    self.end_damage();
+                    return None;
+                }
+                Probe::Valid(len) => {
+                    self.end_damage();
+                    let at = self.start + RECORD_PREFIX_LEN;
+                    self.consume(RECORD_PREFIX_LEN + len);
+                    return Some(Self::lend(&mut self.buf[at..at + len]));
+                }
+            }
+        }
+    }
+
+    /// A valid body as a record, a frame's bytes lent.
+    fn lend(body: &mut [u8]) -> RecordRef<'_> {
+        if body[0] == KIND_FRAME {
+            let (prefix, bytes) = body.split_at_mut(BODY_PREFIX_LEN);
+            let mut time = [0u8; 8];
+            time.copy_from_slice(&prefix[1..]);
+            let host_time_us = u64::from_le_bytes(time);
+            return RecordRef::Frame {
+                host_time_us,
+                bytes,
+            };
+        }
+        match Self::parse(body) {
+            Some(record) => RecordRef::Other(record),
+            // probe() parsed it already.
+            None => RecordRef::Other(Record {
+                host_time_us: 0,
+                body: RecordBody::Unknown(body[0]),
+            }),
+        }
+    }
+
     fn parse(body: &[u8]) -> Option<Record> {
         let (&kind, rest) = body.split_first()?;
         let time: [u8; 8] = rest.get(..8)?.try_into().ok()?;
@@ -151,72 +326,16 @@ impl<R: Read> Iterator for LogReader<R> {
     type Item = Record;
 
     fn next(&mut self) -> Option<Record> {
-        if !self.checked_magic {
-            self.checked_magic = true;
-            let have = self.fill(MAGIC.len());
-            if have >= MAGIC.len() && &self.buf[self.start..self.start + MAGIC.len()] == MAGIC {
-                self.consume(MAGIC.len());
-            } else if have > 0 {
-                self.warnings.push(ReadWarning::NotALog);
-                if have < MAGIC.len() {
-                    self.consume(have);
-                    return None;
-                }
-            }
-        }
-        loop {
-            let have = self.fill(RECORD_PREFIX_LEN);
-            if have == 0 {
-                self.end_damage();
-                return None;
-            }
-            if have < RECORD_PREFIX_LEN {
-                self.end_damage();
-                self.warnings.push(ReadWarning::TornTail {
-                    offset: self.offset,
-                    bytes: have as u64,
-                });
-                self.consume(have);
-                return None;
-            }
-            let head = &self.buf[self.start..self.start + RECORD_PREFIX_LEN];
-            let len = u32::from_le_bytes([head[0], head[1], head[2], head[3]]) as usize;
-            let crc = u32::from_le_bytes([head[4], head[5], head[6], head[7]]);
-            if !(BODY_PREFIX_LEN..=MAX_BODY_LEN).contains(&len) {
-                self.skip_damaged_byte();
-                continue;
-            }
-            let have = self.fill(RECORD_PREFIX_LEN + len);
-            if have < RECORD_PREFIX_LEN + len {
-                // Either a torn tail or a damaged length near the end: a torn
-                // tail is the common case and loses only this record.
-                if self.damaged_from.is_none() {
-                    self.warnings.push(ReadWarning::TornTail {
-                        offset: self.offset,
-                        bytes: have as u64,
-                    });
-                    self.consume(have);
-                    return None;
-                }
-                self.skip_damaged_byte();
-                continue;
-            }
-            let body =
-                &self.buf[self.start + RECORD_PREFIX_LEN..self.start + RECORD_PREFIX_LEN + len];
-            if frame_crc(body) != crc {
-                self.skip_damaged_byte();
-                continue;
-            }
-            let parsed = Self::parse(body);
-            match parsed {
-                Some(record) => {
-                    self.end_damage();
-                    self.consume(RECORD_PREFIX_LEN + len);
-                    return Some(record);
-                }
-                None => self.skip_damaged_byte(),
-            }
-        }
+        Some(match self.next_ref()? {
+            RecordRef::Frame {
+                host_time_us,
+                bytes,
+            } => Record {
+                host_time_us,
+                body: RecordBody::Frame(bytes.to_vec()),
+            },
+            RecordRef::Other(record) => record,
+        })
     }
 }
 
