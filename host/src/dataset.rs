@@ -226,18 +226,40 @@ struct Part {
 }
 
 /// Exports the log at `log` into the dataset at `dir`, advancing `progress`
-/// by the bytes read. Part files appear only when complete.
+/// by the bytes read. Part files appear only when complete; every table gets
+/// at least one (empty when the log has no rows for it).
 pub fn export_log(log: &Path, dir: &Path, progress: &ProgressBar) -> Result<Exported> {
     let stem = log.file_stem().map_or("log".into(), |s| {
         s.to_string_lossy()
             .replace(|c: char| !c.is_ascii_alphanumeric() && c != '-', "_")
     });
-    write_tables(log, progress, &|table, node_id, day| {
+    let mut exported = write_tables(log, progress, &|table, node_id, day| {
         dir.join(table.name())
             .join(format!("node={node_id}"))
             .join(format!("day={day}"))
             .join(format!("part-{stem}.parquet"))
-    })
+    })?;
+    // A table with no rows gets one empty file beside another table's first,
+    // so every table exists for a query engine ("no files found" otherwise).
+    let first = exported.files.iter().find_map(|f| {
+        let table = Table::ALL
+            .into_iter()
+            .find(|t| f.starts_with(dir.join(t.name())))?;
+        Some(f.strip_prefix(dir.join(table.name())).ok()?.to_path_buf())
+    });
+    if let Some(rest) = first {
+        for table in Table::ALL {
+            let folder = dir.join(table.name());
+            if !exported.files.iter().any(|f| f.starts_with(&folder)) {
+                let empty = open_part(&folder.join(&rest), table, &[])?;
+                exported
+                    .files
+                    .push(finish(empty, table, &NodeSeen::default())?);
+            }
+        }
+    }
+    exported.files.sort();
+    Ok(exported)
 }
 
 /// Writes the log's tables as `PREFIX-reports.parquet`,

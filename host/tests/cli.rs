@@ -1090,3 +1090,66 @@ fn a_dataset_grows_log_by_log_and_a_bad_log_is_named() {
         Some(2)
     );
 }
+
+#[test]
+fn a_dataset_has_every_table_even_one_without_rows() {
+    // The invented synthetic log has reports and events but no load events:
+    // its loads table is one empty file, so a query engine finds the table.
+    let dir = tempfile::tempdir().unwrap();
+    let log = dir.path().join("day.gleanlog");
+    let (ok, _, err) = run(&[
+        "sim",
+        "synthetic",
+        "--days",
+        "0.01",
+        "--out",
+        log.to_str().unwrap(),
+    ]);
+    assert!(ok, "{err}");
+    let dataset = dir.path().join("dataset");
+    let (ok, _, err) = run(&[
+        "export",
+        "--dataset",
+        dataset.to_str().unwrap(),
+        log.to_str().unwrap(),
+    ]);
+    assert!(ok, "{err}");
+    let files = |table: &str| -> Vec<std::path::PathBuf> {
+        let node = std::fs::read_dir(dataset.join(table))
+            .unwrap()
+            .flatten()
+            .next()
+            .unwrap()
+            .path();
+        let day = std::fs::read_dir(&node)
+            .unwrap()
+            .flatten()
+            .next()
+            .unwrap()
+            .path();
+        std::fs::read_dir(&day)
+            .unwrap()
+            .flatten()
+            .map(|e| e.path())
+            .collect()
+    };
+    let rows = |path: &std::path::Path| {
+        use parquet::file::reader::FileReader;
+        let file = std::fs::File::open(path).unwrap();
+        parquet::file::reader::SerializedFileReader::new(file)
+            .unwrap()
+            .metadata()
+            .file_metadata()
+            .num_rows()
+    };
+    let (reports, loads) = (files("reports"), files("loads"));
+    assert_eq!(loads.len(), 1, "{loads:?}");
+    assert_eq!(rows(&loads[0]), 0);
+    assert!(rows(&reports[0]) > 0);
+    // Beside the reports' first file: the same node and day folders.
+    let tail = |p: &std::path::Path| {
+        let names: Vec<String> = p.iter().map(|c| c.to_string_lossy().into_owned()).collect();
+        names[names.len() - 3..].to_vec()
+    };
+    assert_eq!(tail(&loads[0]), tail(&reports[0]));
+}
