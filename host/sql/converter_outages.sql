@@ -1,18 +1,32 @@
 -- Per node: converter outages (from a transition into cutoff or stalled
--- until the next transition out of both; one still open at the end of the
+-- until the next transition out of both; one under way when the log starts
+-- begins with the first report's interval, one still open at the end of the
 -- log ends with the node's last message) with their count, total and
--- longest seconds (the longest is what storage must bridge).
-WITH marked AS (
+-- longest seconds (the longest is what storage must bridge). Events are in
+-- node time order: sequence numbers wrap after 65,536 frames.
+WITH changes AS (
+  SELECT node_id, boot, uptime_ms, seq, to_state AS state FROM events
+  UNION ALL
+  -- An outage already under way when the log starts begins with the
+  -- interval of the first report.
+  SELECT node_id, boot, uptime_ms - interval_ms, -1, state FROM (
+    SELECT node_id, boot, uptime_ms, interval_ms, state,
+           ROW_NUMBER() OVER (PARTITION BY node_id ORDER BY boot, uptime_ms) AS n
+    FROM reports
+  ) AS numbered
+  WHERE n = 1 AND state IN ('cutoff', 'stalled')
+),
+marked AS (
   SELECT
     node_id, boot, seq, uptime_ms,
-    CASE WHEN to_state IN ('cutoff', 'stalled') THEN 1 ELSE 0 END AS down,
-    LAG(CASE WHEN to_state IN ('cutoff', 'stalled') THEN 1 ELSE 0 END, 1, 0)
-      OVER (PARTITION BY node_id ORDER BY boot, seq) AS was_down
-  FROM events
+    CASE WHEN state IN ('cutoff', 'stalled') THEN 1 ELSE 0 END AS down,
+    LAG(CASE WHEN state IN ('cutoff', 'stalled') THEN 1 ELSE 0 END, 1, 0)
+      OVER (PARTITION BY node_id ORDER BY boot, uptime_ms, seq) AS was_down
+  FROM changes
 ),
 edges AS (
   SELECT node_id, uptime_ms, down,
-         LEAD(uptime_ms) OVER (PARTITION BY node_id ORDER BY boot, seq) AS next_ms
+         LEAD(uptime_ms) OVER (PARTITION BY node_id ORDER BY boot, uptime_ms, seq) AS next_ms
   FROM marked
   WHERE down <> was_down
 ),
