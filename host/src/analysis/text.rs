@@ -210,6 +210,22 @@ pub fn render(report: &RunReport) -> String {
 }
 
 fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
+    write_run(o, r)?;
+    write_energy(o, r)?;
+    write_states(o, r)?;
+    write_load_outages(o, r)?;
+    write_converter_outages(o, r)?;
+    write_efficiency(o, r)?;
+    write_days(o, r)?;
+    write_harvest(o, r)?;
+    if let Some(s) = &r.sizing {
+        write_sizing(o, s)?;
+    }
+    write_link(o, r)
+}
+
+/// The run: when, which node and boots, how much was covered.
+fn write_run(o: &mut String, r: &RunReport) -> std::fmt::Result {
     heading(o, Section::Run, "")?;
     if let Some(h) = &r.header {
         writeln!(
@@ -246,6 +262,11 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
     )?;
     writeln!(o, "  reboots      {}", r.link.reboots)?;
     writeln!(o)?;
+    Ok(())
+}
+
+/// Energy totals and efficiency.
+fn write_energy(o: &mut String, r: &RunReport) -> std::fmt::Result {
     heading(o, Section::Energy, "")?;
     writeln!(o, "  drawn from harvester   {}", energy(r.energy.drawn_j))?;
     writeln!(
@@ -260,6 +281,11 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
         percent(r.energy.efficiency)
     )?;
     writeln!(o)?;
+    Ok(())
+}
+
+/// Time in each converter state.
+fn write_states(o: &mut String, r: &RunReport) -> std::fmt::Result {
     heading(o, Section::States, "")?;
     for s in r.states.iter().filter(|s| s.seconds > 0.0) {
         writeln!(
@@ -271,7 +297,11 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
         )?;
     }
     writeln!(o)?;
-    write_load_outages(o, r)?;
+    Ok(())
+}
+
+/// The converter's outages, the first 50 listed.
+fn write_converter_outages(o: &mut String, r: &RunReport) -> std::fmt::Result {
     heading(
         o,
         Section::ConverterOutages,
@@ -303,6 +333,11 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
         writeln!(o, "  ... and {} more (see --json)", r.outages.len() - 50)?;
     }
     writeln!(o)?;
+    Ok(())
+}
+
+/// Efficiency by input voltage, with a bar each.
+fn write_efficiency(o: &mut String, r: &RunReport) -> std::fmt::Result {
     heading(o, Section::EfficiencyByInput, "")?;
     for b in r.efficiency_by_input.iter().filter(|b| b.drawn_j > 0.0) {
         let bar = b
@@ -319,6 +354,11 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
         )?;
     }
     writeln!(o)?;
+    Ok(())
+}
+
+/// Daily budgets.
+fn write_days(o: &mut String, r: &RunReport) -> std::fmt::Result {
     heading(
         o,
         Section::DailyBudget,
@@ -341,44 +381,51 @@ fn write_report(o: &mut String, r: &RunReport) -> std::fmt::Result {
         )?;
     }
     writeln!(o)?;
-    write_harvest(o, r)?;
-    if let Some(s) = &r.sizing {
-        heading(o, Section::StorageAndDutyCycle, "")?;
-        if s.outage_s > 0.0 {
-            writeln!(o, "  longest outage        {}", duration(s.outage_s))?;
-            writeln!(o, "  load while supplied   {}", power(s.load_w))?;
-            writeln!(o, "  energy to bridge it   {}", energy(s.energy_needed_j))?;
-            match s.capacitance_f {
-                Some(c) => writeln!(
-                    o,
-                    "  capacitance needed    {:.3} F between {:.2} V and {:.2} V (C = 2E / (Vmax² - Vmin²) = {:.3} F, times a {:.0} % margin)",
-                    c,
-                    s.v_max,
-                    s.v_min,
-                    s.capacitance_exact_f.unwrap_or(0.0),
-                    (s.margin - 1.0) * 100.0
-                )?,
-                None => writeln!(o, "  capacitance needed    - (the highest storage voltage seen is not above the lowest usable one)")?,
-            }
-        } else {
-            writeln!(o, "  no outage: the present storage was enough")?;
+    Ok(())
+}
+
+/// Storage and duty-cycle advice.
+fn write_sizing(o: &mut String, s: &super::sizing::SizingAdvice) -> std::fmt::Result {
+    heading(o, Section::StorageAndDutyCycle, "")?;
+    if s.outage_s > 0.0 {
+        writeln!(o, "  longest outage        {}", duration(s.outage_s))?;
+        writeln!(o, "  load while supplied   {}", power(s.load_w))?;
+        writeln!(o, "  energy to bridge it   {}", energy(s.energy_needed_j))?;
+        match s.capacitance_f {
+            Some(c) => writeln!(
+                o,
+                "  capacitance needed    {:.3} F between {:.2} V and {:.2} V (C = 2E / (Vmax² - Vmin²) = {:.3} F, times a {:.0} % margin)",
+                c,
+                s.v_max,
+                s.v_min,
+                s.capacitance_exact_f.unwrap_or(0.0),
+                (s.margin - 1.0) * 100.0
+            )?,
+            None => writeln!(o, "  capacitance needed    - (the highest storage voltage seen is not above the lowest usable one)")?,
         }
-        writeln!(o, "  mean converted        {}", power(s.converted_w))?;
-        writeln!(
-            o,
-            "  load asleep / active  {} / {}",
-            power(s.sleep_w),
-            power(s.active_w)
-        )?;
-        writeln!(
-            o,
-            "  largest duty cycle    {}",
-            s.max_duty_cycle.map_or(
-                "- (the converted power does not cover even the sleep power)".into(),
-                |d| format!("{:.2} %", d * 100.0)
-            )
-        )?;
+    } else {
+        writeln!(o, "  no outage: the present storage was enough")?;
     }
+    writeln!(o, "  mean converted        {}", power(s.converted_w))?;
+    writeln!(
+        o,
+        "  load asleep / active  {} / {}",
+        power(s.sleep_w),
+        power(s.active_w)
+    )?;
+    writeln!(
+        o,
+        "  largest duty cycle    {}",
+        s.max_duty_cycle.map_or(
+            "- (the converted power does not cover even the sleep power)".into(),
+            |d| format!("{:.2} %", d * 100.0)
+        )
+    )?;
+    Ok(())
+}
+
+/// Link quality and warnings.
+fn write_link(o: &mut String, r: &RunReport) -> std::fmt::Result {
     writeln!(o)?;
     heading(o, Section::Link, "")?;
     let l = &r.link;
