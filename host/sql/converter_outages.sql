@@ -4,17 +4,24 @@
 -- log ends with the node's last message) with their count, total and
 -- longest seconds (the longest is what storage must bridge). Events are in
 -- node time order: sequence numbers wrap after 65,536 frames.
-WITH changes AS (
+WITH first_boot AS (
+  SELECT node_id, MIN(boot) AS boot FROM reports GROUP BY node_id
+),
+first_report AS (
+  SELECT r.node_id, r.boot, MIN(r.uptime_ms) AS uptime_ms
+  FROM reports AS r JOIN first_boot AS f ON r.node_id = f.node_id AND r.boot = f.boot
+  GROUP BY r.node_id, r.boot
+),
+changes AS (
   SELECT node_id, boot, uptime_ms, seq, to_state AS state FROM events
   UNION ALL
   -- An outage already under way when the log starts begins with the
   -- interval of the first report.
-  SELECT node_id, boot, uptime_ms - interval_ms, -1, state FROM (
-    SELECT node_id, boot, uptime_ms, interval_ms, state,
-           ROW_NUMBER() OVER (PARTITION BY node_id ORDER BY boot, uptime_ms) AS n
-    FROM reports
-  ) AS numbered
-  WHERE n = 1 AND state IN ('cutoff', 'stalled')
+  SELECT r.node_id, r.boot, r.uptime_ms - r.interval_ms, -1, r.state
+  FROM reports AS r
+  JOIN first_report AS f
+    ON r.node_id = f.node_id AND r.boot = f.boot AND r.uptime_ms = f.uptime_ms
+  WHERE r.state IN ('cutoff', 'stalled')
 ),
 marked AS (
   SELECT
@@ -32,9 +39,9 @@ edges AS (
 ),
 last_seen AS (
   SELECT node_id, MAX(uptime_ms) AS end_ms FROM (
-    SELECT node_id, uptime_ms FROM reports
-    UNION ALL SELECT node_id, uptime_ms FROM events
-    UNION ALL SELECT node_id, uptime_ms FROM loads
+    SELECT node_id, MAX(uptime_ms) AS uptime_ms FROM reports GROUP BY node_id
+    UNION ALL SELECT node_id, MAX(uptime_ms) FROM events GROUP BY node_id
+    UNION ALL SELECT node_id, MAX(uptime_ms) FROM loads GROUP BY node_id
   ) AS everything
   GROUP BY node_id
 )

@@ -7,12 +7,17 @@ use crate::{FrameError, Uplink, UplinkBody, PROTOCOL_VERSION};
 /// The older majors still read, oldest first.
 pub const OLDER_MAJORS: [u8; 2] = [1, 2];
 
-/// Decodes an uplink body in the layout of protocol `major`, converted.
-fn parse_as(major: u8, body: &[u8]) -> Result<Uplink, FrameError> {
-    match major {
-        1 => parse_body::<crate::v1::Uplink>(body).map(Into::into),
-        2 => parse_body::<crate::v2::Uplink>(body).map(Into::into),
-        _ => parse_body::<Uplink>(body),
+/// Decodes an uplink body in the layout of the older protocol `major`,
+/// converted, when it reads consistently as that layout.
+fn parse_older(major: u8, body: &[u8]) -> Result<(Uplink, u8), FrameError> {
+    let message: Uplink = match major {
+        1 => parse_body::<crate::v1::Uplink>(body)?.into(),
+        _ => parse_body::<crate::v2::Uplink>(body)?.into(),
+    };
+    if consistent(&message, major) {
+        Ok((message, major))
+    } else {
+        Err(FrameError::Malformed)
     }
 }
 
@@ -46,28 +51,24 @@ pub fn decode_uplink_any(
 /// made ahead of time; it needs repeating only when the boot turns out to
 /// speak an older major and the read gave another one.
 pub fn parse_uplink_any(body: &[u8], prefer_major: Option<u8>) -> Result<(Uplink, u8), FrameError> {
-    let current = PROTOCOL_VERSION.major;
-    let attempt = |major: u8| {
-        let message = parse_as(major, body)?;
-        if consistent(&message, major) {
-            Ok((message, major))
-        } else {
-            Err(FrameError::Malformed)
-        }
-    };
     if let Some(major) = prefer_major.filter(|m| OLDER_MAJORS.contains(m)) {
-        if let Ok(found) = attempt(major) {
+        if let Ok(found) = parse_older(major, body) {
             return Ok(found);
         }
     }
-    match attempt(current) {
-        Ok(found) => Ok(found),
+    // The current layout first, returned as directly as it can be: most
+    // frames of most logs take this path.
+    let current = PROTOCOL_VERSION.major;
+    let error = match parse_body::<Uplink>(body) {
+        Ok(message) if consistent(&message, current) => return Ok((message, current)),
+        Ok(_) => FrameError::Malformed,
         // A newer kind than ours is reported as such, not retried as an older one.
-        Err(FrameError::UnknownVariant) => Err(FrameError::UnknownVariant),
-        Err(error) => OLDER_MAJORS
-            .iter()
-            .rev()
-            .find_map(|&major| attempt(major).ok())
-            .ok_or(error),
-    }
+        Err(FrameError::UnknownVariant) => return Err(FrameError::UnknownVariant),
+        Err(error) => error,
+    };
+    OLDER_MAJORS
+        .iter()
+        .rev()
+        .find_map(|&major| parse_older(major, body).ok())
+        .ok_or(error)
 }

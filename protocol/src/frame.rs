@@ -119,11 +119,15 @@ pub fn open_frame(encoded: &mut [u8]) -> Result<&[u8], FrameError> {
 
 /// Parses the postcard bytes of one message, which must be used up exactly.
 pub fn parse_body<T: Message>(body: &[u8]) -> Result<T, FrameError> {
-    match postcard::take_from_bytes::<T>(body) {
-        Ok((message, [])) => Ok(message),
-        Ok(_) => Err(FrameError::TrailingBytes),
-        Err(_) if T::names_unknown_kind(body) => Err(FrameError::UnknownVariant),
-        Err(_) => Err(FrameError::Malformed),
+    let mut parser = postcard::Deserializer::from_bytes(body);
+    let message = match T::deserialize(&mut parser) {
+        Ok(message) => message,
+        Err(_) if T::names_unknown_kind(body) => return Err(FrameError::UnknownVariant),
+        Err(_) => return Err(FrameError::Malformed),
+    };
+    match parser.finalize() {
+        Ok([]) => Ok(message),
+        _ => Err(FrameError::TrailingBytes),
     }
 }
 
