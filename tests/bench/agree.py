@@ -86,7 +86,7 @@ def main():
     same_answers(duck, pandas)
     report_agrees(report, duck)
     figures = sum(len(row) for rows in duck.values() for row in rows)
-    print(f"every figure agrees: gleaner report, DuckDB and pandas ({len(duck)} questions, {figures} figures)")
+    print(f"Every figure agrees: gleaner report, DuckDB and pandas ({len(duck)} questions, {figures} figures)")
 
 
 if __name__ == "__main__":
