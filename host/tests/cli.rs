@@ -1153,3 +1153,54 @@ fn a_dataset_has_every_table_even_one_without_rows() {
     };
     assert_eq!(tail(&loads[0]), tail(&reports[0]));
 }
+
+/// The fixture log recorded by the protocol 2 build (invented setting).
+fn fixture_log() -> std::path::PathBuf {
+    std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("../tests/data/protocol2-greenhouse-evening.gleanlog")
+}
+
+#[test]
+fn help_texts_are_as_pinned() {
+    // Snapshots (insta): a changed help text fails here until reviewed with
+    // `cargo insta review` (or INSTA_UPDATE=always), so no option is renamed
+    // or reworded by accident.
+    for command in ["", "report", "record", "watch", "export", "node"] {
+        let mut args: Vec<&str> = command.split_whitespace().collect();
+        args.push("--help");
+        let (ok, said, err) = run(&args);
+        assert!(ok, "{err}");
+        let name = format!(
+            "help-{}",
+            if command.is_empty() {
+                "gleaner"
+            } else {
+                command
+            }
+        );
+        insta::assert_snapshot!(name, said);
+    }
+}
+
+#[test]
+fn the_text_report_is_as_pinned() {
+    let (ok, said, err) = run(&["report", fixture_log().to_str().unwrap()]);
+    assert!(ok, "{err}");
+    insta::assert_snapshot!("report-protocol2-greenhouse-evening", said);
+}
+
+#[test]
+fn the_plain_live_lines_are_as_pinned() {
+    let (ok, said, err) = run(&[
+        "watch",
+        "--replay",
+        fixture_log().to_str().unwrap(),
+        "--plain",
+    ]);
+    assert!(ok, "{err}");
+    // The first lines and every event line: the formats, not the whole run.
+    let lines: Vec<&str> = said.lines().collect();
+    let mut kept: Vec<&str> = lines.iter().take(6).copied().collect();
+    kept.extend(lines.iter().skip(6).filter(|l| !l.starts_with("t=")));
+    insta::assert_snapshot!("watch-plain-protocol2-greenhouse-evening", kept.join("\n"));
+}
