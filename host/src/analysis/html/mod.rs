@@ -139,6 +139,26 @@ fn run(page: &mut String, r: &RunReport) {
         &["", ""],
         rows.into_iter().map(|(k, v)| vec![k.to_string(), v]),
     );
+    boots(page, r);
+    figure(
+        page,
+        PLOT_TITLES[0],
+        plots::time_plot(
+            r,
+            PLOT_TITLES[0],
+            "volts",
+            &[
+                ("input", plotters::style::BLUE, |p| p.input_v),
+                ("output", plotters::style::RED, |p| p.output_v),
+            ],
+            true,
+        ),
+    );
+    state_legend(page);
+}
+
+/// One row per boot: the node, its firmware and configuration.
+fn boots(page: &mut String, r: &RunReport) {
     table(
         page,
         &[
@@ -173,21 +193,6 @@ fn run(page: &mut String, r: &RunReport) {
             ]
         }),
     );
-    figure(
-        page,
-        PLOT_TITLES[0],
-        plots::time_plot(
-            r,
-            PLOT_TITLES[0],
-            "volts",
-            &[
-                ("input", plotters::style::BLUE, |p| p.input_v),
-                ("output", plotters::style::RED, |p| p.output_v),
-            ],
-            true,
-        ),
-    );
-    state_legend(page);
 }
 
 /// The colours of the state bands.
