@@ -1204,3 +1204,66 @@ fn the_plain_live_lines_are_as_pinned() {
     kept.extend(lines.iter().skip(6).filter(|l| !l.starts_with("t=")));
     insta::assert_snapshot!("watch-plain-protocol2-greenhouse-evening", kept.join("\n"));
 }
+
+#[test]
+fn several_ports_record_at_once_one_log_each() {
+    // Three virtual nodes: two named, one found through a pattern over a
+    // folder of links (as /dev/serial/by-id/* is on a gateway).
+    let nodes = [
+        Served::start("greenhouse-day"),
+        Served::start("boiler-pipe"),
+        Served::start("crate-beacon"),
+    ];
+    let dir = tempfile::tempdir().unwrap();
+    let links = dir.path().join("by-id");
+    std::fs::create_dir(&links).unwrap();
+    std::os::unix::fs::symlink(&nodes[2].path, links.join("node-c")).unwrap();
+    let logs = dir.path().join("logs");
+    let pattern = format!("{}/node-*", links.display());
+    let (ok, _, err) = run(&[
+        "record",
+        "--dir",
+        logs.to_str().unwrap(),
+        "--duration",
+        "5",
+        "--status-every",
+        "0",
+        &nodes[0].path,
+        &nodes[1].path,
+        &pattern,
+    ]);
+    assert!(ok, "{err}");
+    let mut written: Vec<std::path::PathBuf> = std::fs::read_dir(&logs)
+        .unwrap()
+        .flatten()
+        .map(|e| e.path())
+        .collect();
+    written.sort();
+    assert_eq!(written.len(), 3, "{written:?}\n{err}");
+    assert!(
+        written
+            .iter()
+            .any(|p| p.to_string_lossy().contains("node-c")),
+        "{written:?}"
+    );
+    for log in &written {
+        let report = gleaner::analysis::analyze_file(log).unwrap();
+        assert!(
+            report.message_counts.get("report").copied().unwrap_or(0) > 0,
+            "{}",
+            log.display()
+        );
+        assert_eq!(report.boots.len(), 1, "each log holds its own node's Hello");
+    }
+    assert_eq!(err.matches(": stopped:").count(), 3, "{err}");
+}
+
+#[test]
+fn several_ports_need_a_folder_not_one_file() {
+    let (ok, _, err) = run(&["record", "--out", "one.gleanlog", "/dev/a", "/dev/b"]);
+    assert!(!ok);
+    assert!(err.contains("each gets its own log in --dir"), "{err}");
+    let (ok, _, err) = run(&["record", "/nonexistent/gleaner-ports/*"]);
+    assert!(!ok);
+    assert!(err.contains("no port matches"), "{err}");
+}

@@ -52,7 +52,7 @@ pub enum Command {
     Ports(ports::Cmd),
     /// Watch a node live (or replay a recording), optionally recording it.
     Watch(watch::Cmd),
-    /// Record a node to a log file, headless, for long runs.
+    /// Record a node to a log file (or several nodes, one log each), headless, for long runs.
     Record(record::Cmd),
     /// Talk to a node: ping, info, configuration, counters, bursts.
     Node(node::Cmd),

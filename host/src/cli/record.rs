@@ -1,7 +1,9 @@
 //! `gleaner record`: headless recording for long runs.
 
+use std::collections::BTreeSet;
 use std::io::Write;
 use std::path::PathBuf;
+use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::{Duration, Instant};
 
 use anyhow::{Context, Result};
@@ -18,12 +20,17 @@ use crate::view::observer::{Display, LiveObserver};
 
 /// Record a node to a log file: reconnects when the port disappears and comes
 /// back (the gap is marked in the log), prints a status line now and then,
-/// and stops cleanly on Ctrl-C or SIGTERM with everything flushed.
+/// and stops cleanly on Ctrl-C or SIGTERM with everything flushed. Several
+/// ports (or a pattern such as '/dev/serial/by-id/*', quoted) record at once,
+/// one log per port in --dir, each port on its own so one silent, unplugged
+/// or garbled node never holds up the others; ports that appear later
+/// matching a pattern are picked up.
 #[derive(Debug, Args)]
 pub struct Cmd {
-    /// Serial port of the node (a path or an alias); or give it with `-p/--port`.
+    /// Serial port of the node (a path or an alias), or several, or glob
+    /// patterns; or give one with `-p/--port`.
     #[arg(value_name = "PORT")]
-    pub port_arg: Option<String>,
+    pub ports: Vec<String>,
     /// The port and line rate.
     #[command(flatten)]
     pub link: super::PortArgs,
@@ -58,62 +65,42 @@ pub struct Cmd {
 impl Cmd {
     /// Runs the command.
     pub fn run(self) -> Result<()> {
-        let reach = self.link.require(self.port_arg.as_deref())?;
+        if self.ports.len() > 1 || self.ports.first().is_some_and(|p| is_pattern(p)) {
+            return self.record_many();
+        }
+        let reach = self.link.require(self.ports.first().map(String::as_str))?;
         let port = reach.port.clone();
         let path = match self.out.clone() {
             Some(path) => path,
             None => {
                 let config = crate::user_config::UserConfig::load()?;
-                let name = config.alias_of(&port).map_or_else(
-                    || {
-                        std::path::Path::new(&port)
-                            .file_name()
-                            .map_or("node".into(), |n| n.to_string_lossy().into_owned())
-                    },
-                    str::to_owned,
-                );
-                super::new_log_path(&config.runs_dir(self.dir.clone()), &name)
+                super::new_log_path(
+                    &config.runs_dir(self.dir.clone()),
+                    &log_name(&config, &port),
+                )
             }
         };
-        let mut recorder = Recorder::create(&path, &port)?;
-        eprintln!("recording {port} to {} (Ctrl-C stops)", path.display());
         let stop = super::stop_flag()?;
-        let started = Instant::now();
-        let status_every = Duration::from_secs_f64(self.status_every);
-        let mut last_status = Instant::now();
-        let limit = self.duration.map(Duration::from_secs_f64);
-        let done = move |stats: &LinkStats, _idle: Duration| {
-            if self.status_every > 0.0 && last_status.elapsed() >= status_every {
-                last_status = Instant::now();
-                eprintln!(
-                    "[{}] frames {} lost {} crc {} framing {} reboots {}{}",
-                    duration(started.elapsed().as_secs_f64()),
-                    stats.frames,
-                    stats.lost_frames,
-                    stats.crc_errors,
-                    stats.framing_errors,
-                    stats.reboots,
-                    if stats.likely_wrong_baud() {
-                        " - mostly errors: is the baud rate right?"
-                    } else {
-                        ""
-                    }
-                );
-            }
-            limit.is_some_and(|l| started.elapsed() >= l)
-        };
-        let mut steps = Vec::new();
-        if self.ping {
-            steps.push(Step::Ping);
-        }
-        if let Some(file) = &self.set_config {
-            let text = std::fs::read_to_string(file)
-                .with_context(|| format!("cannot read {}", file.display()))?;
-            let settings = NodeSettings::from_toml(&text)
-                .with_context(|| format!("in {}", file.display()))
-                .failed_as(crate::failure::Failure::BadInput)?;
-            steps.push(Step::Configure(Box::new(settings)));
-        }
+        let stats = self.record_port(&reach, &path, &stop, None)?;
+        let _ = std::io::stderr().flush();
+        eprintln!("stopped: {}; log {}", summary(&stats), path.display());
+        Ok(())
+    }
+
+    /// Records one port to `path` until stopped; status lines start with
+    /// `tag` when several ports record at once.
+    fn record_port(
+        &self,
+        reach: &super::Reach,
+        path: &std::path::Path,
+        stop: &AtomicBool,
+        tag: Option<&str>,
+    ) -> Result<LinkStats> {
+        let port = reach.port.clone();
+        let mut recorder = Recorder::create(path, &port)?;
+        eprintln!("recording {port} to {} (Ctrl-C stops)", path.display());
+        let done = self.status_lines(tag);
+        let steps = self.steps()?;
         let mut observer = LiveObserver::new(
             Display::Silent,
             &port,
@@ -130,30 +117,241 @@ impl Cmd {
             &mut observer
         };
         let mut scripted = Scripted::new(script, inner);
-        let result = run_port(&mut recorder, &port, reach.baud, &stop, &mut scripted);
-        for (step, outcome) in &scripted.script.results {
-            match outcome {
-                Some(Outcome::Refused(reason)) => eprintln!("{step:?}: refused: {reason}"),
-                Some(o) => eprintln!("{step:?}: {o:?}"),
-                None => eprintln!("{step:?}: the node did not answer within 3 s"),
-            }
-        }
-        for e in &scripted.script.errors {
-            eprintln!("not sent: {e}");
-        }
+        let result = run_port(&mut recorder, &port, reach.baud, stop, &mut scripted);
+        print_outcomes(&scripted.script);
         let finished = recorder.finish();
         let stats = *recorder.stats();
         result?;
         finished?;
-        let _ = std::io::stderr().flush();
-        eprintln!(
-            "stopped: {} frames, {} lost, {} damaged, {} reboots; log {}",
-            stats.frames,
-            stats.lost_frames,
-            stats.damaged(),
-            stats.reboots,
-            path.display()
-        );
+        Ok(stats)
+    }
+
+    /// Prints a status line every --status-every (prefixed with `tag`) and
+    /// says when --duration is up.
+    fn status_lines<'a>(
+        &'a self,
+        tag: Option<&'a str>,
+    ) -> impl FnMut(&LinkStats, Duration) -> bool + 'a {
+        let started = Instant::now();
+        let status_every = Duration::from_secs_f64(self.status_every);
+        let mut last_status = Instant::now();
+        let limit = self.duration.map(Duration::from_secs_f64);
+        move |stats: &LinkStats, _idle: Duration| {
+            if self.status_every > 0.0 && last_status.elapsed() >= status_every {
+                last_status = Instant::now();
+                eprintln!(
+                    "{}[{}] frames {} lost {} crc {} framing {} reboots {}{}",
+                    tag.map_or(String::new(), |t| format!("{t}: ")),
+                    duration(started.elapsed().as_secs_f64()),
+                    stats.frames,
+                    stats.lost_frames,
+                    stats.crc_errors,
+                    stats.framing_errors,
+                    stats.reboots,
+                    if stats.likely_wrong_baud() {
+                        " - mostly errors: is the baud rate right?"
+                    } else {
+                        ""
+                    }
+                );
+            }
+            limit.is_some_and(|l| started.elapsed() >= l)
+        }
+    }
+
+    /// The commands to send once connected: --ping, --set-config.
+    fn steps(&self) -> Result<Vec<Step>> {
+        let mut steps = Vec::new();
+        if self.ping {
+            steps.push(Step::Ping);
+        }
+        if let Some(file) = &self.set_config {
+            let text = std::fs::read_to_string(file)
+                .with_context(|| format!("cannot read {}", file.display()))?;
+            let settings = NodeSettings::from_toml(&text)
+                .with_context(|| format!("in {}", file.display()))
+                .failed_as(crate::failure::Failure::BadInput)?;
+            steps.push(Step::Configure(Box::new(settings)));
+        }
+        Ok(steps)
+    }
+
+    /// Records every port named or matching a pattern, one log each, until
+    /// stopped; looks for new matching ports every [`RESCAN`].
+    fn record_many(&self) -> Result<()> {
+        use crate::failure::Failure;
+        self.check_many()?;
+        let config = crate::user_config::UserConfig::load()?;
+        let dir = config.runs_dir(self.dir.clone());
+        let stop = super::stop_flag()?;
+        let started = Instant::now();
+        let limit = self.duration.map(Duration::from_secs_f64);
+        let mut recording: BTreeSet<String> = BTreeSet::new();
+        let done = std::sync::Mutex::new(Vec::new());
+        std::thread::scope(|scope| -> Result<()> {
+            loop {
+                for port in self.present_ports(&config) {
+                    if !recording.insert(port.clone()) {
+                        continue;
+                    }
+                    let path = unused_path(super::new_log_path(&dir, &log_name(&config, &port)));
+                    let reach = super::Reach {
+                        port: port.clone(),
+                        baud: config.baud(self.link.baud),
+                    };
+                    let (stop, done) = (&stop, &done);
+                    scope.spawn(move || {
+                        let outcome = self.record_port(&reach, &path, stop, Some(&reach.port));
+                        if let Ok(mut all) = done.lock() {
+                            all.push((reach.port, path, outcome));
+                        }
+                    });
+                }
+                if recording.is_empty() {
+                    stop.store(true, Ordering::Relaxed);
+                    return Err(anyhow::anyhow!(
+                        "no port matches {} (`gleaner ports` lists them)",
+                        self.ports.join(", ")
+                    ))
+                    .failed_as(Failure::Usage);
+                }
+                let deadline = Instant::now() + RESCAN;
+                let over = || limit.is_some_and(|l| started.elapsed() >= l);
+                while Instant::now() < deadline && !stop.load(Ordering::Relaxed) && !over() {
+                    std::thread::sleep(Duration::from_millis(100));
+                }
+                if stop.load(Ordering::Relaxed) || over() {
+                    stop.store(true, Ordering::Relaxed);
+                    return Ok(());
+                }
+            }
+        })?;
+        say_how_each_ended(done.into_inner().unwrap_or_default())
+    }
+
+    /// Refuses options that name one log or one stream.
+    fn check_many(&self) -> Result<()> {
+        use crate::failure::Failure;
+        if self.out.is_some() {
+            return Err(anyhow::anyhow!(
+                "--out names one log; with several ports each gets its own log in --dir"
+            ))
+            .failed_as(Failure::Usage);
+        }
+        if self.json_lines {
+            return Err(anyhow::anyhow!(
+                "--json-lines streams one port; record several ports without it (each log can be replayed with `gleaner watch --replay LOG --json-lines`)"
+            ))
+            .failed_as(Failure::Usage);
+        }
         Ok(())
     }
+
+    /// The ports named (aliases resolved) that exist now, and every path
+    /// matching a pattern.
+    fn present_ports(&self, config: &crate::user_config::UserConfig) -> Vec<String> {
+        let mut found = Vec::new();
+        for given in &self.ports {
+            if !is_pattern(given) {
+                let port = config.port(given);
+                if std::path::Path::new(&port).exists() {
+                    found.push(port);
+                }
+                continue;
+            }
+            if let Ok(paths) = glob::glob(given) {
+                found.extend(paths.flatten().map(|p| p.to_string_lossy().into_owned()));
+            }
+        }
+        found
+    }
+}
+
+/// How often several-port recording looks for new ports.
+pub const RESCAN: Duration = Duration::from_secs(2);
+
+/// True when `port` is a glob pattern rather than one port.
+fn is_pattern(port: &str) -> bool {
+    port.contains(['*', '?', '['])
+}
+
+/// The log's name for a port: its alias, else its file name.
+fn log_name(config: &crate::user_config::UserConfig, port: &str) -> String {
+    config.alias_of(port).map_or_else(
+        || {
+            std::path::Path::new(port)
+                .file_name()
+                .map_or("node".into(), |n| n.to_string_lossy().into_owned())
+        },
+        str::to_owned,
+    )
+}
+
+/// `path`, or with `-2`, `-3`, ... before the extension when taken (two
+/// ports with one file name, started in one second).
+fn unused_path(path: PathBuf) -> PathBuf {
+    let stem = path
+        .file_stem()
+        .map_or(String::new(), |s| s.to_string_lossy().into_owned());
+    let mut candidate = path.clone();
+    let mut n = 2;
+    while candidate.exists() {
+        candidate = path.with_file_name(format!("{stem}-{n}.gleanlog"));
+        n += 1;
+    }
+    candidate
+}
+
+/// A recording's counters in words.
+fn summary(stats: &LinkStats) -> String {
+    format!(
+        "{} frames, {} lost, {} damaged, {} reboots",
+        stats.frames,
+        stats.lost_frames,
+        stats.damaged(),
+        stats.reboots
+    )
+}
+
+/// What the node answered to the commands sent while recording.
+fn print_outcomes(script: &CommandScript) {
+    for (step, outcome) in &script.results {
+        match outcome {
+            Some(Outcome::Refused(reason)) => eprintln!("{step:?}: refused: {reason}"),
+            Some(o) => eprintln!("{step:?}: {o:?}"),
+            None => eprintln!("{step:?}: the node did not answer within 3 s"),
+        }
+    }
+    for e in &script.errors {
+        eprintln!("not sent: {e}");
+    }
+}
+
+/// How each port's recording ended: `port: stopped ...` or its error; an
+/// error when any failed.
+fn say_how_each_ended(ended: Vec<(String, PathBuf, Result<LinkStats>)>) -> Result<()> {
+    use crate::failure::Failure;
+    let count = ended.len();
+    let mut failed = 0;
+    for (port, path, outcome) in ended {
+        match outcome {
+            Ok(stats) => eprintln!(
+                "{port}: stopped: {}; log {}",
+                summary(&stats),
+                path.display()
+            ),
+            Err(e) => {
+                failed += 1;
+                eprintln!("{port}: {e:#}");
+            }
+        }
+    }
+    if failed > 0 {
+        return Err(anyhow::anyhow!(
+            "{failed} of {} ports could not be recorded (above)",
+            count
+        ))
+        .failed_as(Failure::PortUnavailable);
+    }
+    Ok(())
 }
