@@ -48,6 +48,7 @@ pub mod link;
 pub mod log;
 pub mod parallel;
 pub mod progress;
+pub mod record_status;
 pub mod recorder;
 pub mod settings;
 pub mod sim;

@@ -1237,6 +1237,7 @@ fn several_ports_record_at_once_one_log_each() {
         .unwrap()
         .flatten()
         .map(|e| e.path())
+        .filter(|p| p.extension().is_some_and(|e| e == "gleanlog"))
         .collect();
     written.sort();
     assert_eq!(written.len(), 3, "{written:?}\n{err}");
@@ -1256,6 +1257,18 @@ fn several_ports_record_at_once_one_log_each() {
         assert_eq!(report.boots.len(), 1, "each log holds its own node's Hello");
     }
     assert_eq!(err.matches(": stopped:").count(), 3, "{err}");
+    // The status file says what each port did, in words.
+    let (ok, said, err) = run(&["record", "--status", "--dir", logs.to_str().unwrap()]);
+    assert!(ok, "{err}");
+    let ports: Vec<&str> = said.lines().skip(1).collect();
+    assert_eq!(ports.len(), 3, "{said}");
+    for line in ports {
+        assert!(line.contains(": not connected, node "), "{line}");
+        assert!(
+            !line.contains("not identified yet") && !line.contains("frames 0,"),
+            "{line}"
+        );
+    }
 }
 
 #[test]

@@ -14,6 +14,7 @@ use crate::analysis::text::duration;
 use crate::failure::FailedAs;
 use crate::link::script::{CommandScript, Scripted, Step};
 use crate::link::LinkStats;
+use crate::record_status::{Reporting, StatusBoard};
 use crate::recorder::{run_port, Recorder};
 use crate::settings::NodeSettings;
 use crate::view::observer::{Display, LiveObserver};
@@ -60,11 +61,24 @@ pub struct Cmd {
     /// Apply these settings (TOML, as for `gleaner node set-config --file`) once connected.
     #[arg(long)]
     pub set_config: Option<PathBuf>,
+    /// Instead of recording, say what a running several-port recording in
+    /// --dir is doing (from its status.json): each port's node, state, last
+    /// frame, frames lost and damaged, gaps and log.
+    #[arg(long, conflicts_with_all = ["ports", "out", "ping", "set_config", "json_lines"])]
+    pub status: bool,
 }
 
 impl Cmd {
     /// Runs the command.
     pub fn run(self) -> Result<()> {
+        if self.status {
+            let config = crate::user_config::UserConfig::load()?;
+            let dir = config.runs_dir(self.dir.clone());
+            let said = crate::record_status::describe(&dir, crate::log::now_us())
+                .failed_as(crate::failure::Failure::BadInput)?;
+            print!("{said}");
+            return Ok(());
+        }
         if self.ports.len() > 1 || self.ports.first().is_some_and(|p| is_pattern(p)) {
             return self.record_many();
         }
@@ -87,16 +101,18 @@ impl Cmd {
         Ok(())
     }
 
-    /// Records one port to `path` until stopped; status lines start with
-    /// `tag` when several ports record at once.
+    /// Records one port to `path` until stopped. With a `board` (several
+    /// ports at once), it keeps the port's status there and its status lines
+    /// start with the port.
     fn record_port(
         &self,
         reach: &super::Reach,
         path: &std::path::Path,
         stop: &AtomicBool,
-        tag: Option<&str>,
+        board: Option<&StatusBoard>,
     ) -> Result<LinkStats> {
         let port = reach.port.clone();
+        let tag = board.map(|_| reach.port.as_str());
         let mut recorder = Recorder::create(path, &port)?;
         eprintln!("recording {port} to {} (Ctrl-C stops)", path.display());
         let done = self.status_lines(tag);
@@ -115,6 +131,14 @@ impl Cmd {
             &mut streamed
         } else {
             &mut observer
+        };
+        let mut reporting;
+        let inner: &mut dyn crate::recorder::PortObserver = match board {
+            Some(board) => {
+                reporting = Reporting::new(board, &port, path, inner);
+                &mut reporting
+            }
+            None => inner,
         };
         let mut scripted = Scripted::new(script, inner);
         let result = run_port(&mut recorder, &port, reach.baud, stop, &mut scripted);
@@ -188,6 +212,7 @@ impl Cmd {
         let limit = self.duration.map(Duration::from_secs_f64);
         let mut recording: BTreeSet<String> = BTreeSet::new();
         let done = std::sync::Mutex::new(Vec::new());
+        let board = StatusBoard::default();
         std::thread::scope(|scope| -> Result<()> {
             loop {
                 for port in self.present_ports(&config) {
@@ -199,9 +224,10 @@ impl Cmd {
                         port: port.clone(),
                         baud: config.baud(self.link.baud),
                     };
-                    let (stop, done) = (&stop, &done);
+                    let (stop, done, board) = (&stop, &done, &board);
                     scope.spawn(move || {
-                        let outcome = self.record_port(&reach, &path, stop, Some(&reach.port));
+                        let outcome = self.record_port(&reach, &path, stop, Some(board));
+                        board.update(&reach.port, |s| s.connected = false);
                         if let Ok(mut all) = done.lock() {
                             all.push((reach.port, path, outcome));
                         }
@@ -215,6 +241,7 @@ impl Cmd {
                     ))
                     .failed_as(Failure::Usage);
                 }
+                write_status(&board, &dir);
                 let deadline = Instant::now() + RESCAN;
                 let over = || limit.is_some_and(|l| started.elapsed() >= l);
                 while Instant::now() < deadline && !stop.load(Ordering::Relaxed) && !over() {
@@ -226,6 +253,7 @@ impl Cmd {
                 }
             }
         })?;
+        write_status(&board, &dir);
         say_how_each_ended(done.into_inner().unwrap_or_default())
     }
 
@@ -264,6 +292,13 @@ impl Cmd {
             }
         }
         found
+    }
+}
+
+/// Writes the status file; a failure is said (recording goes on).
+fn write_status(board: &StatusBoard, dir: &std::path::Path) {
+    if let Err(e) = board.write(dir) {
+        eprintln!("could not write the recording status: {e:#}");
     }
 }
 

@@ -1,0 +1,216 @@
+//! What each port of a recording is doing, for people and scripts watching a
+//! gateway: kept up to date by the port threads, written as `status.json` in
+//! the runs folder every few seconds (whole files only), and printed by
+//! `gleaner record --status`.
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+use std::sync::Mutex;
+use std::time::Duration;
+
+use anyhow::{Context, Result};
+use serde::{Deserialize, Serialize};
+
+use crate::analysis::text::duration;
+use crate::link::{LinkStats, Tracked};
+use crate::recorder::PortObserver;
+
+/// The status file's name in the runs folder.
+pub const STATUS_FILE: &str = "status.json";
+
+/// Identifies the status file's layout.
+pub const STATUS_SCHEMA: &str = "gleaner.record-status.v1";
+
+/// One port's recording.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+pub struct PortStatus {
+    /// The log being written.
+    pub log: PathBuf,
+    /// The port is open now.
+    pub connected: bool,
+    /// The node's id from its `Hello` (16 hex digits), once seen.
+    pub node_id: Option<String>,
+    /// The converter's state in the last report.
+    pub state: Option<String>,
+    /// Host time of the last frame, µs since the Unix epoch.
+    pub last_frame_us: Option<u64>,
+    /// Frames decoded.
+    pub frames: u64,
+    /// Frames the node sent that never arrived.
+    pub lost_frames: u64,
+    /// Frames dropped for damage.
+    pub damaged_frames: u64,
+    /// Times the port went away (gaps in the log).
+    pub gaps: u64,
+    /// Node reboots seen.
+    pub reboots: u64,
+}
+
+/// The status file: every port recorded.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+pub struct RecordStatus {
+    /// [`STATUS_SCHEMA`].
+    pub schema: String,
+    /// When written, µs since the Unix epoch.
+    pub written_us: u64,
+    /// By port.
+    pub ports: BTreeMap<String, PortStatus>,
+}
+
+/// The ports' statuses, shared by the port threads.
+#[derive(Debug, Default)]
+pub struct StatusBoard {
+    ports: Mutex<BTreeMap<String, PortStatus>>,
+}
+
+impl StatusBoard {
+    /// Changes `port`'s status.
+    pub fn update(&self, port: &str, change: impl FnOnce(&mut PortStatus)) {
+        if let Ok(mut ports) = self.ports.lock() {
+            change(ports.entry(port.to_owned()).or_default());
+        }
+    }
+
+    /// Everything now.
+    pub fn snapshot(&self) -> RecordStatus {
+        RecordStatus {
+            schema: STATUS_SCHEMA.into(),
+            written_us: crate::log::now_us(),
+            ports: self.ports.lock().map(|p| p.clone()).unwrap_or_default(),
+        }
+    }
+
+    /// Writes `DIR/status.json` whole (a reader never sees half a file).
+    pub fn write(&self, dir: &Path) -> Result<()> {
+        let mut file = crate::files::AtomicFile::create(&dir.join(STATUS_FILE))?;
+        serde_json::to_writer_pretty(&mut file, &self.snapshot())?;
+        std::io::Write::write_all(&mut file, b"\n")?;
+        file.commit()
+    }
+}
+
+/// Keeps a port's status while passing everything on to `inner`.
+pub struct Reporting<'a> {
+    board: &'a StatusBoard,
+    port: String,
+    inner: &'a mut dyn PortObserver,
+}
+
+impl<'a> Reporting<'a> {
+    /// Reports `port` on `board`, recording to `log`.
+    pub fn new(
+        board: &'a StatusBoard,
+        port: &str,
+        log: &Path,
+        inner: &'a mut dyn PortObserver,
+    ) -> Self {
+        board.update(port, |s| {
+            s.log = log.to_path_buf();
+            s.connected = true;
+        });
+        Reporting {
+            board,
+            port: port.to_owned(),
+            inner,
+        }
+    }
+}
+
+fn counters(s: &mut PortStatus, stats: &LinkStats) {
+    s.frames = stats.frames;
+    s.lost_frames = stats.lost_frames;
+    s.damaged_frames = stats.damaged();
+    s.reboots = stats.reboots;
+}
+
+impl PortObserver for Reporting<'_> {
+    fn message(&mut self, tracked: &Tracked, host_time_us: u64, stats: &LinkStats) {
+        self.board.update(&self.port, |s| {
+            s.last_frame_us = Some(host_time_us);
+            counters(s, stats);
+            match &tracked.message.body {
+                gleaner_protocol::UplinkBody::Hello(h) => {
+                    s.node_id = Some(format!("{:016x}", h.node_id))
+                }
+                gleaner_protocol::UplinkBody::Report(r) => s.state = Some(r.state.name().into()),
+                _ => {}
+            }
+        });
+        self.inner.message(tracked, host_time_us, stats);
+    }
+
+    fn tick(&mut self, stats: &LinkStats, idle_for: Duration) -> bool {
+        self.board.update(&self.port, |s| counters(s, stats));
+        self.inner.tick(stats, idle_for)
+    }
+
+    fn link_changed(&mut self, connected: bool, detail: &str) {
+        self.board.update(&self.port, |s| {
+            s.connected = connected;
+            if !connected {
+                s.gaps += 1;
+            }
+        });
+        self.inner.link_changed(connected, detail);
+    }
+
+    fn outgoing(&mut self) -> Option<Vec<u8>> {
+        self.inner.outgoing()
+    }
+}
+
+/// Reads `DIR/status.json` and says, one line per port, what each is doing.
+pub fn describe(dir: &Path, now_us: u64) -> Result<String> {
+    let path = dir.join(STATUS_FILE);
+    let text = std::fs::read_to_string(&path).with_context(|| {
+        format!("no recording status in {} (is `gleaner record` running with several ports or a pattern there?)", dir.display())
+    })?;
+    let status: RecordStatus = serde_json::from_str(&text)
+        .with_context(|| format!("{} is not a recording status file", path.display()))?;
+    let ago = |us: u64| duration(now_us.saturating_sub(us) as f64 / 1e6);
+    let mut out = format!("status written {} ago\n", ago(status.written_us));
+    for (port, s) in &status.ports {
+        out.push_str(&format!(
+            "{port}: {}, node {}, {}, last frame {}, frames {}, lost {}, damaged {}, gaps {}, reboots {}; log {}\n",
+            if s.connected { "connected" } else { "not connected" },
+            s.node_id.as_deref().unwrap_or("not identified yet"),
+            s.state.as_deref().unwrap_or("no report yet"),
+            s.last_frame_us.map_or("never".into(), |t| format!("{} ago", ago(t))),
+            s.frames,
+            s.lost_frames,
+            s.damaged_frames,
+            s.gaps,
+            s.reboots,
+            s.log.display()
+        ));
+    }
+    Ok(out)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_status_file_round_trips_and_reads_in_words() {
+        let dir = tempfile::tempdir().unwrap();
+        let board = StatusBoard::default();
+        board.update("/dev/ttyACM0", |s| {
+            s.log = "runs/a.gleanlog".into();
+            s.connected = true;
+            s.node_id = Some("5157000000000001".into());
+            s.state = Some("harvesting".into());
+            s.last_frame_us = Some(1_000_000);
+            s.frames = 42;
+            s.gaps = 1;
+        });
+        board.write(dir.path()).unwrap();
+        let text = describe(dir.path(), 61_000_000).unwrap();
+        assert!(text.contains("/dev/ttyACM0: connected, node 5157000000000001, harvesting, last frame 00:01:00 ago, frames 42, lost 0, damaged 0, gaps 1"), "{text}");
+        let err = describe(&dir.path().join("none"), 0).unwrap_err();
+        assert!(
+            format!("{err:#}").contains("no recording status"),
+            "{err:#}"
+        );
+    }
+}
