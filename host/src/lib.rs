@@ -50,6 +50,7 @@ pub mod parallel;
 pub mod progress;
 pub mod record_status;
 pub mod recorder;
+pub mod rotation;
 pub mod settings;
 pub mod sim;
 pub mod stream;

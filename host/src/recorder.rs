@@ -132,6 +132,27 @@ impl Recorder {
         self.splitter.clear();
     }
 
+    /// Goes on in a new log at `path` (rotation): the old log ends with a
+    /// note naming the new one and is forced to disk; the new one starts
+    /// with a header and a note naming the old one. Nothing received is lost
+    /// and the link counters carry on.
+    pub fn continue_in(&mut self, path: &Path, source: &str) -> Result<()> {
+        let old = self
+            .log_path()
+            .map(|p| p.display().to_string())
+            .unwrap_or_default();
+        self.mark(
+            MarkerKind::Note,
+            &format!("continues in {}", path.display()),
+        )?;
+        if let Some(w) = self.writer.as_mut() {
+            w.sync()?;
+        }
+        self.writer = Some(LogWriter::create(path, &header_for(source))?);
+        self.last_sync = Instant::now();
+        self.mark(MarkerKind::Note, &format!("continued from {old}"))
+    }
+
     /// Writes the stop marker and forces everything to disk.
     pub fn finish(&mut self) -> Result<()> {
         self.mark(MarkerKind::Stopped, "recording stopped")?;
@@ -167,6 +188,10 @@ pub trait PortObserver {
     fn link_changed(&mut self, _connected: bool, _detail: &str) {}
     /// Bytes to send to the node now (commands), if any.
     fn outgoing(&mut self) -> Option<Vec<u8>> {
+        None
+    }
+    /// A new log to go on in now (rotation), if any.
+    fn next_log(&mut self) -> Option<std::path::PathBuf> {
         None
     }
 }
@@ -251,6 +276,13 @@ pub fn run_port(
         if let (Some(p), Some(bytes)) = (link.as_mut(), observer.outgoing()) {
             if let Err(e) = p.write_all(&bytes).and_then(|()| p.flush()) {
                 recorder.mark(MarkerKind::Note, &format!("could not send a command: {e}"))?;
+            }
+        }
+        if let Some(path) = observer.next_log() {
+            recorder.continue_in(&path, port)?;
+            // The new log describes the node too.
+            if let Some(p) = link.as_mut() {
+                ask_for_hello(p, recorder)?;
             }
         }
         if observer.tick(recorder.stats(), last_data.elapsed()) {

@@ -1280,3 +1280,89 @@ fn several_ports_need_a_folder_not_one_file() {
     assert!(!ok);
     assert!(err.contains("no port matches"), "{err}");
 }
+
+/// Waits up to 20 s for `ready`, checking every 50 ms.
+fn wait_for(what: &str, mut ready: impl FnMut() -> bool) {
+    let deadline = std::time::Instant::now() + std::time::Duration::from_secs(20);
+    while !ready() {
+        assert!(
+            std::time::Instant::now() < deadline,
+            "timed out waiting for {what}"
+        );
+        std::thread::sleep(std::time::Duration::from_millis(50));
+    }
+}
+
+#[test]
+fn sighup_goes_on_in_a_new_log_and_nothing_is_lost_between() {
+    let node = Served::start("greenhouse-day");
+    let dir = tempfile::tempdir().unwrap();
+    let mut recorder = gleaner()
+        .args([
+            "record",
+            "--dir",
+            dir.path().to_str().unwrap(),
+            "--status-every",
+            "0",
+            &node.path,
+        ])
+        .stderr(std::process::Stdio::null())
+        .spawn()
+        .unwrap();
+    let logs = || -> Vec<std::path::PathBuf> {
+        let mut found: Vec<_> = std::fs::read_dir(dir.path())
+            .unwrap()
+            .flatten()
+            .map(|e| e.path())
+            .filter(|p| p.extension().is_some_and(|e| e == "gleanlog"))
+            .collect();
+        found.sort();
+        found
+    };
+    let size = |p: &std::path::Path| std::fs::metadata(p).map_or(0, |m| m.len());
+    wait_for("the first log to hold frames", || {
+        logs().first().is_some_and(|p| size(p) > 2_000)
+    });
+    let signal = |name: &str| {
+        let sent = Command::new("kill")
+            .args([name, &recorder.id().to_string()])
+            .status()
+            .unwrap();
+        assert!(sent.success());
+    };
+    signal("-HUP");
+    wait_for("a second log with frames", || {
+        logs().len() == 2 && size(&logs()[1]) > 2_000
+    });
+    signal("-TERM");
+    assert!(recorder.wait().unwrap().success());
+    let (first, second) = (logs()[0].clone(), logs()[1].clone());
+    let bytes = std::fs::read(&first).unwrap();
+    let note = format!("continues in {}", second.display());
+    assert!(
+        bytes.windows(note.len()).any(|w| w == note.as_bytes()),
+        "the first log names the next"
+    );
+    // Read in order, the two logs are one unbroken run: no frame lost
+    // between them, no reboot, and the second describes the node again.
+    let mut analyzer = gleaner::analysis::Analyzer::new();
+    for log in [&first, &second] {
+        for record in gleaner::log::LogReader::new(std::fs::File::open(log).unwrap()) {
+            analyzer.add_record(&record);
+        }
+    }
+    let run = analyzer.finish();
+    assert_eq!(
+        (run.link.lost_frames, run.link.reboots),
+        (0, 0),
+        "{:?}",
+        run.link
+    );
+    assert!(
+        gleaner::analysis::analyze_file(&second)
+            .unwrap()
+            .boots
+            .len()
+            == 1
+    );
+}

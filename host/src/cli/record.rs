@@ -16,6 +16,7 @@ use crate::link::script::{CommandScript, Scripted, Step};
 use crate::link::LinkStats;
 use crate::record_status::{Reporting, StatusBoard};
 use crate::recorder::{run_port, Recorder};
+use crate::rotation::{Every, Reopen, Rotating};
 use crate::settings::NodeSettings;
 use crate::view::observer::{Display, LiveObserver};
 
@@ -61,6 +62,11 @@ pub struct Cmd {
     /// Apply these settings (TOML, as for `gleaner node set-config --file`) once connected.
     #[arg(long)]
     pub set_config: Option<PathBuf>,
+    /// `daily`: start a new log when the UTC day changes; SIGHUP also starts new logs
+    /// (the usual signal of tools that move logs away). Each log ends with a
+    /// note naming the next.
+    #[arg(long, value_enum, default_value = "never", hide_possible_values = true)]
+    pub rotate: Every,
     /// Instead of recording, say what a running several-port recording in
     /// --dir is doing (from its status.json): each port's node, state, last
     /// frame, frames lost and damaged, gaps and log.
@@ -95,7 +101,8 @@ impl Cmd {
             }
         };
         let stop = super::stop_flag()?;
-        let stats = self.record_port(&reach, &path, &stop, None)?;
+        let reopen = Reopen::on_sighup()?;
+        let stats = self.record_port(&reach, &path, &stop, None, &reopen)?;
         let _ = std::io::stderr().flush();
         eprintln!("stopped: {}; log {}", summary(&stats), path.display());
         Ok(())
@@ -110,6 +117,7 @@ impl Cmd {
         path: &std::path::Path,
         stop: &AtomicBool,
         board: Option<&StatusBoard>,
+        reopen: &Reopen,
     ) -> Result<LinkStats> {
         let port = reach.port.clone();
         let tag = board.map(|_| reach.port.as_str());
@@ -141,7 +149,10 @@ impl Cmd {
             None => inner,
         };
         let mut scripted = Scripted::new(script, inner);
-        let result = run_port(&mut recorder, &port, reach.baud, stop, &mut scripted);
+        let (dir, name) = log_place(path);
+        let status = board.map(|b| (b, port.clone()));
+        let mut rotating = Rotating::new(&mut scripted, self.rotate, reopen, dir, name, status);
+        let result = run_port(&mut recorder, &port, reach.baud, stop, &mut rotating);
         print_outcomes(&scripted.script);
         let finished = recorder.finish();
         let stats = *recorder.stats();
@@ -213,20 +224,21 @@ impl Cmd {
         let mut recording: BTreeSet<String> = BTreeSet::new();
         let done = std::sync::Mutex::new(Vec::new());
         let board = StatusBoard::default();
+        let reopen = Reopen::on_sighup()?;
         std::thread::scope(|scope| -> Result<()> {
             loop {
                 for port in self.present_ports(&config) {
                     if !recording.insert(port.clone()) {
                         continue;
                     }
-                    let path = unused_path(super::new_log_path(&dir, &log_name(&config, &port)));
+                    let path = super::new_log_path(&dir, &log_name(&config, &port));
                     let reach = super::Reach {
                         port: port.clone(),
                         baud: config.baud(self.link.baud),
                     };
-                    let (stop, done, board) = (&stop, &done, &board);
+                    let (stop, done, board, reopen) = (&stop, &done, &board, &*reopen);
                     scope.spawn(move || {
-                        let outcome = self.record_port(&reach, &path, stop, Some(board));
+                        let outcome = self.record_port(&reach, &path, stop, Some(board), reopen);
                         board.update(&reach.port, |s| s.connected = false);
                         if let Ok(mut all) = done.lock() {
                             all.push((reach.port, path, outcome));
@@ -322,19 +334,23 @@ fn log_name(config: &crate::user_config::UserConfig, port: &str) -> String {
     )
 }
 
-/// `path`, or with `-2`, `-3`, ... before the extension when taken (two
-/// ports with one file name, started in one second).
-fn unused_path(path: PathBuf) -> PathBuf {
+/// Where a log's successors go and what they are named after: its folder,
+/// and its name without the time stamp `new_log_path` adds.
+fn log_place(path: &std::path::Path) -> (PathBuf, String) {
+    let dir = path
+        .parent()
+        .map_or_else(|| PathBuf::from("."), std::path::Path::to_path_buf);
     let stem = path
         .file_stem()
-        .map_or(String::new(), |s| s.to_string_lossy().into_owned());
-    let mut candidate = path.clone();
-    let mut n = 2;
-    while candidate.exists() {
-        candidate = path.with_file_name(format!("{stem}-{n}.gleanlog"));
-        n += 1;
-    }
-    candidate
+        .map_or_else(|| "node".to_owned(), |s| s.to_string_lossy().into_owned());
+    // NAME-YYYYMMDDHHMMSS(-N): keep NAME.
+    let name = match stem.rsplit_once('-') {
+        Some((name, stamp)) if stamp.len() == 14 && stamp.bytes().all(|b| b.is_ascii_digit()) => {
+            name.to_owned()
+        }
+        _ => stem,
+    };
+    (dir, name)
 }
 
 /// A recording's counters in words.
