@@ -1351,18 +1351,41 @@ fn sighup_goes_on_in_a_new_log_and_nothing_is_lost_between() {
             analyzer.add_record(&record);
         }
     }
-    let run = analyzer.finish();
+    let whole = analyzer.finish();
     assert_eq!(
-        (run.link.lost_frames, run.link.reboots),
+        (whole.link.lost_frames, whole.link.reboots),
         (0, 0),
         "{:?}",
-        run.link
+        whole.link
     );
-    assert!(
+    assert_eq!(
         gleaner::analysis::analyze_file(&second)
             .unwrap()
             .boots
-            .len()
-            == 1
+            .len(),
+        1
     );
+    // `report --one-run` reads them so: one report, every frame of both.
+    let (ok, said, err) = run(&[
+        "report",
+        "--one-run",
+        "--json",
+        first.to_str().unwrap(),
+        second.to_str().unwrap(),
+    ]);
+    assert!(ok, "{err}");
+    let one: serde_json::Value = serde_json::from_str(&said).unwrap();
+    let frames = |p: &std::path::Path| gleaner::analysis::analyze_file(p).unwrap().link.frames;
+    assert_eq!(
+        one["link"]["frames"].as_u64(),
+        Some(frames(&first) + frames(&second))
+    );
+    assert_eq!(
+        (
+            one["link"]["lost_frames"].as_u64(),
+            one["link"]["reboots"].as_u64()
+        ),
+        (Some(0), Some(0))
+    );
+    assert_eq!(one["duration_s"].as_f64(), Some(whole.duration_s));
 }

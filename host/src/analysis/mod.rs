@@ -324,36 +324,68 @@ pub fn analyze_file_with(
     workers: usize,
     progress: &indicatif::ProgressBar,
 ) -> anyhow::Result<RunReport> {
+    analyze_as_one_run(&[path.to_path_buf()], workers, progress)
+}
+
+/// Analyses `paths`, in the order given, as one run: a recording rotated
+/// into several logs. Warnings name their log when there are several.
+pub fn analyze_as_one_run(
+    paths: &[std::path::PathBuf],
+    workers: usize,
+    progress: &indicatif::ProgressBar,
+) -> anyhow::Result<RunReport> {
     let mut analyzer = Analyzer::new();
-    // Several logs may advance one bar from several threads: add what was read.
-    let summary = crate::log::split::read_log(path, workers, &mut |n| progress.inc(n), |item| {
-        analyzer.add_item(item)
-    })?;
-    if let Some(err) = &summary.io_error {
-        analyzer.warn(format!("reading stopped early: {err}"));
-    }
-    for w in &summary.warnings {
-        analyzer.warn(w.to_string());
+    let mut why_empty = None;
+    for path in paths {
+        // Several logs may advance one bar from several threads: add what was read.
+        let summary =
+            crate::log::split::read_log(path, workers, &mut |n| progress.inc(n), |item| {
+                analyzer.add_item(item)
+            })?;
+        let name = log_name(path);
+        let tell = |what: String| {
+            if paths.len() > 1 {
+                format!("{name}: {what}")
+            } else {
+                what
+            }
+        };
+        if let Some(err) = &summary.io_error {
+            analyzer.warn(tell(format!("reading stopped early: {err}")));
+        }
+        for w in &summary.warnings {
+            analyzer.warn(tell(w.to_string()));
+        }
+        why_empty.get_or_insert_with(|| (name, empty_because(&summary)));
     }
     let report = analyzer.finish();
     if report.message_counts.values().sum::<u64>() == 0 {
-        let not_a_log = summary
-            .warnings
-            .iter()
-            .any(|w| matches!(w, crate::log::ReadWarning::NotALog));
-        let name = if crate::files::is_stdio(path) {
-            "standard input".to_string()
-        } else {
-            path.display().to_string()
-        };
-        let why = if summary.bytes == 0 && summary.io_error.is_none() {
-            "is empty".to_string()
-        } else if not_a_log {
-            crate::log::ReadWarning::NotALog.to_string()
-        } else {
-            "holds no frames from a node (only the recorder's own marks)".to_string()
-        };
+        let (name, why) = why_empty.unwrap_or_default();
         return Err(anyhow::anyhow!("{name}: {why}").failed_as(crate::failure::Failure::BadInput));
     }
     Ok(report)
+}
+
+/// A log's name in messages.
+fn log_name(path: &std::path::Path) -> String {
+    if crate::files::is_stdio(path) {
+        "standard input".to_string()
+    } else {
+        path.display().to_string()
+    }
+}
+
+/// Why a log that gave no frames gave none.
+fn empty_because(summary: &crate::log::split::ReadSummary) -> String {
+    let not_a_log = summary
+        .warnings
+        .iter()
+        .any(|w| matches!(w, crate::log::ReadWarning::NotALog));
+    if summary.bytes == 0 && summary.io_error.is_none() {
+        "is empty".to_string()
+    } else if not_a_log {
+        crate::log::ReadWarning::NotALog.to_string()
+    } else {
+        "holds no frames from a node (only the recorder's own marks)".to_string()
+    }
 }

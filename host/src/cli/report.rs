@@ -6,7 +6,7 @@ use std::path::PathBuf;
 use anyhow::{Context, Result};
 use clap::Args;
 
-use crate::analysis::{analyze_file_with, html, text, RunReport};
+use crate::analysis::{analyze_as_one_run, analyze_file_with, html, text, RunReport};
 use crate::failure::{FailedAs, Failure};
 
 /// Report on one or more recorded runs: duration and coverage, time in each
@@ -23,11 +23,25 @@ pub struct Cmd {
     /// Also write an HTML page with plots here (one log only; refused with several).
     #[arg(long)]
     pub html: Option<PathBuf>,
+    /// Read the logs, in the order given, as one run: a recording rotated
+    /// into several files (`record --rotate`, SIGHUP).
+    #[arg(long)]
+    pub one_run: bool,
 }
 
 impl Cmd {
     /// Runs the command.
     pub fn run(self) -> Result<()> {
+        if self.one_run {
+            let progress = crate::progress::bytes(
+                crate::progress::total_size(self.logs.iter().map(PathBuf::as_path)),
+                &format!("reading {} logs as one run", self.logs.len()),
+            );
+            let report = analyze_as_one_run(&self.logs, crate::parallel::workers(), &progress);
+            progress.finish_and_clear();
+            let name = self.logs.first().cloned().unwrap_or_default();
+            return self.write(&[(name, report?)]);
+        }
         if self.html.is_some() && self.logs.len() > 1 {
             return Err(anyhow::anyhow!(
                 "--html draws one log's page, and {} logs were given: run `gleaner report --html PAGE LOG` once per log",
