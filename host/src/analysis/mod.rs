@@ -41,14 +41,28 @@ pub use report::*;
 /// Names of the message kinds, in wire order, for `message_counts`.
 const MESSAGE_KINDS: [&str; UplinkBody::KIND_NAMES.len()] = UplinkBody::KIND_NAMES;
 
+/// A host clock step smaller than this is taken for latency and drift, s.
+pub const CLOCK_JUMP_MIN_S: f64 = 60.0;
+
 /// Where messages fall in run time: node uptime, with each new boot placed
-/// after the last by the host's clock.
+/// after the last by the host's clock. Within a boot the host clock must
+/// keep pace with the node's (or a steady multiple of it, as a sped-up
+/// virtual node's): a step between two messages of more than
+/// [`CLOCK_JUMP_MIN_S`] and twice the node time between them is the host
+/// clock jumping (an NTP correction, a computer without a clock battery
+/// booting in 1970). It is noted, and left out of placing later boots.
 #[derive(Debug, Clone, Default)]
 struct RunClock {
     boot_base_s: f64,
     current_boot: Option<u32>,
     last_t_s: f64,
-    last_host_us: u64,
+    /// The last message's host time less the jumps seen, µs.
+    last_host_us: i128,
+    last_uptime_s: f64,
+    /// The host clock's jumps so far, µs.
+    jumped_us: i128,
+    /// Where the host clock jumped (run time, s) and by how much (s).
+    jumps: Vec<(f64, f64)>,
     /// Start of the first report's interval.
     first_t_s: Option<f64>,
 }
@@ -56,21 +70,44 @@ struct RunClock {
 impl RunClock {
     /// Places a message; true when it starts a new boot after another.
     fn place(&mut self, boot: u32, uptime_s: f64, host_time_us: u64) -> (f64, bool) {
+        let mut host_us = i128::from(host_time_us) - self.jumped_us;
         let mut rebooted = false;
         if self.current_boot != Some(boot) {
             if self.current_boot.is_some() {
                 // Place a new boot after the last one: the host time between
                 // them, less the time the node had already been up.
-                let host_gap_s = host_time_us.saturating_sub(self.last_host_us) as f64 / 1e6;
+                let host_gap_s = (host_us - self.last_host_us).max(0) as f64 / 1e6;
                 self.boot_base_s = self.last_t_s + (host_gap_s - uptime_s).max(0.0) - uptime_s;
                 rebooted = true;
             }
             self.current_boot = Some(boot);
+        } else if self.current_boot.is_some() {
+            let node_s = uptime_s - self.last_uptime_s;
+            let step_s = (host_us - self.last_host_us) as f64 / 1e6 - node_s;
+            if step_s.abs() > CLOCK_JUMP_MIN_S && step_s.abs() > 2.0 * node_s.abs() {
+                self.jumps.push((self.boot_base_s + uptime_s, step_s));
+                let step_us = (step_s * 1e6) as i128;
+                self.jumped_us += step_us;
+                host_us -= step_us;
+            }
         }
         let t_s = self.boot_base_s + uptime_s;
         self.last_t_s = self.last_t_s.max(t_s);
-        self.last_host_us = host_time_us;
+        self.last_host_us = host_us;
+        self.last_uptime_s = uptime_s;
         (t_s, rebooted)
+    }
+
+    /// The jumps in words, for the report's warnings.
+    fn jump_warnings(&self) -> impl Iterator<Item = String> + '_ {
+        self.jumps.iter().map(|&(t_s, step_s)| {
+            format!(
+                "the host clock jumped {} by {} at run time {}; times in this report follow the node's clock",
+                if step_s > 0.0 { "forward" } else { "back" },
+                text::duration(step_s.abs()),
+                text::duration(t_s)
+            )
+        })
     }
 }
 
@@ -265,6 +302,8 @@ impl Analyzer {
             .config
             .as_ref()
             .map(|hello| self.sizing(hello, longest_s, &energy, duration_s));
+        let jumps: Vec<String> = self.clock.jump_warnings().collect();
+        self.warnings.extend(jumps);
         let link = *self.tracker.stats();
         if link.likely_wrong_baud() {
             self.warnings.push(
@@ -387,5 +426,73 @@ fn empty_because(summary: &crate::log::split::ReadSummary) -> String {
         crate::log::ReadWarning::NotALog.to_string()
     } else {
         "holds no frames from a node (only the recorder's own marks)".to_string()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use gleaner_protocol::Uplink;
+
+    /// A 10-s report at `uptime_s`, received at host time `host_s`.
+    fn feed(analyzer: &mut Analyzer, seq: u16, uptime_s: u64, host_s: u64) {
+        let tracked = Tracked {
+            boot_index: 0,
+            reboot: false,
+            lost_before: 0,
+            message: Uplink {
+                seq,
+                uptime_ms: uptime_s * 1_000,
+                body: UplinkBody::Report(testing::report(1_000, 0, 0)),
+            },
+        };
+        analyzer.add_tracked(host_s * 1_000_000, &tracked);
+    }
+
+    fn jumps(report: &RunReport) -> Vec<&String> {
+        report
+            .warnings
+            .iter()
+            .filter(|w| w.contains("host clock jumped"))
+            .collect()
+    }
+
+    #[test]
+    fn a_host_clock_step_is_reported_and_durations_follow_the_node() {
+        let mut analyzer = Analyzer::new();
+        let start = 1_700_000_000;
+        for i in 1..=6u16 {
+            let uptime = 10 * u64::from(i);
+            // NTP set the clock a day forward between the third and fourth report.
+            let host = start + uptime + if i >= 4 { 86_400 } else { 0 };
+            feed(&mut analyzer, i, uptime, host);
+        }
+        let report = analyzer.finish();
+        assert_eq!(
+            jumps(&report),
+            ["the host clock jumped forward by 1d 00:00:00 at run time 40.0 s; times in this report follow the node's clock"]
+        );
+        assert_eq!(report.duration_s, 60.0, "six 10-s reports from uptime 0 s");
+    }
+
+    #[test]
+    fn a_clock_set_back_is_reported_too_and_a_sped_up_node_is_not_a_jump() {
+        let mut back = Analyzer::new();
+        for (i, host) in [(1u16, 5_000u64), (2, 5_010), (3, 1_420)] {
+            feed(&mut back, i, 10 * u64::from(i), host);
+        }
+        let report = back.finish();
+        assert_eq!(jumps(&report).len(), 1);
+        assert!(
+            jumps(&report)[0].contains("jumped back by 01:00:00 at run time 30.0 s"),
+            "{:?}",
+            jumps(&report)
+        );
+        // A virtual node twenty times faster than the host: a steady pace.
+        let mut fast = Analyzer::new();
+        for i in 1..=50u16 {
+            feed(&mut fast, i, 60 * u64::from(i), 1_000 + 3 * u64::from(i));
+        }
+        assert!(jumps(&fast.finish()).is_empty());
     }
 }
