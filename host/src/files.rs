@@ -35,6 +35,14 @@ impl std::fmt::Debug for Input {
     }
 }
 
+/// Opens the file at `path` to read; `what` names it in the error, which
+/// counts as a bad input file.
+pub fn open_file(path: &Path, what: &str) -> Result<std::fs::File> {
+    std::fs::File::open(path)
+        .with_context(|| format!("cannot open {what} {}", path.display()))
+        .failed_as(Failure::BadInput)
+}
+
 /// Opens `path` (`-`: standard input) to read; `what` names it in the error
 /// ("log", "capture"), which counts as a bad input file.
 pub fn open_input(path: &Path, what: &str) -> Result<Input> {
@@ -45,9 +53,7 @@ pub fn open_input(path: &Path, what: &str) -> Result<Input> {
             name: "standard input".into(),
         });
     }
-    let file = std::fs::File::open(path)
-        .with_context(|| format!("cannot open {what} {}", path.display()))
-        .failed_as(Failure::BadInput)?;
+    let file = open_file(path, what)?;
     Ok(Input {
         size: file.metadata().ok().map(|m| m.len()),
         reader: Box::new(file),

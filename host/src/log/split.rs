@@ -189,13 +189,15 @@ pub fn read_log(
     progress: &mut dyn FnMut(u64),
     sink: impl FnMut(LogItem<'_>),
 ) -> anyhow::Result<ReadSummary> {
-    let input = crate::files::open_input(path, "log")?;
-    let size = input.size.unwrap_or(0);
-    if crate::files::is_stdio(path) || workers < 2 || size < 2 * PART_BYTES {
+    if crate::files::is_stdio(path) {
+        let input = crate::files::open_input(path, "log")?;
         return Ok(read_stream(input.reader, progress, sink));
     }
-    let file =
-        File::open(path).map_err(|e| anyhow::anyhow!("cannot open log {}: {e}", path.display()))?;
+    let file = crate::files::open_file(path, "log")?;
+    let size = file.metadata().map_or(0, |m| m.len());
+    if workers < 2 || size < 2 * PART_BYTES {
+        return Ok(read_stream(Box::new(file), progress, sink));
+    }
     let cut = Cut::new(size, PART_BYTES, workers);
     Ok(read_in_parts(
         path,
