@@ -6,7 +6,10 @@
 use std::path::PathBuf;
 use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
 use std::sync::Arc;
-use std::time::Duration;
+use std::time::{Duration, Instant};
+
+/// How often a daily rotation looks at the date.
+const DAY_CHECK: Duration = Duration::from_secs(1);
 
 use crate::link::{LinkStats, Tracked};
 use crate::record_status::StatusBoard;
@@ -60,6 +63,7 @@ pub struct Rotating<'a> {
     reopen: &'a Reopen,
     seen: u64,
     day: String,
+    day_checked: Instant,
     dir: PathBuf,
     name: String,
     /// The port and where its status is kept, when several ports record.
@@ -82,6 +86,7 @@ impl<'a> Rotating<'a> {
             seen: reopen.generation(),
             reopen,
             day: today(),
+            day_checked: Instant::now(),
             dir,
             name,
             status,
@@ -112,14 +117,21 @@ impl PortObserver for Rotating<'_> {
     }
 
     fn next_log(&mut self) -> Option<PathBuf> {
+        // Called after every read: the date is looked at once a second, and
+        // only when rotating daily.
         let generation = self.reopen.generation();
-        let day = today();
-        let new_day = self.every == Every::Daily && day != self.day;
-        if generation == self.seen && !new_day {
+        let mut new_day = None;
+        if self.every == Every::Daily && self.day_checked.elapsed() >= DAY_CHECK {
+            self.day_checked = Instant::now();
+            new_day = Some(today()).filter(|day| *day != self.day);
+        }
+        if generation == self.seen && new_day.is_none() {
             return None;
         }
         self.seen = generation;
-        self.day = day;
+        if let Some(day) = new_day {
+            self.day = day;
+        }
         let path = crate::cli::new_log_path(&self.dir, &self.name);
         if let Some((board, port)) = &self.status {
             board.update(port, |s| s.log = path.clone());
