@@ -2,6 +2,7 @@
 
 use gleaner_protocol::{
     Calibration, Channel, ChannelCal, ConverterModel, NodeConfig, NodeName, Refusal, Thresholds,
+    MAX_SHED_LOAD_NA,
 };
 
 use crate::calibration::{current_shunt, voltage_divider, Adc};
@@ -78,6 +79,7 @@ pub fn default_config() -> NodeConfig {
         report_interval_ms: 1_000,
         output_storage_uf: 0,
         load_restore_ms: 30_000,
+        shed_load_na: 0,
         name: NodeName::new(),
         converter: ConverterModel::UNKNOWN,
     }
@@ -141,6 +143,9 @@ pub fn validate(config: &NodeConfig) -> Result<(), Refusal> {
     if fraction != 0 && !accepted.contains(&fraction) {
         return Err(Refusal::MpptFractionOutOfRange);
     }
+    if config.shed_load_na > MAX_SHED_LOAD_NA {
+        return Err(Refusal::ShedLoadOutOfRange);
+    }
     Ok(())
 }
 
@@ -166,7 +171,7 @@ mod tests {
     #[test]
     fn each_rule_refuses_its_bad_case_with_its_reason() {
         type Breaker = fn(&mut NodeConfig);
-        let cases: [(Breaker, Refusal); 21] = [
+        let cases: [(Breaker, Refusal); 22] = [
             (|c| c.calibration.adc_bits = 7, Refusal::AdcBitsOutOfRange),
             (|c| c.calibration.adc_bits = 25, Refusal::AdcBitsOutOfRange),
             (
@@ -239,6 +244,10 @@ mod tests {
                 |c| c.converter.mppt_fraction_ppm = ConverterModel::MAX_MPPT_FRACTION_PPM + 1,
                 Refusal::MpptFractionOutOfRange,
             ),
+            (
+                |c| c.shed_load_na = MAX_SHED_LOAD_NA + 1,
+                Refusal::ShedLoadOutOfRange,
+            ),
         ];
         for (break_it, reason) in cases {
             let mut config = default_config();
@@ -261,6 +270,8 @@ mod tests {
         c.converter.mppt_fraction_ppm = ConverterModel::MIN_MPPT_FRACTION_PPM;
         assert_eq!(validate(&c), Ok(()));
         c.converter.mppt_fraction_ppm = ConverterModel::MAX_MPPT_FRACTION_PPM;
+        assert_eq!(validate(&c), Ok(()));
+        c.shed_load_na = MAX_SHED_LOAD_NA;
         assert_eq!(validate(&c), Ok(()));
         c.name = name(&"x".repeat(gleaner_protocol::NODE_NAME_LEN));
         assert_eq!(validate(&c), Ok(()));

@@ -1,5 +1,5 @@
-//! Forecasts: when the converter's input will be cut off, and when the load
-//! will brown out.
+//! Forecasts of when the converter's input will be cut off, and the averages
+//! the brown-out forecast ([`crate::brownout`]) is computed from.
 //!
 //! * [`InputTrend`]: an ordinary least-squares line through the *square* of the
 //!   input voltage over a window of points, each the mean of one block of time.
@@ -19,10 +19,6 @@
 //! * [`TimeAverage`]: the mean of a current or power held over intervals,
 //!   exponentially weighted (EWMA) over a time constant, so a load that draws
 //!   in short bursts is averaged over many of its periods.
-//! * [`storage_runout_ms`]: how long storage carries a constant power down to
-//!   a voltage, `t = C (V1² - V2²) / (2 P)`.
-//! * [`brownout_ms`]: the time until the load browns out, from the usable
-//!   storage energy, the net drain, and the input cutoff when one is in sight.
 
 use gleaner_protocol::ConverterModel;
 use heapless::HistoryBuf;
@@ -117,26 +113,31 @@ fn exp_neg_q16(x_q16: i128) -> i128 {
     if x_q16 <= 0 {
         return Q16;
     }
-    // log2(e) = 1.442695 in Q16.
-    let y = x_q16.sat_mul(94_548) >> 16;
-    let whole = y >> 16;
-    if whole >= 32 {
+    // e^-23 is below 2^-32: nothing is left of it in Q16. The rest in 64 bits
+    // (small on a 32-bit core).
+    let Ok(x) = i64::try_from(x_q16) else {
+        return 0;
+    };
+    if x >= 23 << 16 {
         return 0;
     }
+    // log2(e) = 1.442695 in Q16.
+    let y = x.saturating_mul(94_548) >> 16;
+    let whole = y >> 16;
     let u = y & 0xFFFF; // fraction of a halving, Q16
                         // 2^(-u) = e^(-u ln2): 1 - k u + (k u)²/2 - (k u)³/6 + (k u)⁴/24, k u in Q16.
-    let ku = u.sat_mul(45_426) >> 16; // ln 2 in Q16
-    let ku2 = ku.sat_mul(ku) >> 16;
-    let ku3 = ku2.sat_mul(ku) >> 16;
-    let ku4 = ku3.sat_mul(ku) >> 16;
-    let ku5 = ku4.sat_mul(ku) >> 16;
-    let frac = Q16
-        .sat_sub(ku)
-        .sat_add(ku2 / 2)
-        .sat_sub(ku3 / 6)
-        .sat_add(ku4 / 24)
-        .sat_sub(ku5 / 120);
-    frac >> whole
+    let ku = u.saturating_mul(45_426) >> 16; // ln 2 in Q16
+    let ku2 = ku.saturating_mul(ku) >> 16;
+    let ku3 = ku2.saturating_mul(ku) >> 16;
+    let ku4 = ku3.saturating_mul(ku) >> 16;
+    let ku5 = ku4.saturating_mul(ku) >> 16;
+    let frac = (1i64 << 16)
+        .saturating_sub(ku)
+        .saturating_add(ku2 / 2)
+        .saturating_sub(ku3 / 6)
+        .saturating_add(ku4 / 24)
+        .saturating_sub(ku5 / 120);
+    i128::from(frac >> whole)
 }
 
 /// Time until a value falling along a logarithmic curve reaches `level`.
@@ -893,112 +894,11 @@ impl TimeAverage {
     pub const fn mean(&self) -> i64 {
         self.mean
     }
-}
 
-/// Power in nW of a current `na` at `uv` (nA µV = 1e-15 W).
-pub fn power_nw(na: i64, uv: u32) -> i64 {
-    let nw = i128::from(na).sat_mul(i128::from(uv)) / 1_000_000;
-    i64::try_from(nw).unwrap_or(if nw < 0 { i64::MIN } else { i64::MAX })
-}
-
-/// Stored energy `C V² / 2` in nJ (µF µV² = 1e-18 J).
-pub fn storage_level_nj(c_uf: u32, v_uv: u32) -> i64 {
-    let v2 = u128::from(v_uv).saturating_mul(u128::from(v_uv));
-    let nj = u128::from(c_uf).saturating_mul(v2) / 2_000_000_000;
-    i64::try_from(nj).unwrap_or(i64::MAX)
-}
-
-/// Storage energy that a constant-current load can use between `v_uv` and
-/// `min_uv`, counted at the present power: `C V (V - Vmin)`, nJ (negative
-/// below the minimum).
-///
-/// A load drawing a constant current (a microcontroller on the storage
-/// directly or behind a linear regulator; common practice) takes power in
-/// proportion to the voltage, so from `C V dV/dt = -P V / V0` storage lasts
-/// `t = C V0 (V0 - Vmin) / P0`: the same as this energy over the present
-/// power. (`C (V² - Vmin²) / 2` over it would be a constant-power load's time,
-/// shorter by `(V + Vmin) / 2V`.)
-pub fn usable_at_constant_current_nj(c_uf: u32, v_uv: u32, min_uv: u32) -> i64 {
-    let above = i128::from(v_uv).sat_sub(i128::from(min_uv));
-    let nj = i128::from(c_uf).sat_mul(i128::from(v_uv)).sat_mul(above) / 1_000_000_000;
-    i64::try_from(nj).unwrap_or(if nj < 0 { i64::MIN } else { i64::MAX })
-}
-
-/// Milliseconds that `c_uf` of storage at `from_uv` can supply `load_nw` before
-/// falling to `to_uv`. None without storage or load; Some(0) when already below.
-pub fn storage_runout_ms(c_uf: u32, from_uv: u32, to_uv: u32, load_nw: u64) -> Option<u32> {
-    if c_uf == 0 || load_nw == 0 {
-        return None;
+    /// True once the average spans `time_constant_ms` of data.
+    pub fn spans(&self, time_constant_ms: u32) -> bool {
+        self.weight_us >= u64::from(time_constant_ms).saturating_mul(1000)
     }
-    if from_uv <= to_uv {
-        return Some(0);
-    }
-    // µF * µV² = 1e-18 J; / nW = 1e-9 s; so ms = C V² / (2 P) / 1e6.
-    let v1 = u128::from(from_uv).checked_mul(u128::from(from_uv))?;
-    let v2 = u128::from(to_uv).checked_mul(u128::from(to_uv))?;
-    let numerator = u128::from(c_uf).checked_mul(v1.checked_sub(v2)?)?;
-    let ms = numerator.checked_div(u128::from(load_nw).checked_mul(2_000_000)?)?;
-    Some(u32::try_from(ms).unwrap_or(u32::MAX))
-}
-
-/// What the brown-out forecast is computed from.
-#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
-pub struct DrainOutlook {
-    /// Storage energy above the load's minimum voltage, nJ (negative: below it).
-    pub usable_nj: i64,
-    /// Load power averaged over its duty period, nW.
-    pub load_nw: i64,
-    /// Converter output less load power, nW (negative while storage drains).
-    pub net_nw: i64,
-    /// True while the converter delivers (its output still counts).
-    pub converting: bool,
-    /// Forecast time until the converter's input is cut off, while converting.
-    pub input_cutoff_in_ms: Option<u32>,
-}
-
-/// Milliseconds at `drain_nw` until `energy_nj` is used up (None when not draining).
-fn drain_ms(energy_nj: i64, drain_nw: i64) -> Option<u64> {
-    if drain_nw <= 0 {
-        return None;
-    }
-    // nJ / nW = s.
-    let ms = i128::from(energy_nj.max(0))
-        .sat_mul(1000)
-        .wide_div(i128::from(drain_nw))?;
-    Some(u64::try_from(ms).unwrap_or(u64::MAX))
-}
-
-/// Time until the load browns out.
-///
-/// * Converter stopped: the load alone drains the storage (at least the averaged
-///   load power, whatever the lagging net average still says).
-/// * Converting with an input cutoff in sight: storage drains at the net rate
-///   until the cutoff, then at the load's rate (the cause chain "input cut off,
-///   then storage ran out").
-/// * Converting with no cutoff in sight: the net drain, None while charging.
-pub fn brownout_ms(o: &DrainOutlook) -> Option<u32> {
-    if o.usable_nj <= 0 {
-        return Some(0);
-    }
-    let net_drain = o.net_nw.saturating_neg();
-    let ms = if !o.converting {
-        drain_ms(o.usable_nj, net_drain.max(o.load_nw))?
-    } else if let Some(cutoff_ms) = o.input_cutoff_in_ms {
-        let until_cutoff_nj = i128::from(net_drain.max(0))
-            .sat_mul(i128::from(cutoff_ms))
-            .wide_div(1000)
-            .unwrap_or(0);
-        let left = i128::from(o.usable_nj).sat_sub(until_cutoff_nj);
-        if left <= 0 {
-            drain_ms(o.usable_nj, net_drain)?
-        } else {
-            let left = i64::try_from(left).unwrap_or(i64::MAX);
-            u64::from(cutoff_ms).saturating_add(drain_ms(left, o.load_nw)?)
-        }
-    } else {
-        drain_ms(o.usable_nj, net_drain)?
-    };
-    Some(u32::try_from(ms).unwrap_or(u32::MAX))
 }
 
 #[cfg(test)]
@@ -1308,92 +1208,5 @@ mod tests {
         }
         let mean = burst.mean();
         assert!((80_000..=120_000).contains(&mean), "{mean}");
-    }
-
-    #[test]
-    fn power_of_a_current() {
-        // 50 µA at 2.6 V is 130 µW.
-        assert_eq!(power_nw(50_000, 2_600_000), 130_000);
-        assert_eq!(power_nw(-1_000, 3_000_000), -3_000);
-    }
-
-    #[test]
-    fn storage_runout_worked_example() {
-        // Any physics text: 10 F from 2.7 V to 0.9 V at 10 mW constant power:
-        // t = C (V1² - V2²) / (2 P) = 10 * (7.29 - 0.81) / 0.02 = 3240 s.
-        assert_eq!(
-            storage_runout_ms(10_000_000, 2_700_000, 900_000, 10_000_000),
-            Some(3_240_000)
-        );
-        assert_eq!(storage_runout_ms(0, 2_700_000, 900_000, 10), None);
-        assert_eq!(storage_runout_ms(10, 900_000, 2_700_000, 10), Some(0));
-        // Any physics text: 10 F at 2.7 V holds 36.45 J; above 0.9 V, 32.4 J.
-        let usable =
-            storage_level_nj(10_000_000, 2_700_000) - storage_level_nj(10_000_000, 900_000);
-        assert_eq!(usable, 32_400_000_000);
-    }
-
-    #[test]
-    fn constant_current_run_out_worked_example() {
-        // Any physics text: 10 F from 2.7 V to 0.9 V at a constant 10 mA lasts
-        // t = C dV / I = 1800 s. At 2.7 V the load takes 27 mW.
-        let usable = usable_at_constant_current_nj(10_000_000, 2_700_000, 900_000);
-        assert_eq!(usable, 48_600_000_000);
-        let stopped = DrainOutlook {
-            usable_nj: usable,
-            load_nw: 27_000_000,
-            net_nw: -27_000_000,
-            converting: false,
-            input_cutoff_in_ms: None,
-        };
-        assert_eq!(brownout_ms(&stopped), Some(1_800_000));
-        assert!(usable_at_constant_current_nj(10, 800_000, 900_000) < 0);
-    }
-
-    #[test]
-    fn brownout_follows_the_cause_chain() {
-        // 32.4 J usable (the 10 F example), load 10 mW: 3240 s with the converter stopped,
-        // even while a lagging net average still shows a small drain.
-        let stopped = DrainOutlook {
-            usable_nj: 32_400_000_000,
-            load_nw: 10_000_000,
-            net_nw: -1_000_000,
-            converting: false,
-            input_cutoff_in_ms: None,
-        };
-        assert_eq!(brownout_ms(&stopped), Some(3_240_000));
-        // Charging with no cutoff in sight: no brown-out.
-        let charging = DrainOutlook {
-            net_nw: 5_000_000,
-            converting: true,
-            ..stopped
-        };
-        assert_eq!(brownout_ms(&charging), None);
-        // Charging, but the input is cut off in 600 s: then 3240 s on storage.
-        let sunset = DrainOutlook {
-            input_cutoff_in_ms: Some(600_000),
-            ..charging
-        };
-        assert_eq!(brownout_ms(&sunset), Some(3_840_000));
-        // Draining 5 mW net until a cutoff in 1000 s (5 J), then 27.4 J at 10 mW.
-        let heavy = DrainOutlook {
-            net_nw: -5_000_000,
-            input_cutoff_in_ms: Some(1_000_000),
-            ..charging
-        };
-        assert_eq!(brownout_ms(&heavy), Some(1_000_000 + 2_740_000));
-        // Draining so fast that storage is gone before the cutoff.
-        let heavier = DrainOutlook {
-            net_nw: -20_000_000,
-            input_cutoff_in_ms: Some(2_000_000),
-            ..charging
-        };
-        assert_eq!(brownout_ms(&heavier), Some(1_620_000));
-        // Already below the load's minimum.
-        let empty = DrainOutlook {
-            usable_nj: -5,
-            ..stopped
-        };
-        assert_eq!(brownout_ms(&empty), Some(0));
     }
 }

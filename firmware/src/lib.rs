@@ -6,8 +6,10 @@
 //! * [`calibration`]: raw ADC counts to microvolts and nanoamps, with clipping flags;
 //! * [`meter`]: power, lossless energy accumulators and efficiency as an energy ratio;
 //! * [`cutoff`]: the debounced cutoff state machine with a cause for each transition;
-//! * [`forecast`]: time to input cutoff from the input's trends, averaged load and net
-//!   power, and time to the load's brown-out;
+//! * [`forecast`]: time to input cutoff from the input's trends, and the averaged
+//!   load current and converter power;
+//! * [`brownout`]: time to the load's brown-out, counting the harvest still coming in,
+//!   the input cutoff and the shedding to come;
 //! * [`harvest_profile`]: tomorrow's harvest per hour of the day (EWMA and WCMA);
 //! * [`interval`]: per-report aggregation (min / mean / max, time in each state);
 //! * [`config`]: defaults and validation of the configuration the host may send;
@@ -65,6 +67,7 @@
     )
 )]
 
+pub mod brownout;
 pub mod calibration;
 pub mod config;
 pub mod config_store;

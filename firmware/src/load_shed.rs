@@ -116,6 +116,50 @@ impl<P: OutputPin> LoadShedder<P> {
     }
 }
 
+/// What shedding takes off the load: first the configured shed load, then
+/// what the node measures, the load's averaged current just before it sheds
+/// less the average once the shed load has been watched for a whole
+/// averaging time. The brown-out forecast counts the shedding the node will
+/// do with it.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct ShedSaving {
+    before_na: Option<i64>,
+    saving_na: i64,
+}
+
+impl ShedSaving {
+    /// Starts from the configured shed load (0: not known).
+    pub const fn new(configured_na: u32) -> Self {
+        ShedSaving {
+            before_na: None,
+            saving_na: configured_na as i64,
+        }
+    }
+
+    /// The load is being shed; `load_na` is its averaged current until now.
+    pub fn on_shed(&mut self, load_na: i64) {
+        self.before_na = Some(load_na);
+    }
+
+    /// The load was restored before the shed load's average settled: that
+    /// shed teaches nothing.
+    pub fn on_restore(&mut self) {
+        self.before_na = None;
+    }
+
+    /// The shed load's averaged current once it has settled.
+    pub fn on_settled(&mut self, shed_load_na: i64) {
+        if let Some(before) = self.before_na.take() {
+            self.saving_na = before.saturating_sub(shed_load_na).max(0);
+        }
+    }
+
+    /// Current that shedding saves, nA (0 until learned).
+    pub const fn saving_na(&self) -> i64 {
+        self.saving_na
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -178,5 +222,24 @@ mod tests {
         shedder.update(Risk::Near, 1, 1);
         assert!(shedder.is_shed());
         shedder.release().done();
+    }
+
+    #[test]
+    fn the_saving_starts_as_configured_and_is_then_measured() {
+        let mut saving = ShedSaving::new(40_000);
+        assert_eq!(saving.saving_na(), 40_000);
+        // 250 µA before the shed, 190 µA once the shed load settled: 60 µA.
+        saving.on_shed(250_000);
+        saving.on_settled(190_000);
+        assert_eq!(saving.saving_na(), 60_000);
+        // A shed restored before it settled teaches nothing.
+        saving.on_shed(260_000);
+        saving.on_restore();
+        saving.on_settled(100_000);
+        assert_eq!(saving.saving_na(), 60_000);
+        // A load that drew more once shed (it woke for other reasons) saves nothing.
+        saving.on_shed(100_000);
+        saving.on_settled(120_000);
+        assert_eq!(saving.saving_na(), 0);
     }
 }

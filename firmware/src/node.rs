@@ -11,17 +11,17 @@ use gleaner_protocol::{
 };
 use heapless::{Deque, HistoryBuf, Vec};
 
+use crate::brownout::{brownout_ms, power_nw, storage_level_nj, DrainOutlook};
 use crate::calibration::{calibrate, RawSample};
 use crate::config::validate;
 use crate::config_store;
 use crate::cutoff::{CutoffDetector, Observation};
 use crate::forecast::{
-    brownout_ms, power_nw, storage_level_nj, usable_at_constant_current_nj, CutoffForecaster,
-    DrainOutlook, InputSeen, TimeAverage, HARVEST_AVERAGE_MS, LOAD_AVERAGE_MS,
+    CutoffForecaster, InputSeen, TimeAverage, HARVEST_AVERAGE_MS, LOAD_AVERAGE_MS,
 };
 use crate::harvest_profile::{HarvestProfile, SLOT_MS};
 use crate::interval::{ChannelSummary, IntervalStats};
-use crate::load_shed::{LoadShedder, Risk};
+use crate::load_shed::{LoadShedder, Risk, ShedSaving};
 use crate::load_watch::LoadWatch;
 use crate::meter::Meter;
 
@@ -144,7 +144,12 @@ pub struct Node<P, S> {
     /// The converter's output power (into the load and the storage), nW.
     output_power: TimeAverage,
     load_watch: LoadWatch,
+    /// What shedding saves, learned from the last shed.
+    shed_saving: ShedSaving,
+    /// Time to brown-out counting the shedding to come (what is reported).
     brownout_in_ms: Option<u32>,
+    /// Time to brown-out if nothing changes (what shedding acts on).
+    brownout_as_is_ms: Option<u32>,
     harvest: HarvestProfile,
     /// Start of the present harvest slot: (time µs, energy drawn until then nJ).
     slot_start: Option<(u64, u64)>,
@@ -168,6 +173,7 @@ pub struct Node<P, S> {
 impl<P: OutputPin, S: Storage> Node<P, S> {
     /// A node at boot; its `Hello` is the first message queued.
     pub fn new(parts: NodeParts<P, S>) -> Self {
+        let shed_saving = ShedSaving::new(parts.config.shed_load_na);
         let mut node = Node {
             config: parts.config,
             config_source: parts.config_source,
@@ -182,7 +188,9 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             load_current: TimeAverage::new(),
             output_power: TimeAverage::new(),
             load_watch: LoadWatch::new(),
+            shed_saving,
             brownout_in_ms: None,
+            brownout_as_is_ms: None,
             harvest: HarvestProfile::new(),
             slot_start: None,
             interval: IntervalStats::default(),
@@ -491,7 +499,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
 
     fn revisit_load_shed(&mut self, now_ms: u64) {
         let risk = Risk::assess(
-            self.brownout_in_ms,
+            self.brownout_as_is_ms,
             self.load_watch.is_powered(),
             self.config.thresholds.brownout_horizon_ms,
         );
@@ -501,6 +509,11 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
         // Shedding or restoring changes what the load draws: its average
         // starts again rather than lag the change by its time constant.
         if self.shedder.is_shed() != was_shed {
+            if self.shedder.is_shed() {
+                self.shed_saving.on_shed(self.load_current.mean());
+            } else {
+                self.shed_saving.on_restore();
+            }
             self.load_current.clear();
         }
     }
@@ -526,6 +539,9 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
         if self.load_watch.is_powered() {
             let load_na = i64::from(summary.output_na.mean);
             self.load_current.push(load_na, length_us, LOAD_AVERAGE_MS);
+            if self.shedder.is_shed() && self.load_current.spans(LOAD_AVERAGE_MS) {
+                self.shed_saving.on_settled(self.load_current.mean());
+            }
         }
         self.output_power.push_energy(
             delivered.saturating_add(stored_nj),
@@ -559,21 +575,37 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
         } else {
             None
         };
-        let c_uf = self.config.output_storage_uf;
-        self.brownout_in_ms = if c_uf == 0 || !self.load_watch.is_powered() {
-            None
-        } else {
-            let usable =
-                usable_at_constant_current_nj(c_uf, self.smoothed_output_uv, t.load_min_uv);
-            brownout_ms(&DrainOutlook {
-                usable_nj: usable,
-                load_nw: self.load_nw(),
-                net_nw: self.net_nw(),
-                converting,
-                input_cutoff_in_ms: self.input_cutoff_in_ms,
-            })
-        };
+        let (as_is, planned) = self.brownout_outlook(converting);
+        self.brownout_as_is_ms = as_is;
+        self.brownout_in_ms = planned;
         self.revisit_load_shed(now_ms);
+    }
+
+    /// Time to brown-out if nothing changes, and counting the shedding the
+    /// node will do; None without storage or while the load has no power.
+    fn brownout_outlook(&self, converting: bool) -> (Option<u32>, Option<u32>) {
+        let t = &self.config.thresholds;
+        let c_uf = self.config.output_storage_uf;
+        if c_uf == 0 || !self.load_watch.is_powered() {
+            return (None, None);
+        }
+        let mut outlook = DrainOutlook {
+            storage_uf: c_uf,
+            storage_uv: self.smoothed_output_uv,
+            min_uv: t.load_min_uv,
+            load_na: self.load_current.mean(),
+            supply_nw: self.output_power.mean(),
+            converting,
+            input_cutoff_in_ms: self.input_cutoff_in_ms,
+            shed_na: 0,
+            shed_horizon_ms: t.brownout_horizon_ms,
+        };
+        let as_is = brownout_ms(&outlook);
+        if self.shedder.is_shed() {
+            return (as_is, as_is);
+        }
+        outlook.shed_na = self.shed_saving.saving_na();
+        (as_is, brownout_ms(&outlook))
     }
 
     fn add_to_burst(&mut self, sample: Sample) {
@@ -641,6 +673,10 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
     fn apply_config(&mut self, config: NodeConfig) -> Result<(), Refusal> {
         validate(&config)?;
         config_store::save(&mut self.storage, &config).map_err(|_| Refusal::StorageWriteFailed)?;
+        // A newly stated shed load replaces what was learned of the old one.
+        if config.shed_load_na != self.config.shed_load_na {
+            self.shed_saving = ShedSaving::new(config.shed_load_na);
+        }
         self.config = config;
         self.config_source = ConfigSource::Received;
         Ok(())

@@ -52,6 +52,9 @@ pub struct NodeSettings {
     pub load_restart_v: Option<f64>,
     /// Shed load when brown-out is forecast within this time, s.
     pub brownout_horizon_s: Option<f64>,
+    /// Current the load-shed pin switches off, from the load's design, µA
+    /// (0: not known; the node learns it from its first shed).
+    pub shed_load_ua: Option<f64>,
     /// The node's name (letters, digits, space and - _ . :).
     pub name: Option<String>,
     /// The fraction of the source's open-circuit voltage at which the
@@ -234,6 +237,7 @@ impl NodeSettings {
             load_min_v: v(t.load_min_uv),
             load_restart_v: v(t.load_restart_uv),
             brownout_horizon_s: s(t.brownout_horizon_ms),
+            shed_load_ua: Some(f64::from(c.shed_load_na) / 1e3),
             name: Some(c.name.as_str().to_owned()),
             mppt_fraction: Some(f64::from(c.converter.mppt_fraction_ppm) / 1e6),
             output_regulated: Some(c.converter.output_regulated),
@@ -299,6 +303,13 @@ impl NodeSettings {
         }
         if let Some(v) = self.brownout_horizon_s {
             c.thresholds.brownout_horizon_ms = seconds_to_ms("brownout_horizon_s", v)?;
+        }
+        if let Some(v) = self.shed_load_ua {
+            let max_ua = f64::from(gleaner_protocol::MAX_SHED_LOAD_NA) / 1e3;
+            if !(0.0..=max_ua).contains(&v) {
+                bail!("shed_load_ua = {v} µA is outside 0 to {max_ua} µA");
+            }
+            c.shed_load_na = (v * 1e3).round() as u32;
         }
         if let Some(name) = &self.name {
             c.name = gleaner_protocol::NodeName::try_from(name.as_str()).map_err(|_| {
@@ -378,7 +389,9 @@ mod tests {
         config.name = gleaner_protocol::NodeName::try_from("greenhouse 3").unwrap();
         config.converter.mppt_fraction_ppm = 780_000;
         config.converter.output_regulated = true;
+        config.shed_load_na = 45_500;
         let settings = NodeSettings::from_config(&config);
+        assert_eq!(settings.shed_load_ua, Some(45.5));
         assert_eq!(settings.stop_v, Some(0.312345));
         assert_eq!(
             (settings.mppt_fraction, settings.output_regulated),
@@ -422,6 +435,11 @@ mod tests {
             .apply(&default_config())
             .unwrap_err();
         assert!(err.to_string().contains("mppt_fraction = 78"), "{err}");
+        let err = NodeSettings::from_toml("shed_load_ua = -3")
+            .unwrap()
+            .apply(&default_config())
+            .unwrap_err();
+        assert!(err.to_string().contains("shed_load_ua = -3"), "{err}");
     }
 
     #[test]

@@ -1,18 +1,20 @@
 //! Reading frames of every protocol major a host may meet in a log: the
-//! current one, and protocols 1 and 2 converted ([`crate::v1`], [`crate::v2`]).
+//! current one, and protocols 1 to 3 converted ([`crate::v1`], [`crate::v2`],
+//! [`crate::v3`]).
 
 use crate::frame::{open_frame, parse_body};
 use crate::{FrameError, Uplink, UplinkBody, PROTOCOL_VERSION};
 
 /// The older majors still read, oldest first.
-pub const OLDER_MAJORS: [u8; 2] = [1, 2];
+pub const OLDER_MAJORS: [u8; 3] = [1, 2, 3];
 
 /// Decodes an uplink body in the layout of the older protocol `major`,
 /// converted, when it reads consistently as that layout.
 fn parse_older(major: u8, body: &[u8]) -> Result<(Uplink, u8), FrameError> {
     let message: Uplink = match major {
         1 => parse_body::<crate::v1::Uplink>(body)?.into(),
-        _ => parse_body::<crate::v2::Uplink>(body)?.into(),
+        2 => parse_body::<crate::v2::Uplink>(body)?.into(),
+        _ => parse_body::<crate::v3::Uplink>(body)?.into(),
     };
     if consistent(&message, major) {
         Ok((message, major))
@@ -36,7 +38,7 @@ fn consistent(message: &Uplink, major: u8) -> bool {
 }
 
 /// Decodes an uplink frame of any protocol this crate reads: the current
-/// layout, or protocol 1's or 2's converted. `prefer_major` (from the boot's
+/// layout, or an older protocol's converted. `prefer_major` (from the boot's
 /// `Hello`, when known) says which to try first. Returns the message and the
 /// major version it was read as. COBS is undone in place.
 pub fn decode_uplink_any(

@@ -134,6 +134,10 @@ pub struct ConverterModel {
     pub output_regulated: bool,
 }
 
+/// Largest shed load a node accepts, nA (1 A: far above any load a
+/// harvesting node switches, so a larger value is a unit mistake).
+pub const MAX_SHED_LOAD_NA: u32 = 1_000_000_000;
+
 impl ConverterModel {
     /// Lowest MPPT fraction a node accepts (5 %; 0 says there is none).
     pub const MIN_MPPT_FRACTION_PPM: u32 = 50_000;
@@ -161,6 +165,10 @@ pub struct NodeConfig {
     pub output_storage_uf: u32,
     /// Time with brown-out out of sight before shed load is restored.
     pub load_restore_ms: u32,
+    /// Current the load-shed pin switches off, from the load's design, in nA;
+    /// 0 when not known (the node then learns it from its first shed). The
+    /// brown-out forecast counts the shedding the node will do with it.
+    pub shed_load_na: u32,
     /// The user's name for the node; empty when unset.
     pub name: NodeName,
     /// What the node knows of its converter.

@@ -25,13 +25,16 @@
 //! * any other change (a field added, removed or reordered, a variant moved)
 //!   bumps the major number. Hosts refuse a node whose major version differs
 //!   from their own ([`ProtocolVersion::check_compatible`]), but read recorded
-//!   protocol 1 and 2 frames through [`v1`] and [`v2`] ([`decode_uplink_any`]).
+//!   protocol 1 to 3 frames through [`v1`], [`v2`] and [`v3`] ([`decode_uplink_any`]).
 //!
 //! Protocol 2 added the node's identity and name, the load's
 //! supply thresholds, load events, the brown-out forecast with averaged load
 //! and net power, hourly harvest slots with their predictions, and the trigger values of transitions.
 //! Protocol 3 added what the node knows of its converter ([`ConverterModel`]:
 //! its MPPT fraction and whether it regulates its output) to the configuration.
+//! Protocol 4 added the current the load-shed pin switches off
+//! (`NodeConfig::shed_load_na`), so the brown-out forecast can count the
+//! shedding the node will do.
 //!
 //! Golden-byte tests pin the encoding of every message kind.
 //!
@@ -77,12 +80,13 @@ mod frame;
 mod uplink;
 pub mod v1;
 pub mod v2;
+pub mod v3;
 mod version;
 
 pub use compat::{decode_uplink_any, parse_uplink_any, OLDER_MAJORS};
 pub use config::{
     Calibration, Channel, ChannelCal, ConverterModel, NodeConfig, NodeName, Thresholds,
-    NODE_NAME_LEN,
+    MAX_SHED_LOAD_NA, NODE_NAME_LEN,
 };
 pub use decoder::{Decoder, DecoderStats, FrameSplitter};
 pub use downlink::{Command, Downlink, MAX_BURST_SAMPLES};

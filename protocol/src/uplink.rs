@@ -454,6 +454,8 @@ pub enum Refusal {
     /// The converter's MPPT fraction is neither 0 nor between
     /// [`crate::ConverterModel::MIN_MPPT_FRACTION_PPM`] and its maximum.
     MpptFractionOutOfRange,
+    /// The shed load is above [`crate::MAX_SHED_LOAD_NA`].
+    ShedLoadOutOfRange,
 }
 
 impl Refusal {
@@ -485,6 +487,7 @@ impl Refusal {
             Refusal::MpptFractionOutOfRange => {
                 "the converter's MPPT fraction must be 0 (none) or within the accepted share of open circuit"
             }
+            Refusal::ShedLoadOutOfRange => "the shed load's current is above the accepted maximum",
         }
     }
 }
@@ -500,6 +503,11 @@ impl core::fmt::Display for Refusal {
                 "the converter's MPPT fraction must be 0 (none) or {} % to {} % of open circuit",
                 crate::ConverterModel::MIN_MPPT_FRACTION_PPM / 10_000,
                 crate::ConverterModel::MAX_MPPT_FRACTION_PPM / 10_000
+            ),
+            Refusal::ShedLoadOutOfRange => write!(
+                f,
+                "the shed load's current must be at most {} mA",
+                crate::MAX_SHED_LOAD_NA / 1_000_000
             ),
             other => f.write_str(other.describe()),
         }

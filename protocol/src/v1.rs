@@ -140,6 +140,7 @@ impl From<NodeConfig> for crate::NodeConfig {
             report_interval_ms: c.report_interval_ms,
             output_storage_uf: c.output_storage_uf,
             load_restore_ms: c.load_restore_ms,
+            shed_load_na: 0,
             name: NodeName::new(),
             converter: crate::ConverterModel::UNKNOWN,
         }

@@ -41,6 +41,7 @@ pub fn example_config() -> NodeConfig {
         report_interval_ms: 1_000,
         output_storage_uf: 100_000,
         load_restore_ms: 30_000,
+        shed_load_na: 40_000,
         name: NodeName::try_from("greenhouse-3").unwrap(),
         converter: ConverterModel {
             mppt_fraction_ppm: 780_000,

@@ -19,8 +19,12 @@ fn decode_all(bytes: &[u8]) -> (Vec<Result<Uplink, FrameError>>, DecoderStats) {
     (out, *decoder.stats())
 }
 
-// Protocol 2's `Hello` (the only kind whose layout protocol 3 changed), as
-// protocol 2 had it: still read, through `decode_uplink_any`.
+// Protocol 2's `Hello` (the only kind whose layout protocols 3 and 4
+// changed), as protocol 2 had it: still read, through `decode_uplink_any`.
+// Protocol 3's golden bytes of the example Hello (as protocol 3 had them,
+// before the shed load): still read, through `decode_uplink_any`.
+const GOLDEN_V3_HELLO: &str = "01020c020301020117ef9bafcdf8acd1910181dcff870c904e0c80c0ea92030c8080d2f83e178080d5a506508080d5a5060680ea30e0dc2ad0860380897a80d461c801904ee0d403d00fc0ee6d80897ac0ee6de807a08d06b0ea010c677265656e686f7573652d33e0cd2f0101959aef3af8948c2fa31354b7b12c00";
+
 const GOLDEN_V2_HELLO: &str = "01020c020201020117ef9bafcdf8acd1910181dcff870c904e0c80c0ea92030c8080d2f83e178080d5a5064c8080d5a5060680ea30e0dc2ad0860380897a80d461c801904ee0d403d00fc0ee6d80897ac0ee6de807a08d06b0ea010c677265656e686f7573652d3301959aef3af8948c2fa313f51ce0c600";
 
 // Protocol 1's golden bytes of the same messages (as protocol 1 had them):
@@ -142,32 +146,53 @@ fn unhex(text: &str) -> Vec<u8> {
         .collect()
 }
 
-#[test]
-fn protocol_2_frames_are_still_read() {
-    let mut bytes = unhex(GOLDEN_V2_HELLO);
+/// The Hello of an older `major` from its golden hex, read through
+/// `decode_uplink_any` with and without the boot's version at hand.
+fn older_hello(golden: &str, major: u8) -> Hello {
+    let mut bytes = unhex(golden);
     bytes.pop(); // the frame's trailing delimiter
-    let (message, major) = decode_uplink_any(&mut bytes, Some(2)).unwrap();
-    assert_eq!(major, 2);
+    let (message, read_as) = decode_uplink_any(&mut bytes, Some(major)).unwrap();
+    assert_eq!(read_as, major);
     let UplinkBody::Hello(hello) = message.body else {
         panic!("a hello")
     };
-    assert_eq!(hello.protocol.major, 2);
-    // Protocol 2 nodes were not told their converter.
+    assert_eq!(hello.protocol.major, major);
+    // Without the boot's version at hand, the Hello says it itself.
+    let mut bytes = unhex(golden);
+    bytes.pop();
+    assert_eq!(decode_uplink_any(&mut bytes, None).unwrap().1, major);
+    // The other kinds kept their layout: today's bytes read as the older major's.
+    let mut report = frame_of(&example_report());
+    report.pop();
+    let (message, read_as) = decode_uplink_any(&mut report, Some(major)).unwrap();
+    assert_eq!((read_as, message), (major, example_report()));
+    hello
+}
+
+#[test]
+fn protocol_2_frames_are_still_read() {
+    let hello = older_hello(GOLDEN_V2_HELLO, 2);
+    // Protocol 2 nodes were not told their converter, nor their shed load.
     assert_eq!(hello.config.converter, ConverterModel::UNKNOWN);
+    assert_eq!(hello.config.shed_load_na, 0);
     let UplinkBody::Hello(current) = example_hello().body else {
         panic!("a hello")
     };
     assert_eq!(hello.config.thresholds, current.config.thresholds);
     assert_eq!(hello.config.name, current.config.name);
-    // Without the boot's version at hand, the Hello says it itself.
-    let mut bytes = unhex(GOLDEN_V2_HELLO);
-    bytes.pop();
-    assert_eq!(decode_uplink_any(&mut bytes, None).unwrap().1, 2);
-    // The other kinds kept their layout: protocol 3's bytes read as protocol 2's.
-    let mut report = frame_of(&example_report());
-    report.pop();
-    let (message, major) = decode_uplink_any(&mut report, Some(2)).unwrap();
-    assert_eq!((major, message), (2, example_report()));
+}
+
+#[test]
+fn protocol_3_frames_are_still_read() {
+    let hello = older_hello(GOLDEN_V3_HELLO, 3);
+    // Protocol 3 nodes were told their converter but not their shed load.
+    let UplinkBody::Hello(current) = example_hello().body else {
+        panic!("a hello")
+    };
+    assert_eq!(hello.config.converter, current.config.converter);
+    assert_eq!(hello.config.thresholds, current.config.thresholds);
+    assert_eq!(hello.config.shed_load_na, 0);
+    assert_ne!(current.config.shed_load_na, 0);
 }
 
 #[test]
@@ -327,7 +352,7 @@ fn wire_sizes_of_typical_messages() {
     let report = frame_of(&example_report()).len();
     let samples = frame_of(&example_samples(8)).len();
     let hello = frame_of(&example_hello()).len();
-    assert_eq!((report, samples, hello), (81, 120, 124));
+    assert_eq!((report, samples, hello), (81, 120, 127));
     assert!(
         samples as f64 / 8.0 <= 16.0,
         "a four-channel sample costs at most 16 bytes on the wire"
@@ -392,11 +417,11 @@ fn unknown_variants_are_named_as_such() {
 
 #[test]
 fn version_rule() {
-    assert!(ProtocolVersion::check_compatible(ProtocolVersion { major: 3, minor: 9 }).is_ok());
+    assert!(ProtocolVersion::check_compatible(ProtocolVersion { major: 4, minor: 9 }).is_ok());
     let err =
-        ProtocolVersion::check_compatible(ProtocolVersion { major: 2, minor: 0 }).unwrap_err();
+        ProtocolVersion::check_compatible(ProtocolVersion { major: 3, minor: 0 }).unwrap_err();
     let text = err.to_string();
-    assert!(text.contains("3.0") && text.contains("2.0"), "{text}");
+    assert!(text.contains("4.0") && text.contains("3.0"), "{text}");
 }
 
 fn any_stats() -> impl Strategy<Value = ChannelStats> {
@@ -620,5 +645,9 @@ fn a_refusal_of_the_mppt_fraction_names_the_accepted_range() {
     assert_eq!(
         Refusal::MpptFractionOutOfRange.to_string(),
         "the converter's MPPT fraction must be 0 (none) or 5 % to 99 % of open circuit"
+    );
+    assert_eq!(
+        Refusal::ShedLoadOutOfRange.to_string(),
+        "the shed load's current must be at most 1000 mA"
     );
 }

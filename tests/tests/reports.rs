@@ -320,6 +320,23 @@ fn fixture_reports_as_it_did(name: &str) -> gleaner::analysis::RunReport {
 }
 
 #[test]
+fn a_protocol_3_log_reports_as_it_did() {
+    // The log and its JSON report were made by the protocol 3 build of this
+    // tool (invented greenhouse evening, 6 h: Sagging, a cutoff, a load
+    // brown-out after the storage carried it an hour); today's build keeps
+    // every figure and says the node was not told its shed load.
+    let report = fixture_reports_as_it_did("protocol3-greenhouse-evening");
+    let boot = &report.boots[0];
+    assert_eq!(boot.protocol, "3.0");
+    assert_eq!(
+        (boot.mppt_fraction, boot.output_regulated),
+        (Some(0.78), true)
+    );
+    assert_eq!(boot.shed_load_a, None);
+    assert_eq!(report.load_outages.len(), 1);
+}
+
+#[test]
 fn a_protocol_2_log_reports_as_it_did() {
     // The log and its JSON report were made by the protocol 2 build of this
     // tool (invented greenhouse evening, 3.5 h: Sagging, a cutoff, a load

@@ -76,6 +76,9 @@ pub struct BootInfo {
     pub mppt_fraction: Option<f64>,
     /// True when the node was told its converter regulates its output.
     pub output_regulated: bool,
+    /// Current the node was told its load-shed pin switches off, A; None
+    /// when not told (0 on the wire, and every log before protocol 4).
+    pub shed_load_a: Option<f64>,
 }
 
 impl BootInfo {
@@ -98,12 +101,21 @@ impl BootInfo {
             storage_f: f64::from(h.config.output_storage_uf) / 1e6,
             mppt_fraction: mppt_fraction(&h.config.converter),
             output_regulated: h.config.converter.output_regulated,
+            shed_load_a: match h.config.shed_load_na {
+                0 => None,
+                na => Some(f64::from(na) / 1e9),
+            },
         }
     }
 
     /// How the converter was described to the node, in words.
     pub fn converter_words(&self) -> String {
         converter_words(self.mppt_fraction, self.output_regulated)
+    }
+
+    /// The shed load the node was told, in words; None when not told.
+    pub fn shed_load_words(&self) -> Option<String> {
+        self.shed_load_a.map(|a| format!("{:.1} µA", a * 1e6))
     }
 }
 

@@ -237,7 +237,7 @@ fn write_run(o: &mut String, r: &RunReport) -> std::fmt::Result {
     for b in &r.boots {
         writeln!(
             o,
-            "  boot {}       node {}{}, id {:08x}, firmware {}, protocol {}, config {} (start {:.3} V, stop {:.3} V, load minimum {:.3} V, storage {} F, {})",
+            "  boot {}       node {}{}, id {:08x}, firmware {}, protocol {}, config {} (start {:.3} V, stop {:.3} V, load minimum {:.3} V, storage {} F, {}{})",
             b.index,
             b.node_id,
             if b.node_name.is_empty() { String::new() } else { format!(" \"{}\"", b.node_name) },
@@ -249,7 +249,10 @@ fn write_run(o: &mut String, r: &RunReport) -> std::fmt::Result {
             b.stop_v,
             b.load_min_v,
             b.storage_f,
-            b.converter_words()
+            b.converter_words(),
+            b.shed_load_words()
+                .map(|w| format!(", shed load {w}"))
+                .unwrap_or_default()
         )?;
     }
     writeln!(o, "  duration     {}", duration(r.duration_s))?;

@@ -134,6 +134,9 @@ pub struct SetConfig {
     /// Whether the converter regulates its output voltage.
     #[arg(long)]
     pub output_regulated: Option<bool>,
+    /// Current the load-shed pin switches off, µA (0: not known; the node learns it).
+    #[arg(long)]
+    pub shed_load_ua: Option<f64>,
 }
 
 impl SetConfig {
@@ -160,7 +163,8 @@ impl SetConfig {
             debounce_ms,
             output_storage_uf,
             mppt_fraction,
-            output_regulated
+            output_regulated,
+            shed_load_ua
         );
         Ok(s)
     }
@@ -431,9 +435,13 @@ pub fn print_hello(h: &Hello) -> std::io::Result<()> {
         f64::from(t.input_idle_na) / 1e3
     )?;
     say!(
-        "  output storage    {} µF, load restored after {} ms",
+        "  output storage    {} µF, load restored after {} ms, shed load {}",
         h.config.output_storage_uf,
-        h.config.load_restore_ms
+        h.config.load_restore_ms,
+        match h.config.shed_load_na {
+            0 => "not stated".to_owned(),
+            na => format!("{:.1} µA", f64::from(na) / 1e3),
+        }
     )?;
     let converter = &h.config.converter;
     say!(

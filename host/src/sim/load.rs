@@ -93,6 +93,14 @@ impl LoadParams {
         }
     }
 
+    /// The current the load-shed pin switches off, A (0 for a load without one).
+    pub fn sheddable_a(&self) -> f64 {
+        match *self {
+            LoadParams::SensorNode { sheddable_a, .. } => sheddable_a,
+            LoadParams::Led { .. } => 0.0,
+        }
+    }
+
     /// The load's minimum supply voltage and its restart voltage, V, for a
     /// load that browns out.
     pub fn supply_window_v(&self) -> Option<(f64, f64)> {

@@ -317,12 +317,14 @@ impl Scenario {
         let mut base = gleaner_firmware::config::default_config();
         base.calibration = self.front_end.calibration().context("front_end")?;
         // The node is told the storage on the output and the load's own
-        // supply window, unless [node] says otherwise ...
+        // supply window, unless [node] says otherwise, ...
         base.output_storage_uf = (self.converter.output_capacitance_f * 1e6).round() as u32;
         if let Some((min_v, restart_v)) = self.load.supply_window_v() {
             base.thresholds.load_min_uv = (min_v * 1e6).round() as u32;
             base.thresholds.load_restart_uv = (restart_v * 1e6).round() as u32;
         }
+        // ... and what its shed pin switches off, as the load's designer knows ...
+        base.shed_load_na = (self.load.sheddable_a() * 1e9).round() as u32;
         // ... and how its converter holds its input and output, as its data sheet would.
         base.converter = gleaner_protocol::ConverterModel {
             mppt_fraction_ppm: match self.converter.input {

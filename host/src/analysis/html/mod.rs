@@ -172,6 +172,7 @@ fn boots(page: &mut String, r: &RunReport) {
             "load minimum",
             "storage",
             "converter",
+            "shed load",
         ],
         r.boots.iter().map(|b| {
             let name = if b.node_name.is_empty() {
@@ -190,6 +191,8 @@ fn boots(page: &mut String, r: &RunReport) {
                 format!("{:.3} V", b.load_min_v),
                 format!("{} F", b.storage_f),
                 escape(&b.converter_words()),
+                b.shed_load_words()
+                    .unwrap_or_else(|| "not stated".to_owned()),
             ]
         }),
     );
