@@ -395,4 +395,21 @@ mod tests {
             .to_string()
             .contains("greenhouse-day"));
     }
+
+    #[test]
+    fn the_node_is_told_its_load_as_its_designer_knows_it() {
+        // greenhouse-day's load: minimum 1.9 V, 60 µA on the shed pin.
+        let config = Scenario::builtin("greenhouse-day")
+            .unwrap()
+            .node_config()
+            .unwrap();
+        assert_eq!(config.thresholds.load_min_uv, 1_900_000);
+        assert_eq!(config.shed_load_na, 60_000);
+        // An LED has no shed pin.
+        let config = Scenario::builtin("crate-beacon")
+            .unwrap()
+            .node_config()
+            .unwrap();
+        assert_eq!(config.shed_load_na, 0);
+    }
 }
