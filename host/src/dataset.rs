@@ -18,17 +18,21 @@ use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
 use anyhow::{Context, Result};
+use arrow_array::{
+    ArrayRef, BooleanArray, Int64Array, RecordBatch, StringArray, TimestampMicrosecondArray,
+};
 use arrow_schema::{DataType, Field, Schema, SchemaRef, TimeUnit};
 use gleaner_protocol::{Hello, UplinkBody};
 use indicatif::ProgressBar;
 use parquet::arrow::ArrowWriter;
 use parquet::file::properties::WriterProperties;
 
+use crate::columns::{self, Cell, Column, Kind};
 use crate::files::AtomicFile;
 use crate::link::LinkTracker;
 use crate::link::Tracked;
 use crate::log::{LogHeader, LogReader, RecordBody};
-use crate::stream::{Line, NodeSeen};
+use crate::stream::NodeSeen;
 
 /// Schema name in every file's metadata.
 pub const DATASET_SCHEMA: &str = "gleaner.dataset.v1";
@@ -85,56 +89,20 @@ impl Table {
             ("host_time".into(), time, false),
             ("lost_before".into(), DataType::Int64, false),
         ];
-        let int = |name: &str| (name.to_string(), DataType::Int64, false);
-        let text = |name: &str| (name.to_string(), DataType::Utf8, false);
-        let flag = |name: &str| (name.to_string(), DataType::Boolean, false);
-        let maybe = |name: &str| (name.to_string(), DataType::Int64, true);
-        match self {
-            Table::Reports => {
-                columns.extend(["interval_ms", "sample_count"].map(int));
-                for channel in ["input_uv", "input_na", "output_uv", "output_na"] {
-                    for stat in ["min", "mean", "max"] {
-                        columns.push(int(&format!("{channel}_{stat}")));
-                    }
-                }
-                columns.extend(["drawn_nj", "delivered_nj", "stored_nj"].map(int));
-                columns.push(text("state"));
-                columns.extend(
-                    [
-                        "idle_ms",
-                        "cold_start_ms",
-                        "harvesting_ms",
-                        "sagging_ms",
-                        "cutoff_ms",
-                        "stalled_ms",
-                    ]
-                    .map(int),
-                );
-                columns.extend(["input_cutoff_in_ms", "brownout_in_ms"].map(maybe));
-                columns.extend(["load_nw", "net_nw"].map(int));
-                columns.extend(["load_powered", "load_shed"].map(flag));
-                columns.push(int("flags"));
-            }
-            Table::Events => {
-                columns.extend(["from_state", "to_state", "cause"].map(text));
-                columns.extend(
-                    [
-                        "trigger_input_uv",
-                        "trigger_output_uv",
-                        "input_uv",
-                        "output_uv",
-                    ]
-                    .map(int),
-                );
-            }
-            Table::Loads => {
-                columns.push(flag("powered"));
-                columns.push(text("cause"));
-                columns.extend(["output_uv", "input_uv"].map(int));
-                columns.push(text("converter_state"));
-                columns.extend(["converter_state_ms", "net_nw"].map(int));
-            }
-        }
+        let kinds: Vec<(&str, Kind)> = match self {
+            Table::Reports => columns::REPORT.iter().map(|c| (c.name, c.kind)).collect(),
+            Table::Events => columns::EVENT.iter().map(|c| (c.name, c.kind)).collect(),
+            Table::Loads => columns::LOAD.iter().map(|c| (c.name, c.kind)).collect(),
+        };
+        columns.extend(kinds.into_iter().map(|(name, kind)| {
+            let (data_type, nullable) = match kind {
+                Kind::Int => (DataType::Int64, false),
+                Kind::MaybeInt => (DataType::Int64, true),
+                Kind::Text => (DataType::Utf8, false),
+                Kind::Flag => (DataType::Boolean, false),
+            };
+            (name.to_string(), data_type, nullable)
+        }));
         let fields: Vec<Field> = columns
             .into_iter()
             .map(|(name, kind, nullable)| {
@@ -448,23 +416,98 @@ fn write_rows(part: &mut Part, table: Table, node: &NodeSeen) -> Result<()> {
     if part.rows.is_empty() {
         return Ok(());
     }
-    let mut decoder = arrow_json::ReaderBuilder::new(table.schema())
-        .with_batch_size(BATCH_ROWS)
-        .build_decoder()?;
-    let lines: Vec<Line<'_>> = part
-        .rows
-        .iter()
-        .map(|(tracked, host_time_us)| Line {
-            tracked,
-            host_time_us: *host_time_us,
-            node,
-            as_row: true,
-        })
-        .collect();
-    decoder.serialize(&lines)?;
+    let batch = record_batch(table, &part.rows, node)?;
     part.rows.clear();
-    if let Some(batch) = decoder.flush()? {
-        part.writer.write(&batch)?;
-    }
+    part.writer.write(&batch)?;
     Ok(())
+}
+
+/// The rows of `table` as one Arrow batch, column by column: the envelope
+/// every table shares, then the table's columns from [`crate::columns`].
+fn record_batch(table: Table, rows: &[(Tracked, u64)], node: &NodeSeen) -> Result<RecordBatch> {
+    let count = rows.len();
+    let int = |f: &dyn Fn(&(Tracked, u64)) -> i64| -> ArrayRef {
+        Arc::new(Int64Array::from_iter_values(rows.iter().map(f)))
+    };
+    let host_time = TimestampMicrosecondArray::from_iter_values(
+        rows.iter()
+            .map(|(_, us)| i64::try_from(*us).unwrap_or(i64::MAX)),
+    )
+    .with_timezone("+00:00");
+    let mut arrays: Vec<ArrayRef> = vec![
+        Arc::new(StringArray::from(vec![node.id.as_deref(); count])),
+        Arc::new(StringArray::from(vec![node.name.as_deref(); count])),
+        int(&|(t, _)| i64::from(t.boot_index)),
+        int(&|(t, _)| i64::from(t.message.seq)),
+        int(&|(t, _)| i64::try_from(t.message.uptime_ms).unwrap_or(i64::MAX)),
+        Arc::new(host_time),
+        int(&|(t, _)| i64::try_from(t.lost_before).unwrap_or(i64::MAX)),
+    ];
+    let bodies = rows.iter().map(|(t, _)| &t.message.body);
+    match table {
+        Table::Reports => {
+            let reports: Vec<_> = bodies
+                .filter_map(|b| match b {
+                    UplinkBody::Report(r) => Some(r),
+                    _ => None,
+                })
+                .collect();
+            arrays.extend(column_arrays(&columns::REPORT, &reports));
+        }
+        Table::Events => {
+            let events: Vec<_> = bodies
+                .filter_map(|b| match b {
+                    UplinkBody::Event(e) => Some(e),
+                    _ => None,
+                })
+                .collect();
+            arrays.extend(column_arrays(&columns::EVENT, &events));
+        }
+        Table::Loads => {
+            let loads: Vec<_> = bodies
+                .filter_map(|b| match b {
+                    UplinkBody::Load(e) => Some(e),
+                    _ => None,
+                })
+                .collect();
+            arrays.extend(column_arrays(&columns::LOAD, &loads));
+        }
+    }
+    Ok(RecordBatch::try_new(table.schema(), arrays)?)
+}
+
+/// One Arrow array per column of `messages`.
+fn column_arrays<T>(columns: &[Column<T>], messages: &[&T]) -> Vec<ArrayRef> {
+    columns
+        .iter()
+        .map(|column| -> ArrayRef {
+            let cells = messages.iter().map(|m| (column.cell)(m));
+            match column.kind {
+                Kind::Int | Kind::MaybeInt => Arc::new(
+                    cells
+                        .map(|c| match c {
+                            Cell::Int(v) => Some(v),
+                            _ => None,
+                        })
+                        .collect::<Int64Array>(),
+                ),
+                Kind::Text => Arc::new(
+                    cells
+                        .map(|c| match c {
+                            Cell::Text(t) => Some(t),
+                            _ => None,
+                        })
+                        .collect::<StringArray>(),
+                ),
+                Kind::Flag => Arc::new(
+                    cells
+                        .map(|c| match c {
+                            Cell::Flag(f) => Some(f),
+                            _ => None,
+                        })
+                        .collect::<BooleanArray>(),
+                ),
+            }
+        })
+        .collect()
 }

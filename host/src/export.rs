@@ -10,21 +10,25 @@ use std::path::{Path, PathBuf};
 use anyhow::{Context, Result};
 use gleaner_protocol::UplinkBody;
 
+use crate::columns;
 use crate::files::{open_input, AtomicFile, Input};
 use crate::link::LinkTracker;
 use crate::log::{LogReader, RecordBody};
 use indicatif::ProgressBar;
 
-/// Column names of the reports file.
-pub const REPORT_COLUMNS: &str = "boot,seq,uptime_ms,host_time_us,interval_ms,sample_count,\
-input_uv_min,input_uv_mean,input_uv_max,input_na_min,input_na_mean,input_na_max,\
-output_uv_min,output_uv_mean,output_uv_max,output_na_min,output_na_mean,output_na_max,\
-drawn_nj,delivered_nj,stored_nj,state,idle_ms,cold_start_ms,harvesting_ms,sagging_ms,cutoff_ms,stalled_ms,\
-input_cutoff_in_ms,brownout_in_ms,load_nw,net_nw,load_powered,load_shed,flags";
+/// The columns every CSV row starts with (the message's envelope); the
+/// rest come from [`crate::columns`].
+const CSV_ENVELOPE: &str = "boot,seq,uptime_ms,host_time_us";
 
-/// Column names of the events file.
-pub const EVENT_COLUMNS: &str =
-    "boot,seq,uptime_ms,host_time_us,from,to,cause,trigger_input_uv,trigger_output_uv,input_uv,output_uv";
+/// The header of the reports file.
+pub fn report_header() -> String {
+    format!("{CSV_ENVELOPE},{}", columns::csv_header(&columns::REPORT))
+}
+
+/// The header of the events file.
+pub fn event_header() -> String {
+    format!("{CSV_ENVELOPE},{}", columns::csv_header(&columns::EVENT))
+}
 
 /// What an export wrote.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -44,10 +48,6 @@ fn suffixed(prefix: &Path, suffix: &str) -> PathBuf {
     let mut name = prefix.as_os_str().to_owned();
     name.push(suffix);
     PathBuf::from(name)
-}
-
-fn opt(v: Option<u32>) -> String {
-    v.map_or(String::new(), |x| x.to_string())
 }
 
 /// An error when what was read is not a log (so nothing is written for it).
@@ -100,8 +100,8 @@ pub fn write_csv(
     progress: &ProgressBar,
 ) -> Result<(u64, u64)> {
     let (file, name) = (input.reader, input.name);
-    writeln!(reports_out, "{REPORT_COLUMNS}")?;
-    writeln!(events_out, "{EVENT_COLUMNS}")?;
+    writeln!(reports_out, "{}", report_header())?;
+    writeln!(events_out, "{}", event_header())?;
     let mut tracker = LinkTracker::new();
     let (mut reports, mut events) = (0, 0);
     let mut reader = LogReader::new(file);
@@ -125,51 +125,15 @@ pub fn write_csv(
         );
         match &t.message.body {
             UplinkBody::Report(r) => {
-                let c = |s: &gleaner_protocol::ChannelStats| {
-                    format!("{},{},{}", s.min(), s.mean, s.max())
-                };
-                let d = &r.state_ms;
-                writeln!(
-                    reports_out,
-                    "{boot},{seq},{up},{host},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}",
-                    r.interval_ms,
-                    r.sample_count,
-                    c(&r.input_uv),
-                    c(&r.input_na),
-                    c(&r.output_uv),
-                    c(&r.output_na),
-                    r.drawn_nj,
-                    r.delivered_nj,
-                    r.stored_nj,
-                    r.state.name(),
-                    d.idle_ms,
-                    d.cold_start_ms,
-                    d.harvesting_ms,
-                    d.sagging_ms,
-                    d.cutoff_ms,
-                    d.stalled_ms,
-                    opt(r.input_cutoff_in_ms),
-                    opt(r.brownout_in_ms),
-                    r.load_nw,
-                    r.net_nw,
-                    u8::from(r.load_powered),
-                    u8::from(r.load_shed),
-                    r.flags.0
-                )?;
+                write!(reports_out, "{boot},{seq},{up},{host}")?;
+                columns::write_csv_cells(reports_out, &columns::REPORT, r)?;
+                writeln!(reports_out)?;
                 reports += 1;
             }
             UplinkBody::Event(e) => {
-                writeln!(
-                    events_out,
-                    "{boot},{seq},{up},{host},{},{},{},{},{},{},{}",
-                    e.from.name(),
-                    e.to.name(),
-                    e.cause.name(),
-                    e.trigger_input_uv,
-                    e.trigger_output_uv,
-                    e.input_uv,
-                    e.output_uv
-                )?;
+                write!(events_out, "{boot},{seq},{up},{host}")?;
+                columns::write_csv_cells(events_out, &columns::EVENT, e)?;
+                writeln!(events_out)?;
                 events += 1;
             }
             _ => {}

@@ -40,6 +40,7 @@
 //! ```
 pub mod analysis;
 pub mod cli;
+pub mod columns;
 pub mod dataset;
 pub mod export;
 pub mod failure;

@@ -6,10 +6,11 @@
 use std::io::Write;
 use std::time::Duration;
 
-use gleaner_protocol::{Outcome, Report, UplinkBody};
+use gleaner_protocol::{Outcome, UplinkBody};
 use serde::ser::{Serialize, SerializeMap, Serializer};
 use serde_json::{json, Value};
 
+use crate::columns::{self, Cell, Column};
 use crate::link::{LinkStats, Tracked};
 use crate::recorder::PortObserver;
 
@@ -24,7 +25,6 @@ pub fn message_line(t: &Tracked, host_time_us: u64, node: &NodeSeen) -> Value {
         tracked: t,
         host_time_us,
         node,
-        as_row: false,
     })
     .unwrap_or(Value::Null)
 }
@@ -42,7 +42,7 @@ pub fn link_line(connected: bool, detail: &str, host_time_us: u64, node: &NodeSe
     })
 }
 
-/// One message as a line of the stream (and a row of the dataset),
+/// One message as a line of the stream,
 /// serialized straight from the message with no intermediate map.
 #[derive(Debug, Clone, Copy)]
 pub struct Line<'a> {
@@ -52,9 +52,6 @@ pub struct Line<'a> {
     pub host_time_us: u64,
     /// The node it came from.
     pub node: &'a NodeSeen,
-    /// As a dataset row: the receive time also as `host_time` (a timestamp
-    /// column there).
-    pub as_row: bool,
 }
 
 impl Serialize for Line<'_> {
@@ -69,72 +66,36 @@ impl Serialize for Line<'_> {
         map.serialize_entry("seq", &m.seq)?;
         map.serialize_entry("uptime_ms", &m.uptime_ms)?;
         map.serialize_entry("host_time_us", &self.host_time_us)?;
-        if self.as_row {
-            map.serialize_entry("host_time", &self.host_time_us)?;
-        }
         map.serialize_entry("lost_before", &t.lost_before)?;
         body_entries(&mut map, &m.body)?;
         map.end()
     }
 }
 
-/// A report's fields, named as the CSV export's columns.
-fn report_entries<M: SerializeMap>(map: &mut M, r: &Report) -> Result<(), M::Error> {
-    let channels = [
-        ("input_uv", &r.input_uv),
-        ("input_na", &r.input_na),
-        ("output_uv", &r.output_uv),
-        ("output_na", &r.output_na),
-    ];
-    map.serialize_entry("interval_ms", &r.interval_ms)?;
-    map.serialize_entry("sample_count", &r.sample_count)?;
-    for (name, c) in channels {
-        map.serialize_entry(&format_args!("{name}_min"), &c.min())?;
-        map.serialize_entry(&format_args!("{name}_mean"), &c.mean)?;
-        map.serialize_entry(&format_args!("{name}_max"), &c.max())?;
+/// The cells of `message` in `columns`, as JSON entries (a missing number
+/// is null).
+fn column_entries<M: SerializeMap, T>(
+    map: &mut M,
+    columns: &[Column<T>],
+    message: &T,
+) -> Result<(), M::Error> {
+    for column in columns {
+        match (column.cell)(message) {
+            Cell::Int(v) => map.serialize_entry(column.name, &v)?,
+            Cell::Missing => map.serialize_entry(column.name, &())?,
+            Cell::Text(t) => map.serialize_entry(column.name, t)?,
+            Cell::Flag(f) => map.serialize_entry(column.name, &f)?,
+        }
     }
-    map.serialize_entry("drawn_nj", &r.drawn_nj)?;
-    map.serialize_entry("delivered_nj", &r.delivered_nj)?;
-    map.serialize_entry("stored_nj", &r.stored_nj)?;
-    map.serialize_entry("state", r.state.name())?;
-    let d = &r.state_ms;
-    map.serialize_entry("idle_ms", &d.idle_ms)?;
-    map.serialize_entry("cold_start_ms", &d.cold_start_ms)?;
-    map.serialize_entry("harvesting_ms", &d.harvesting_ms)?;
-    map.serialize_entry("sagging_ms", &d.sagging_ms)?;
-    map.serialize_entry("cutoff_ms", &d.cutoff_ms)?;
-    map.serialize_entry("stalled_ms", &d.stalled_ms)?;
-    map.serialize_entry("input_cutoff_in_ms", &r.input_cutoff_in_ms)?;
-    map.serialize_entry("brownout_in_ms", &r.brownout_in_ms)?;
-    map.serialize_entry("load_nw", &r.load_nw)?;
-    map.serialize_entry("net_nw", &r.net_nw)?;
-    map.serialize_entry("load_powered", &r.load_powered)?;
-    map.serialize_entry("load_shed", &r.load_shed)?;
-    map.serialize_entry("flags", &r.flags.0)
+    Ok(())
 }
 
 /// The fields of a message body.
 fn body_entries<M: SerializeMap>(map: &mut M, body: &UplinkBody) -> Result<(), M::Error> {
     match body {
-        UplinkBody::Report(r) => report_entries(map, r),
-        UplinkBody::Event(e) => {
-            map.serialize_entry("from_state", e.from.name())?;
-            map.serialize_entry("to_state", e.to.name())?;
-            map.serialize_entry("cause", e.cause.name())?;
-            map.serialize_entry("trigger_input_uv", &e.trigger_input_uv)?;
-            map.serialize_entry("trigger_output_uv", &e.trigger_output_uv)?;
-            map.serialize_entry("input_uv", &e.input_uv)?;
-            map.serialize_entry("output_uv", &e.output_uv)
-        }
-        UplinkBody::Load(e) => {
-            map.serialize_entry("powered", &e.powered)?;
-            map.serialize_entry("cause", e.cause.name())?;
-            map.serialize_entry("output_uv", &e.output_uv)?;
-            map.serialize_entry("input_uv", &e.input_uv)?;
-            map.serialize_entry("converter_state", e.converter.name())?;
-            map.serialize_entry("converter_state_ms", &e.converter_state_ms)?;
-            map.serialize_entry("net_nw", &e.net_nw)
-        }
+        UplinkBody::Report(r) => column_entries(map, &columns::REPORT, r),
+        UplinkBody::Event(e) => column_entries(map, &columns::EVENT, e),
+        UplinkBody::Load(e) => column_entries(map, &columns::LOAD, e),
         UplinkBody::Harvest(h) => {
             map.serialize_entry("slot", &h.slot)?;
             map.serialize_entry("slot_ms", &h.slot_ms)?;
@@ -268,7 +229,6 @@ impl PortObserver for Streamed<'_> {
             tracked,
             host_time_us,
             node: &self.node,
-            as_row: false,
         };
         write_line(
             &mut self.out,
@@ -298,7 +258,7 @@ impl PortObserver for Streamed<'_> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::export::REPORT_COLUMNS;
+    use crate::export::report_header;
     use crate::link::LinkTracker;
     use gleaner_protocol::*;
 
@@ -348,7 +308,7 @@ mod tests {
             .keys()
             .map(String::as_str)
             .collect();
-        for column in REPORT_COLUMNS.split(',') {
+        for column in report_header().split(',') {
             assert!(keys.contains(&column), "{column} missing from {line}");
         }
         assert_eq!(line["kind"], "report");
