@@ -15,18 +15,39 @@ use gleaner_protocol::{FrameError, FrameSplitter, MAX_UPLINK_FRAME_LEN};
 
 use crate::link::tracker::TrackError;
 use crate::link::{open_port, LinkStats, LinkTracker, Tracked};
-use crate::log::{now_us, LogHeader, LogWriter, MarkerKind, FORMAT_VERSION};
+use crate::log::{now_us, DiskFull, LogHeader, LogWriter, MarkerKind, FORMAT_VERSION};
 
 /// How often recorded data is forced to the disk.
 pub const SYNC_EVERY: Duration = Duration::from_secs(1);
 
+/// How often a recorder paused by a full disk tries to write again.
+pub const RESUME_TRY_EVERY: Duration = Duration::from_secs(5);
+
 /// Splits, logs and decodes.
 pub struct Recorder {
-    writer: Option<LogWriter>,
+    out: Output,
     splitter: FrameSplitter<MAX_UPLINK_FRAME_LEN>,
     tracker: LinkTracker,
     last_sync: Instant,
     bytes: u64,
+}
+
+/// The log being written, and whether a full disk has paused it.
+struct Output {
+    writer: Option<LogWriter>,
+    /// Set while the disk is full: frames are decoded but not written.
+    paused: Option<Paused>,
+    /// Frames received but not written because the disk was full, in all.
+    frames_not_written: u64,
+}
+
+/// A recording paused by a full disk.
+#[derive(Debug, Clone, Copy)]
+struct Paused {
+    since_us: u64,
+    /// Frames received since, not written.
+    frames: u64,
+    next_try: Instant,
 }
 
 /// The header for a new log recorded from `source`.
@@ -48,7 +69,11 @@ impl Recorder {
     /// A recorder writing to `writer` (or only decoding when None).
     pub fn new(writer: Option<LogWriter>) -> Self {
         Recorder {
-            writer,
+            out: Output {
+                writer,
+                paused: None,
+                frames_not_written: 0,
+            },
             splitter: FrameSplitter::new(),
             tracker: LinkTracker::new(),
             last_sync: Instant::now(),
@@ -73,15 +98,15 @@ impl Recorder {
         mut on_message: impl FnMut(&Tracked),
     ) -> Result<()> {
         self.bytes += bytes.len() as u64;
+        self.out.try_resume()?;
         for &byte in bytes {
             let Some(result) = self.splitter.push(byte) else {
                 continue;
             };
             match result {
                 Ok(frame) => {
-                    if let Some(w) = self.writer.as_mut() {
-                        w.append_frame(host_time_us, frame)?;
-                    }
+                    self.out.write(|w| w.append_frame(host_time_us, frame))?;
+                    self.out.count_if_paused();
                     match self.tracker.accept_encoded(frame) {
                         Ok(Some(tracked)) => on_message(&tracked),
                         Ok(None) | Err(TrackError::Frame(_)) => {}
@@ -93,13 +118,13 @@ impl Recorder {
                 }
                 Err(FrameError::Oversize) => {
                     self.tracker.count_error(FrameError::Oversize);
-                    if let Some(w) = self.writer.as_mut() {
+                    self.out.write(|w| {
                         w.append_marker(
                             host_time_us,
                             MarkerKind::Discarded,
                             "bytes of an over-long frame",
-                        )?;
-                    }
+                        )
+                    })?;
                 }
                 Err(e) => self.tracker.count_error(e),
             }
@@ -109,22 +134,39 @@ impl Recorder {
 
     /// Writes a marker.
     pub fn mark(&mut self, kind: MarkerKind, detail: &str) -> Result<()> {
-        if let Some(w) = self.writer.as_mut() {
-            w.append_marker(now_us(), kind, detail)?;
+        self.out.write(|w| w.append_marker(now_us(), kind, detail))
+    }
+
+    /// Hands records to the operating system; forces them to disk once a
+    /// second. A paused recorder tries to go on writing every
+    /// [`RESUME_TRY_EVERY`].
+    pub fn flush(&mut self) -> Result<()> {
+        self.out.try_resume()?;
+        let sync = self.last_sync.elapsed() >= SYNC_EVERY;
+        self.out
+            .write(|w| if sync { w.sync() } else { w.flush() })?;
+        if sync {
+            self.last_sync = Instant::now();
         }
         Ok(())
     }
 
-    /// Hands records to the operating system; forces them to disk once a second.
-    pub fn flush(&mut self) -> Result<()> {
-        if let Some(w) = self.writer.as_mut() {
-            w.flush()?;
-            if self.last_sync.elapsed() >= SYNC_EVERY {
-                w.sync()?;
-                self.last_sync = Instant::now();
-            }
+    /// True while a full disk keeps the recorder from writing.
+    pub fn is_paused(&self) -> bool {
+        self.out.paused.is_some()
+    }
+
+    /// Frames received but not written because the disk was full.
+    pub fn frames_not_written(&self) -> u64 {
+        self.out.frames_not_written
+    }
+
+    /// Tries to write again at the next flush instead of after
+    /// [`RESUME_TRY_EVERY`] (for a caller that knows space was freed).
+    pub fn try_resume_now(&mut self) {
+        if let Some(p) = self.out.paused.as_mut() {
+            p.next_try = Instant::now();
         }
-        Ok(())
     }
 
     /// Forgets a partly received frame (after a reconnect).
@@ -145,10 +187,19 @@ impl Recorder {
             MarkerKind::Note,
             &format!("continues in {}", path.display()),
         )?;
-        if let Some(w) = self.writer.as_mut() {
-            w.sync()?;
+        self.out.write(|w| w.sync())?;
+        match LogWriter::create(path, &header_for(source)) {
+            Ok(w) => self.out.writer = Some(w),
+            Err(e) if e.downcast_ref::<DiskFull>().is_some() => {
+                // No room for the new log's header: the half-made file goes,
+                // and the full disk pauses the old log as it would any write.
+                let _ = std::fs::remove_file(path);
+                return self.out.write(|_| Err(e));
+            }
+            Err(e) => return Err(e),
         }
-        self.writer = Some(LogWriter::create(path, &header_for(source))?);
+        // A log paused by a full disk: there was room for the new one's header.
+        self.try_resume_now();
         self.last_sync = Instant::now();
         self.mark(MarkerKind::Note, &format!("continued from {old}"))
     }
@@ -156,10 +207,7 @@ impl Recorder {
     /// Writes the stop marker and forces everything to disk.
     pub fn finish(&mut self) -> Result<()> {
         self.mark(MarkerKind::Stopped, "recording stopped")?;
-        if let Some(w) = self.writer.as_mut() {
-            w.sync()?;
-        }
-        Ok(())
+        self.out.write(|w| w.sync())
     }
 
     /// Link counters.
@@ -174,7 +222,77 @@ impl Recorder {
 
     /// The log being written.
     pub fn log_path(&self) -> Option<&Path> {
-        self.writer.as_ref().map(|w| w.path())
+        self.out.writer.as_ref().map(|w| w.path())
+    }
+}
+
+impl Output {
+    /// Runs `op` on the log unless recording is paused. When the disk is
+    /// full, the log is cut back to its last whole record and recording
+    /// pauses (frames are still decoded, and counted); any other error stops it.
+    fn write(&mut self, op: impl FnOnce(&mut LogWriter) -> Result<()>) -> Result<()> {
+        if self.paused.is_some() {
+            return Ok(());
+        }
+        let Some(w) = self.writer.as_mut() else {
+            return Ok(());
+        };
+        let Err(e) = op(w) else {
+            return Ok(());
+        };
+        if e.downcast_ref::<DiskFull>().is_none() {
+            return Err(e);
+        }
+        let given_up = w.roll_back()?;
+        eprintln!(
+            "warning: {e}: recording paused, the log is intact up to here; frames are counted, not written, until space is free again (tried every {} s)",
+            RESUME_TRY_EVERY.as_secs()
+        );
+        self.frames_not_written += given_up;
+        self.paused = Some(Paused {
+            since_us: now_us(),
+            frames: given_up,
+            next_try: Instant::now() + RESUME_TRY_EVERY,
+        });
+        Ok(())
+    }
+
+    /// Writes again when there is room: a note says how long the disk was
+    /// full and how many frames were not written.
+    fn try_resume(&mut self) -> Result<()> {
+        let Some(p) = self.paused else {
+            return Ok(());
+        };
+        if Instant::now() < p.next_try {
+            return Ok(());
+        }
+        self.paused = None;
+        let detail = format!(
+            "the disk was full for {} s: {} frames received meanwhile were not written",
+            now_us().saturating_sub(p.since_us) / 1_000_000,
+            p.frames
+        );
+        self.write(|w| {
+            w.append_marker(now_us(), MarkerKind::Note, &detail)?;
+            w.sync()
+        })?;
+        match self.paused.as_mut() {
+            // Still full: the frames not written go on counting from here.
+            Some(again) => {
+                again.since_us = p.since_us;
+                again.frames = again.frames.saturating_add(p.frames);
+            }
+            None => eprintln!("recording resumed: {detail}"),
+        }
+        Ok(())
+    }
+
+    /// Counts a frame received while paused.
+    fn count_if_paused(&mut self) {
+        if let Some(p) = self.paused.as_mut() {
+            p.frames += 1;
+            self.frames_not_written += 1;
+        }
     }
 }
 

@@ -131,35 +131,61 @@ impl Drop for TinyDisk {
 }
 
 #[test]
-fn a_full_disk_stops_recording_with_a_clear_error_and_a_readable_log() {
+fn a_full_disk_pauses_recording_and_it_resumes_when_space_returns() {
     let disk = TinyDisk::mount(64 * 1024);
+    // Something else on the disk, removed later to give the space back.
+    let filler = disk.0.join("filler");
+    std::fs::write(&filler, vec![0u8; 24 * 1024]).unwrap();
     let log = disk.0.join("full.gleanlog");
     let mut recorder = Recorder::create(&log, "test").unwrap();
-    let mut written = 0u16;
-    let err = loop {
-        let f = report_frame(written);
-        match recorder.on_bytes(1, &f, |_| {}) {
-            Ok(()) => written += 1,
-            Err(e) => break e,
-        }
-        assert!(written < 60_000, "the disk never filled");
-    };
-    let message = format!("{err:#}");
-    assert!(
-        message.contains("full") && message.contains("intact"),
-        "{message}"
-    );
-    let mut reader = LogReader::new(std::fs::File::open(&log).unwrap());
-    let frames = reader
-        .by_ref()
-        .filter(|r| matches!(r.body, RecordBody::Frame(_)))
-        .count();
-    assert!(frames > 100, "{frames} frames kept");
-    assert!(
-        frames >= usize::from(written) - 1,
-        "every frame before the failing one is readable: {frames} of {written}"
-    );
-    for w in reader.warnings() {
-        assert!(matches!(w, ReadWarning::TornTail { .. }), "{w}");
+    let mut sent = 0u16;
+    while !recorder.is_paused() {
+        recorder.on_bytes(1, &report_frame(sent), |_| {}).unwrap();
+        sent += 1;
+        assert!(sent < 60_000, "the disk never filled");
     }
+    let paused_at = sent;
+    // Full: frames still arrive (and are decoded), none is written, no error.
+    let mut decoded = 0;
+    for _ in 0..50 {
+        recorder
+            .on_bytes(2, &report_frame(sent), |_| decoded += 1)
+            .unwrap();
+        sent += 1;
+    }
+    assert_eq!(decoded, 50);
+    assert!(recorder.is_paused());
+    // Space comes back: the next write after the retry goes through.
+    std::fs::remove_file(&filler).unwrap();
+    recorder.try_resume_now();
+    for _ in 0..20 {
+        recorder.on_bytes(3, &report_frame(sent), |_| {}).unwrap();
+        sent += 1;
+    }
+    assert!(!recorder.is_paused());
+    recorder.finish().unwrap();
+    let not_written = recorder.frames_not_written();
+    assert!(not_written >= 50, "{not_written}");
+    // The log reads to its end with no damage: every frame written before the
+    // disk filled, a note of what was not written, and every frame after.
+    let mut reader = LogReader::new(std::fs::File::open(&log).unwrap());
+    let (mut frames, mut notes) = (Vec::new(), Vec::new());
+    for record in reader.by_ref() {
+        match record.body {
+            RecordBody::Frame(_) => frames.push(record.host_time_us),
+            RecordBody::Marker { detail, .. } if detail.contains("disk was full") => {
+                notes.push(detail)
+            }
+            _ => {}
+        }
+    }
+    assert!(reader.warnings().is_empty(), "{:?}", reader.warnings());
+    assert_eq!(notes.len(), 1, "{notes:?}");
+    assert!(
+        notes[0].contains(&format!("{not_written} frames")),
+        "{notes:?}"
+    );
+    assert_eq!(frames.len() as u64 + not_written, u64::from(sent));
+    assert_eq!(frames.iter().filter(|&&t| t == 3).count(), 20);
+    assert!(frames.len() >= usize::from(paused_at) - 1);
 }

@@ -19,7 +19,7 @@ mod writer;
 
 pub use format::{LogHeader, MarkerKind, Record, RecordBody, FORMAT_VERSION, MAGIC, MAX_BODY_LEN};
 pub use reader::{LogReader, ReadWarning, RecordRef};
-pub use writer::LogWriter;
+pub use writer::{DiskFull, LogStore, LogWriter};
 
 /// Microseconds since the Unix epoch, now.
 pub fn now_us() -> u64 {

@@ -5,7 +5,7 @@
 //! so a power cut loses at most the last second).
 
 use std::fs::{File, OpenOptions};
-use std::io::{BufWriter, Write};
+use std::io::{Seek, SeekFrom, Write};
 use std::path::{Path, PathBuf};
 
 use anyhow::{Context, Result};
@@ -15,21 +15,70 @@ use super::format::{
     LogHeader, MarkerKind, KIND_FRAME, KIND_HEADER, KIND_MARKER, MAGIC, MAX_BODY_LEN,
 };
 
-/// An open log being appended to (a file, or any writer for tests and tools).
+/// Records gathered before they are handed to the operating system anyway.
+const PENDING_LIMIT: usize = 64 * 1024;
+
+/// Where a log is written: appended to, cut back to its last whole record
+/// after a write that failed part-way, and forced to the disk.
+pub trait LogStore: Write {
+    /// Cuts the store back to `len` bytes and goes on writing there.
+    fn truncate_to(&mut self, len: u64) -> std::io::Result<()>;
+    /// Forces what was written to the disk.
+    fn sync(&mut self) -> std::io::Result<()>;
+}
+
+impl LogStore for File {
+    fn truncate_to(&mut self, len: u64) -> std::io::Result<()> {
+        self.set_len(len)?;
+        self.seek(SeekFrom::Start(len)).map(|_| ())
+    }
+    fn sync(&mut self) -> std::io::Result<()> {
+        self.sync_data()
+    }
+}
+
+impl LogStore for Vec<u8> {
+    fn truncate_to(&mut self, len: u64) -> std::io::Result<()> {
+        self.truncate(usize::try_from(len).unwrap_or(usize::MAX));
+        Ok(())
+    }
+    fn sync(&mut self) -> std::io::Result<()> {
+        Ok(())
+    }
+}
+
+/// The disk (or the user's quota) holding a log is full: what was handed to
+/// the operating system before is intact.
+#[derive(Debug, thiserror::Error)]
+#[error("the disk holding {} is full", path.display())]
+pub struct DiskFull {
+    /// The log.
+    pub path: PathBuf,
+}
+
+/// An open log being appended to (a file, or any store for tests and tools).
 pub struct LogWriter<W: Write = File> {
-    file: BufWriter<W>,
+    out: W,
     path: PathBuf,
     scratch: Vec<u8>,
+    /// Whole records not handed to the operating system yet.
+    pending: Vec<u8>,
     bytes: u64,
     records: u64,
+    /// Bytes and records handed over whole: the store holds exactly these.
+    kept_bytes: u64,
+    kept_records: u64,
 }
 
 fn explain(err: std::io::Error, path: &Path) -> anyhow::Error {
-    if err.raw_os_error() == Some(28) {
-        anyhow::anyhow!(
-            "the disk holding {} is full: recording stopped. Every record written before this one is intact; free some space and start a new recording",
-            path.display()
-        )
+    use std::io::ErrorKind;
+    if matches!(
+        err.kind(),
+        ErrorKind::StorageFull | ErrorKind::QuotaExceeded
+    ) {
+        anyhow::Error::new(DiskFull {
+            path: path.to_path_buf(),
+        })
     } else {
         anyhow::Error::new(err).context(format!("cannot write to {}", path.display()))
     }
@@ -54,15 +103,32 @@ impl LogWriter<File> {
             })?;
         LogWriter::to_writer(file, path, header)
     }
+}
 
+impl<W: LogStore> LogWriter<W> {
     /// Flushes and forces the data to the disk.
     pub fn sync(&mut self) -> Result<()> {
         self.flush()?;
         let path = self.path.clone();
-        self.file
-            .get_ref()
-            .sync_data()
-            .map_err(|e| explain(e, &path))
+        self.out.sync().map_err(|e| explain(e, &path))
+    }
+
+    /// After a failed write: forgets the records not handed over whole and
+    /// cuts the store back to the last whole record, so the log stays
+    /// readable to its end. Returns the records given up.
+    pub fn roll_back(&mut self) -> Result<u64> {
+        let given_up = self.records.saturating_sub(self.kept_records);
+        self.pending.clear();
+        self.bytes = self.kept_bytes;
+        self.records = self.kept_records;
+        let path = self.path.clone();
+        self.out.truncate_to(self.kept_bytes).with_context(|| {
+            format!(
+                "cannot cut {} back to its last whole record",
+                path.display()
+            )
+        })?;
+        Ok(given_up)
     }
 }
 
@@ -70,14 +136,15 @@ impl<W: Write> LogWriter<W> {
     /// Starts a log on any writer; `path` only names it in messages.
     pub fn to_writer(out: W, path: &Path, header: &LogHeader) -> Result<Self> {
         let mut writer = LogWriter {
-            file: BufWriter::new(out),
+            out,
             path: path.to_path_buf(),
             scratch: Vec::new(),
-            bytes: 0,
+            pending: MAGIC.to_vec(),
+            bytes: MAGIC.len() as u64,
             records: 0,
+            kept_bytes: 0,
+            kept_records: 0,
         };
-        writer.file.write_all(MAGIC).map_err(|e| explain(e, path))?;
-        writer.bytes += MAGIC.len() as u64;
         let json = serde_json::to_vec(header)?;
         writer.append(KIND_HEADER, super::now_us(), &[&json])?;
         writer.flush()?;
@@ -85,10 +152,9 @@ impl<W: Write> LogWriter<W> {
     }
 
     /// The underlying writer, flushed.
-    pub fn into_inner(self) -> Result<W> {
-        self.file
-            .into_inner()
-            .map_err(|e| anyhow::anyhow!("cannot flush the log: {}", e.error()))
+    pub fn into_inner(mut self) -> Result<W> {
+        self.flush().context("cannot flush the log")?;
+        Ok(self.out)
     }
 
     fn append(&mut self, kind: u8, host_time_us: u64, parts: &[&[u8]]) -> Result<()> {
@@ -101,18 +167,14 @@ impl<W: Write> LogWriter<W> {
         let len = self.scratch.len().min(MAX_BODY_LEN);
         self.scratch.truncate(len);
         let crc = frame_crc(&self.scratch);
-        let path = self.path.clone();
-        self.file
-            .write_all(&(len as u32).to_le_bytes())
-            .map_err(|e| explain(e, &path))?;
-        self.file
-            .write_all(&crc.to_le_bytes())
-            .map_err(|e| explain(e, &path))?;
-        self.file
-            .write_all(&self.scratch)
-            .map_err(|e| explain(e, &path))?;
+        self.pending.extend_from_slice(&(len as u32).to_le_bytes());
+        self.pending.extend_from_slice(&crc.to_le_bytes());
+        self.pending.extend_from_slice(&self.scratch);
         self.bytes += 8 + len as u64;
         self.records += 1;
+        if self.pending.len() >= PENDING_LIMIT {
+            self.flush()?;
+        }
         Ok(())
     }
 
@@ -138,7 +200,14 @@ impl<W: Write> LogWriter<W> {
     /// Hands buffered records to the operating system.
     pub fn flush(&mut self) -> Result<()> {
         let path = self.path.clone();
-        self.file.flush().map_err(|e| explain(e, &path))
+        self.out
+            .write_all(&self.pending)
+            .and_then(|()| self.out.flush())
+            .map_err(|e| explain(e, &path))?;
+        self.pending.clear();
+        self.kept_bytes = self.bytes;
+        self.kept_records = self.records;
+        Ok(())
     }
 
     /// The log's path (or name).
