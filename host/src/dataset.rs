@@ -443,37 +443,34 @@ fn record_batch(table: Table, rows: &[(Tracked, u64)], node: &NodeSeen) -> Resul
         Arc::new(host_time),
         int(&|(t, _)| i64::try_from(t.lost_before).unwrap_or(i64::MAX)),
     ];
-    let bodies = rows.iter().map(|(t, _)| &t.message.body);
-    match table {
-        Table::Reports => {
-            let reports: Vec<_> = bodies
-                .filter_map(|b| match b {
-                    UplinkBody::Report(r) => Some(r),
-                    _ => None,
-                })
-                .collect();
-            arrays.extend(column_arrays(&columns::REPORT, &reports));
-        }
-        Table::Events => {
-            let events: Vec<_> = bodies
-                .filter_map(|b| match b {
-                    UplinkBody::Event(e) => Some(e),
-                    _ => None,
-                })
-                .collect();
-            arrays.extend(column_arrays(&columns::EVENT, &events));
-        }
-        Table::Loads => {
-            let loads: Vec<_> = bodies
-                .filter_map(|b| match b {
-                    UplinkBody::Load(e) => Some(e),
-                    _ => None,
-                })
-                .collect();
-            arrays.extend(column_arrays(&columns::LOAD, &loads));
-        }
-    }
+    arrays.extend(match table {
+        Table::Reports => arrays_of(rows, &columns::REPORT, |b| match b {
+            UplinkBody::Report(r) => Some(r),
+            _ => None,
+        }),
+        Table::Events => arrays_of(rows, &columns::EVENT, |b| match b {
+            UplinkBody::Event(e) => Some(e),
+            _ => None,
+        }),
+        Table::Loads => arrays_of(rows, &columns::LOAD, |b| match b {
+            UplinkBody::Load(e) => Some(e),
+            _ => None,
+        }),
+    });
     Ok(RecordBatch::try_new(table.schema(), arrays)?)
+}
+
+/// One Arrow array per column of the messages of `rows` that `pick` takes.
+fn arrays_of<T>(
+    rows: &[(Tracked, u64)],
+    columns: &[Column<T>],
+    pick: fn(&UplinkBody) -> Option<&T>,
+) -> Vec<ArrayRef> {
+    let messages: Vec<&T> = rows
+        .iter()
+        .filter_map(|(t, _)| pick(&t.message.body))
+        .collect();
+    column_arrays(columns, &messages)
 }
 
 /// One Arrow array per column of `messages`.
