@@ -283,12 +283,7 @@ impl Analyzer {
 
     /// Finishes the run.
     pub fn finish(mut self) -> RunReport {
-        if self.boots.is_empty() && self.counts.iter().any(|&c| c > 0) {
-            self.warn(
-                "the log holds no Hello: firmware, node identity, calibration and thresholds are unknown (recording with this gleaner asks the node for one on every connect)"
-                    .to_string(),
-            );
-        }
+        self.final_warnings();
         let end = self.clock.last_t_s;
         let duration_s = (end - self.clock.first_t_s.unwrap_or(end)).max(0.0);
         let outages = std::mem::take(&mut self.outages).finish(end);
@@ -302,15 +297,7 @@ impl Analyzer {
             .config
             .as_ref()
             .map(|hello| self.sizing(hello, longest_s, &energy, duration_s));
-        let jumps: Vec<String> = self.clock.jump_warnings().collect();
-        self.warnings.extend(jumps);
         let link = *self.tracker.stats();
-        if link.likely_wrong_baud() {
-            self.warnings.push(
-                "most frames were damaged: the recording was probably made at the wrong baud rate"
-                    .into(),
-            );
-        }
         let covered = self.states.total_s().max(self.covered_s);
         RunReport {
             schema: REPORT_SCHEMA.into(),
@@ -347,6 +334,25 @@ impl Analyzer {
                 .collect(),
             series: self.series.points().to_vec(),
             warnings: self.warnings,
+        }
+    }
+
+    /// Warnings about the whole log: no Hello, host clock jumps, a likely
+    /// wrong baud rate.
+    fn final_warnings(&mut self) {
+        if self.boots.is_empty() && self.counts.iter().any(|&c| c > 0) {
+            self.warn(
+                "the log holds no Hello: firmware, node identity, calibration and thresholds are unknown (recording with this gleaner asks the node for one on every connect)"
+                    .to_string(),
+            );
+        }
+        let jumps: Vec<String> = self.clock.jump_warnings().collect();
+        self.warnings.extend(jumps);
+        if self.tracker.stats().likely_wrong_baud() {
+            self.warnings.push(
+                "most frames were damaged: the recording was probably made at the wrong baud rate"
+                    .into(),
+            );
         }
     }
 }

@@ -7,7 +7,7 @@ use gleaner_protocol::ConverterState;
 use plotters::prelude::*;
 
 use crate::analysis::series::Point;
-use crate::analysis::RunReport;
+use crate::analysis::{EfficiencyBin, RunReport};
 
 /// What a plot function returns: the SVG, or why it could not be drawn.
 pub type Drawn = Result<String, Box<dyn std::error::Error>>;
@@ -216,18 +216,12 @@ pub fn daily_budget(r: &RunReport, title: &str) -> Drawn {
 /// Efficiency (line, left axis) and hours spent converting (bars, right
 /// axis) in each input-voltage bin.
 pub fn efficiency_by_input(r: &RunReport, title: &str) -> Drawn {
-    let bins: Vec<_> = r
-        .efficiency_by_input
-        .iter()
-        .filter(|b| b.seconds > 0.0)
-        .collect();
-    let (x0, x1) = range(bins.iter().flat_map(|b| [b.input_v_low, b.input_v_high]));
-    let most_hours = bins
-        .iter()
-        .map(|b| b.seconds / 3600.0)
-        .fold(0.0f64, f64::max)
-        .max(1e-6)
-        * 1.1;
+    let EfficiencyPlot {
+        bins,
+        x: (x0, x1),
+        most_hours,
+        points,
+    } = EfficiencyPlot::of(r);
     let mut svg = String::new();
     {
         let root = SVGBackend::with_string(&mut svg, (WIDTH, HEIGHT)).into_drawing_area();
@@ -263,13 +257,6 @@ pub fn efficiency_by_input(r: &RunReport, title: &str) -> Drawn {
                     RGBColor(180, 180, 180).filled(),
                 )
             });
-        let points: Vec<(f64, f64)> = bins
-            .iter()
-            .filter_map(|b| {
-                b.efficiency
-                    .map(|e| ((b.input_v_low + b.input_v_high) / 2.0, e * 100.0))
-            })
-            .collect();
         chart
             .draw_series(LineSeries::new(
                 points.iter().copied(),
@@ -290,4 +277,44 @@ pub fn efficiency_by_input(r: &RunReport, title: &str) -> Drawn {
         root.present()?;
     }
     Ok(svg)
+}
+
+/// What the efficiency plot draws: the bins with time in them, the voltage
+/// range, the hours' axis top, and (middle of the bin, V; efficiency, %) of
+/// the bins with an efficiency.
+struct EfficiencyPlot<'a> {
+    bins: Vec<&'a EfficiencyBin>,
+    x: (f64, f64),
+    most_hours: f64,
+    points: Vec<(f64, f64)>,
+}
+
+impl<'a> EfficiencyPlot<'a> {
+    fn of(r: &'a RunReport) -> Self {
+        let bins: Vec<_> = r
+            .efficiency_by_input
+            .iter()
+            .filter(|b| b.seconds > 0.0)
+            .collect();
+        let x = range(bins.iter().flat_map(|b| [b.input_v_low, b.input_v_high]));
+        let most_hours = bins
+            .iter()
+            .map(|b| b.seconds / 3600.0)
+            .fold(0.0f64, f64::max)
+            .max(1e-6)
+            * 1.1;
+        let points = bins
+            .iter()
+            .filter_map(|b| {
+                b.efficiency
+                    .map(|e| ((b.input_v_low + b.input_v_high) / 2.0, e * 100.0))
+            })
+            .collect();
+        EfficiencyPlot {
+            bins,
+            x,
+            most_hours,
+            points,
+        }
+    }
 }
