@@ -44,6 +44,12 @@ pub struct PortStatus {
     pub gaps: u64,
     /// Node reboots seen.
     pub reboots: u64,
+    /// The disk is full: frames are read but not written.
+    #[serde(default)]
+    pub disk_full: bool,
+    /// Frames received but not written because the disk was full.
+    #[serde(default)]
+    pub frames_not_written: u64,
 }
 
 /// The status file: every port recorded.
@@ -157,6 +163,23 @@ impl PortObserver for Reporting<'_> {
     fn outgoing(&mut self) -> Option<Vec<u8>> {
         self.inner.outgoing()
     }
+
+    fn disk_full(&mut self, full: bool, frames_not_written: u64) {
+        self.board.update(&self.port, |s| {
+            s.disk_full = full;
+            s.frames_not_written = frames_not_written;
+        });
+        self.inner.disk_full(full, frames_not_written);
+    }
+}
+
+/// What a full disk did to a port's recording, in words (nothing when it never filled).
+fn disk_words(s: &PortStatus) -> String {
+    match (s.disk_full, s.frames_not_written) {
+        (true, n) => format!(", DISK FULL: paused, {n} frames not written"),
+        (false, 0) => String::new(),
+        (false, n) => format!(", {n} frames not written while the disk was full"),
+    }
 }
 
 /// Reads `DIR/status.json` and says, one line per port, what each is doing.
@@ -171,7 +194,7 @@ pub fn describe(dir: &Path, now_us: u64) -> Result<String> {
     let mut out = format!("status written {} ago\n", ago(status.written_us));
     for (port, s) in &status.ports {
         out.push_str(&format!(
-            "{port}: {}, node {}, {}, last frame {}, frames {}, lost {}, damaged {}, gaps {}, reboots {}; log {}\n",
+            "{port}: {}, node {}, {}, last frame {}, frames {}, lost {}, damaged {}, gaps {}, reboots {}{}; log {}\n",
             if s.connected { "connected" } else { "not connected" },
             s.node_id.as_deref().unwrap_or("not identified yet"),
             s.state.as_deref().unwrap_or("no report yet"),
@@ -181,6 +204,7 @@ pub fn describe(dir: &Path, now_us: u64) -> Result<String> {
             s.damaged_frames,
             s.gaps,
             s.reboots,
+            disk_words(s),
             s.log.display()
         ));
     }
@@ -206,7 +230,17 @@ mod tests {
         });
         board.write(dir.path()).unwrap();
         let text = describe(dir.path(), 61_000_000).unwrap();
-        assert!(text.contains("/dev/ttyACM0: connected, node 5157000000000001, harvesting, last frame 00:01:00 ago, frames 42, lost 0, damaged 0, gaps 1"), "{text}");
+        assert!(text.contains("/dev/ttyACM0: connected, node 5157000000000001, harvesting, last frame 00:01:00 ago, frames 42, lost 0, damaged 0, gaps 1, reboots 0; log"), "{text}");
+        board.update("/dev/ttyACM0", |s| {
+            s.disk_full = true;
+            s.frames_not_written = 17;
+        });
+        board.write(dir.path()).unwrap();
+        let text = describe(dir.path(), 61_000_000).unwrap();
+        assert!(
+            text.contains("reboots 0, DISK FULL: paused, 17 frames not written; log"),
+            "{text}"
+        );
         let err = describe(&dir.path().join("none"), 0).unwrap_err();
         assert!(
             format!("{err:#}").contains("no recording status"),

@@ -312,6 +312,9 @@ pub trait PortObserver {
     fn next_log(&mut self) -> Option<std::path::PathBuf> {
         None
     }
+    /// The disk filled (`full`) or has room again; frames received and not
+    /// written so far.
+    fn disk_full(&mut self, _full: bool, _frames_not_written: u64) {}
 }
 
 /// Request id of the `Hello` asked for on every connect (the node echoes it).
@@ -348,6 +351,7 @@ pub fn run_port(
     }
     let mut buf = [0u8; 4096];
     let mut last_data = Instant::now();
+    let mut was_full = false;
     while !stop.load(Ordering::Relaxed) {
         match link.as_mut() {
             Some(p) => match p.read(&mut buf) {
@@ -402,6 +406,10 @@ pub fn run_port(
             if let Some(p) = link.as_mut() {
                 ask_for_hello(p, recorder)?;
             }
+        }
+        if recorder.is_paused() != was_full {
+            was_full = recorder.is_paused();
+            observer.disk_full(was_full, recorder.frames_not_written());
         }
         if observer.tick(recorder.stats(), last_data.elapsed()) {
             break;

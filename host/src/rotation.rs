@@ -116,6 +116,10 @@ impl PortObserver for Rotating<'_> {
         self.inner.outgoing()
     }
 
+    fn disk_full(&mut self, full: bool, frames_not_written: u64) {
+        self.inner.disk_full(full, frames_not_written);
+    }
+
     fn next_log(&mut self) -> Option<PathBuf> {
         // Called after every read: the date is looked at once a second, and
         // only when rotating daily.

@@ -253,6 +253,10 @@ impl PortObserver for Streamed<'_> {
     fn outgoing(&mut self) -> Option<Vec<u8>> {
         self.inner.outgoing()
     }
+
+    fn disk_full(&mut self, full: bool, frames_not_written: u64) {
+        self.inner.disk_full(full, frames_not_written);
+    }
 }
 
 #[cfg(test)]

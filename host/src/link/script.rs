@@ -152,4 +152,7 @@ impl PortObserver for Scripted<'_> {
     fn outgoing(&mut self) -> Option<Vec<u8>> {
         self.script.outgoing().or_else(|| self.inner.outgoing())
     }
+    fn disk_full(&mut self, full: bool, frames_not_written: u64) {
+        self.inner.disk_full(full, frames_not_written);
+    }
 }
