@@ -488,6 +488,17 @@ fn exit_codes_tell_the_failures_apart() {
     // Usage (clap's own and ours), a missing port, a bad input file.
     assert_eq!(exit_code(&["report", "--no-such-flag"]), Some(2));
     assert_eq!(exit_code(&["record", "--duration", "1s"]), Some(2));
+    // Old logs are removed only when a new one starts, and never all of them.
+    let said = gleaner()
+        .args(["record", "--keep-days", "30", "/dev/gleaner-no-such-port"])
+        .output()
+        .unwrap();
+    assert_eq!(said.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&said.stderr).contains("--rotate daily"));
+    assert_eq!(
+        exit_code(&["record", "--rotate", "daily", "--keep-days", "0", "x"]),
+        Some(2)
+    );
     assert_eq!(
         exit_code(&["node", "-p", "/dev/gleaner-no-such-port", "ping"]),
         Some(3)

@@ -67,6 +67,11 @@ pub struct Cmd {
     /// note naming the next.
     #[arg(long, value_enum, default_value = "never", hide_possible_values = true)]
     pub rotate: Every,
+    /// With --rotate daily: at each new log, remove this port's logs in the
+    /// same folder last written more than this many days ago (other files
+    /// are never touched).
+    #[arg(long, value_name = "DAYS", value_parser = clap::value_parser!(u32).range(1..))]
+    pub keep_days: Option<u32>,
     /// Instead of recording, say what a running several-port recording in
     /// --dir is doing (from its status.json): each port's node, state, last
     /// frame, frames lost and damaged, gaps and log.
@@ -77,6 +82,12 @@ pub struct Cmd {
 impl Cmd {
     /// Runs the command.
     pub fn run(self) -> Result<()> {
+        if self.keep_days.is_some() && self.rotate != Every::Daily {
+            return Err(anyhow::anyhow!(
+                "--keep-days removes old logs when a new one starts: give --rotate daily too"
+            ))
+            .failed_as(crate::failure::Failure::Usage);
+        }
         if self.status {
             let config = crate::user_config::UserConfig::load()?;
             let dir = config.runs_dir(self.dir.clone());
@@ -151,7 +162,11 @@ impl Cmd {
         let mut scripted = Scripted::new(script, inner);
         let (dir, name) = log_place(path);
         let status = board.map(|b| (b, port.clone()));
-        let mut rotating = Rotating::new(&mut scripted, self.rotate, reopen, dir, name, status);
+        let keep = self
+            .keep_days
+            .map(|d| Duration::from_secs(u64::from(d) * 86_400));
+        let mut rotating = Rotating::new(&mut scripted, self.rotate, reopen, dir, name, status)
+            .keeping(path, keep);
         let result = run_port(&mut recorder, &port, reach.baud, stop, &mut rotating);
         print_outcomes(&scripted.script);
         let finished = recorder.finish();
