@@ -309,7 +309,7 @@ mod tests {
             (7_389_056, 1_000_000),
             (1 << 40, 3),
         ] {
-            let got = ln_ratio_q30(num, den).unwrap() as f64 / (1u64 << 30) as f64;
+            let got = ln_ratio_q30(num, den).map_or(f64::NAN, |l| l as f64 / (1u64 << 30) as f64);
             let want = (num as f64 / den as f64).ln();
             assert!((got - want).abs() < 2e-6, "{num}/{den}: {got} vs {want}");
         }
@@ -368,13 +368,11 @@ mod tests {
         // 1 F from 3 V to 2 V, 1 mA load, 1 mW harvest: by hand
         // C [(V - Vmin) / I + P / I² ln((I V - P) / (I Vmin - P))]
         // = 1000 s + 1000 s ln 2 = 1693.147 s; stepping the equation agrees.
-        let got = drain_time_ms(1_000_000, 3_000_000, 2_000_000, 1_000_000, 1_000_000).unwrap();
-        assert!((got as f64 - 1_693_147.2).abs() < 2.0, "{got}");
+        let got = drain_time_ms(1_000_000, 3_000_000, 2_000_000, 1_000_000, 1_000_000)
+            .map_or(f64::NAN, |ms| ms as f64);
+        assert!((got - 1_693_147.2).abs() < 2.0, "{got}");
         let stepped = integrated_s(1.0, 3.0, 2.0, 1e-3, 1e-3);
-        assert!(
-            (got as f64 / 1e3 - stepped).abs() < 0.01,
-            "{got} vs {stepped}"
-        );
+        assert!((got / 1e3 - stepped).abs() < 0.01, "{got} vs {stepped}");
         // The net drain at 3 V alone (2 mW of the 3 J above 2 V at constant
         // current, C V (V - Vmin) = 3 J) would say 1500 s: 11 % short.
         // A harvest that meets the load at the minimum holds it there.
@@ -422,8 +420,8 @@ mod tests {
             input_cutoff_in_ms: Some(600_000),
             ..charging
         };
-        let got = brownout_ms(&sunset).unwrap();
-        assert!((i64::from(got) - 2_465_862).abs() <= 1, "{got}");
+        let got = brownout_ms(&sunset).map_or(-1, i64::from);
+        assert!((got - 2_465_862).abs() <= 1, "{got}");
         // Draining so fast (20 mW short) that storage is gone before a cutoff
         // in 2000 s: the harvest counts to the end, by the closed form.
         let heavier = DrainOutlook {
