@@ -50,13 +50,6 @@ impl<T> Clone for Column<T> {
 
 impl<T> Copy for Column<T> {}
 
-impl<T> Column<T> {
-    /// True when the column may be missing from a row.
-    pub fn nullable(&self) -> bool {
-        self.kind == Kind::MaybeInt
-    }
-}
-
 fn int(v: impl Into<i64>) -> Cell {
     Cell::Int(v.into())
 }
