@@ -11,7 +11,7 @@ use anyhow::{Context, Result};
 use gleaner_protocol::UplinkBody;
 
 use crate::columns;
-use crate::files::{open_input, AtomicFile, Input};
+use crate::files::{AtomicFile, Input};
 use crate::link::LinkTracker;
 use crate::log::{LogReader, RecordBody};
 use indicatif::ProgressBar;
@@ -70,7 +70,7 @@ fn refuse_non_log<R: std::io::Read>(reader: &LogReader<R>, name: &str) -> Result
 /// (`-`: standard input), advancing `progress` by the bytes read; each file
 /// appears only once complete.
 pub fn export_csv(log: &Path, prefix: &Path, progress: &ProgressBar) -> Result<Exported> {
-    let input = open_input(log, "log")?;
+    let input = crate::files::open_log(log)?;
     let reports_path = suffixed(prefix, "-reports.csv");
     let events_path = suffixed(prefix, "-events.csv");
     let mut reports_out = std::io::BufWriter::new(AtomicFile::create(&reports_path)?);

@@ -61,6 +61,47 @@ pub fn open_input(path: &Path, what: &str) -> Result<Input> {
     })
 }
 
+/// The first bytes of a gzip stream (RFC 1952, section 2.3.1).
+const GZIP_MAGIC: [u8; 2] = [0x1f, 0x8b];
+
+/// True when `file` holds a gzip stream (a log `record --compress` closed);
+/// leaves the file read from its start.
+pub fn is_gzip(file: &mut std::fs::File) -> std::io::Result<bool> {
+    use std::io::Seek;
+    let mut magic = [0u8; 2];
+    let mut got = 0;
+    while got < magic.len() {
+        match file.read(&mut magic[got..])? {
+            0 => break,
+            n => got += n,
+        }
+    }
+    file.seek(std::io::SeekFrom::Start(0))?;
+    Ok(got == magic.len() && magic == GZIP_MAGIC)
+}
+
+/// Opens a log (`-`: standard input) to read; one that `record --compress`
+/// gzipped is read through a decompressor, so callers see the log's bytes.
+pub fn open_log(path: &Path) -> Result<Input> {
+    let input = open_input(path, "log")?;
+    let mut reader = std::io::BufReader::new(input.reader);
+    let gzip = std::io::BufRead::fill_buf(&mut reader)
+        .with_context(|| format!("cannot read {}", input.name))
+        .failed_as(Failure::BadInput)?
+        .starts_with(&GZIP_MAGIC);
+    if gzip {
+        return Ok(Input {
+            reader: Box::new(flate2::bufread::MultiGzDecoder::new(reader)),
+            size: None, // the log's own size is not known before the end
+            name: input.name,
+        });
+    }
+    Ok(Input {
+        reader: Box::new(reader),
+        ..input
+    })
+}
+
 /// A file that appears under its name only once it is complete: written to
 /// a temporary file beside it and renamed over it by [`AtomicFile::commit`].
 /// Dropped without a commit (an error, a killed command), it leaves nothing
@@ -91,6 +132,14 @@ impl AtomicFile {
             temp,
             path: path.to_owned(),
         })
+    }
+
+    /// Sets the time the file was last written (kept by the rename).
+    pub fn set_modified(&self, time: std::time::SystemTime) -> Result<()> {
+        self.temp
+            .as_file()
+            .set_modified(time)
+            .with_context(|| format!("cannot write {}", self.path.display()))
     }
 
     /// Flushes to disk and gives the file its name.

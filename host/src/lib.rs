@@ -55,5 +55,6 @@ pub mod rotation;
 pub mod settings;
 pub mod sim;
 pub mod stream;
+pub mod upkeep;
 pub mod user_config;
 pub mod view;

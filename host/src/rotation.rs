@@ -11,11 +11,10 @@ use std::time::{Duration, Instant};
 /// How often a daily rotation looks at the date.
 const DAY_CHECK: Duration = Duration::from_secs(1);
 
-use anyhow::{Context, Result};
-
 use crate::link::{LinkStats, Tracked};
 use crate::record_status::StatusBoard;
 use crate::recorder::PortObserver;
+use crate::upkeep::Upkeep;
 
 /// How often a recording starts a new log by itself.
 #[derive(Debug, Clone, Copy, Default, PartialEq, Eq, clap::ValueEnum)]
@@ -72,9 +71,11 @@ pub struct Rotating<'a> {
     status: Option<(&'a StatusBoard, String)>,
     /// The log being written now.
     current: PathBuf,
-    /// Logs of this port last written longer ago than this are removed at
-    /// each rotation.
-    keep: Option<Duration>,
+    /// The log just left, complete once the recorder has written its last
+    /// note (by the next call).
+    closing: Option<PathBuf>,
+    /// What becomes of closed logs.
+    upkeep: Upkeep,
 }
 
 impl<'a> Rotating<'a> {
@@ -98,66 +99,18 @@ impl<'a> Rotating<'a> {
             name,
             status,
             current: PathBuf::new(),
-            keep: None,
+            closing: None,
+            upkeep: Upkeep::none(),
         }
     }
 
-    /// Writing `current` now; at each rotation, removes this port's logs
-    /// last written more than `keep` ago.
-    pub fn keeping(mut self, current: &Path, keep: Option<Duration>) -> Self {
+    /// Writing `current` now; closed logs are handed to `upkeep`.
+    pub fn keeping(mut self, current: &Path, upkeep: Upkeep) -> Self {
+        upkeep.opened(current);
         self.current = current.to_path_buf();
-        self.keep = keep;
+        self.upkeep = upkeep;
         self
     }
-}
-
-/// True for a file name `new_log_path` gives a log of `name`:
-/// `NAME-YYYYMMDDHHMMSS.gleanlog`, perhaps with `-N` before the extension.
-fn is_log_of(file: &str, name: &str) -> bool {
-    let Some(rest) = file
-        .strip_prefix(name)
-        .and_then(|r| r.strip_prefix('-'))
-        .and_then(|r| r.strip_suffix(".gleanlog"))
-    else {
-        return false;
-    };
-    let (stamp, n) = rest.split_once('-').unwrap_or((rest, "1"));
-    stamp.len() == 14
-        && stamp.bytes().all(|b| b.is_ascii_digit())
-        && !n.is_empty()
-        && n.bytes().all(|b| b.is_ascii_digit())
-}
-
-/// Removes the logs of `name` in `dir` last written more than `keep` ago,
-/// except `current`; returns what it removed. Other files, and other
-/// ports' logs, are never touched.
-pub fn remove_old_logs(
-    dir: &Path,
-    name: &str,
-    keep: Duration,
-    current: &Path,
-) -> Result<Vec<PathBuf>> {
-    let now = std::time::SystemTime::now();
-    let mut removed = Vec::new();
-    for entry in std::fs::read_dir(dir).with_context(|| format!("cannot list {}", dir.display()))? {
-        let entry = entry?;
-        let path = entry.path();
-        let file = entry.file_name();
-        let old = entry
-            .metadata()
-            .and_then(|m| m.modified())
-            .ok()
-            .and_then(|t| now.duration_since(t).ok())
-            .is_some_and(|age| age > keep);
-        let ours = file.to_str().is_some_and(|f| is_log_of(f, name));
-        if ours && old && path.file_name() != current.file_name() {
-            std::fs::remove_file(&path)
-                .with_context(|| format!("cannot remove {}", path.display()))?;
-            removed.push(path);
-        }
-    }
-    removed.sort();
-    Ok(removed)
 }
 
 /// Today's UTC date.
@@ -189,6 +142,9 @@ impl PortObserver for Rotating<'_> {
     fn next_log(&mut self) -> Option<PathBuf> {
         // Called after every read: the date is looked at once a second, and
         // only when rotating daily.
+        if let Some(closed) = self.closing.take() {
+            self.upkeep.closed(&closed);
+        }
         let generation = self.reopen.generation();
         let mut new_day = None;
         if self.every == Every::Daily && self.day_checked.elapsed() >= DAY_CHECK {
@@ -206,54 +162,8 @@ impl PortObserver for Rotating<'_> {
         if let Some((board, port)) = &self.status {
             board.update(port, |s| s.log = path.clone());
         }
-        if let Some(keep) = self.keep {
-            match remove_old_logs(&self.dir, &self.name, keep, &self.current) {
-                Ok(removed) => {
-                    for old in removed {
-                        eprintln!("removed {} (older than --keep-days)", old.display());
-                    }
-                }
-                Err(e) => eprintln!("warning: old logs not removed: {e:#}"),
-            }
-        }
-        self.current = path.clone();
+        self.upkeep.opened(&path);
+        self.closing = Some(std::mem::replace(&mut self.current, path.clone()));
         Some(path)
-    }
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn only_this_ports_old_logs_go() {
-        let dir = tempfile::tempdir().unwrap();
-        let week_ago = std::time::SystemTime::now() - Duration::from_secs(7 * 86_400);
-        let make = |name: &str, old: bool| {
-            let path = dir.path().join(name);
-            let file = std::fs::File::create(&path).unwrap();
-            if old {
-                file.set_modified(week_ago).unwrap();
-            }
-            path
-        };
-        // In the order they are returned (sorted by path).
-        let gone = [
-            make("ttyACM0-20261101000000-2.gleanlog", true),
-            make("ttyACM0-20261101000000.gleanlog", true),
-        ];
-        let kept = [
-            make("ttyACM0-20261202000000.gleanlog", false),
-            make("ttyACM0-20261102000000.gleanlog", true), // being written
-            make("ttyACM1-20261101000000.gleanlog", true), // another port
-            make("ttyACM0-notes.gleanlog", true),          // not a name we give
-            make("ttyACM0-20261101000000.gleanlog.bak", true),
-            make("readme.txt", true),
-        ];
-        let removed =
-            remove_old_logs(dir.path(), "ttyACM0", Duration::from_secs(86_400), &kept[1]).unwrap();
-        assert_eq!(removed, gone.to_vec());
-        assert!(gone.iter().all(|p| !p.exists()));
-        assert!(kept.iter().all(|p| p.exists()));
     }
 }

@@ -488,17 +488,9 @@ fn exit_codes_tell_the_failures_apart() {
     // Usage (clap's own and ours), a missing port, a bad input file.
     assert_eq!(exit_code(&["report", "--no-such-flag"]), Some(2));
     assert_eq!(exit_code(&["record", "--duration", "1s"]), Some(2));
-    // Old logs are removed only when a new one starts, and never all of them.
-    let said = gleaner()
-        .args(["record", "--keep-days", "30", "/dev/gleaner-no-such-port"])
-        .output()
-        .unwrap();
-    assert_eq!(said.status.code(), Some(2));
-    assert!(String::from_utf8_lossy(&said.stderr).contains("--rotate daily"));
-    assert_eq!(
-        exit_code(&["record", "--rotate", "daily", "--keep-days", "0", "x"]),
-        Some(2)
-    );
+    // Closed logs are kept a day at least, and a free-space floor is above 0.
+    assert_eq!(exit_code(&["record", "--keep-days", "0", "x"]), Some(2));
+    assert_eq!(exit_code(&["record", "--free-floor-mb", "0", "x"]), Some(2));
     assert_eq!(
         exit_code(&["node", "-p", "/dev/gleaner-no-such-port", "ping"]),
         Some(3)
@@ -1302,6 +1294,97 @@ fn wait_for(what: &str, mut ready: impl FnMut() -> bool) {
         );
         std::thread::sleep(std::time::Duration::from_millis(50));
     }
+}
+
+#[test]
+fn a_compressed_rotated_recording_reads_and_replays_as_one_run() {
+    let node = Served::start("greenhouse-day");
+    let dir = tempfile::tempdir().unwrap();
+    let mut recorder = gleaner()
+        .args([
+            "record",
+            "--compress",
+            "--dir",
+            dir.path().to_str().unwrap(),
+        ])
+        .args(["--status-every", "0", &node.path])
+        .stderr(std::process::Stdio::null())
+        .spawn()
+        .unwrap();
+    let files = || -> Vec<std::path::PathBuf> {
+        let mut found: Vec<_> = std::fs::read_dir(dir.path())
+            .unwrap()
+            .flatten()
+            .map(|e| e.path())
+            .filter(|p| !p.to_string_lossy().ends_with(".json"))
+            .collect();
+        found.sort();
+        found
+    };
+    let size = |p: &std::path::Path| std::fs::metadata(p).map_or(0, |m| m.len());
+    wait_for("the first log to hold frames", || {
+        files().first().is_some_and(|p| size(p) > 2_000)
+    });
+    let hup = Command::new("kill")
+        .args(["-HUP", &recorder.id().to_string()])
+        .status()
+        .unwrap();
+    assert!(hup.success());
+    // The first log, closed, is gzipped; the one being written is not.
+    wait_for(
+        "the closed log compressed and the new one holding frames",
+        || {
+            let f = files();
+            f.len() == 2
+                && f[0].to_string_lossy().ends_with(".gleanlog.gz")
+                && f[1].to_string_lossy().ends_with(".gleanlog")
+                && size(&f[1]) > 2_000
+        },
+    );
+    let term = Command::new("kill")
+        .args(["-TERM", &recorder.id().to_string()])
+        .status()
+        .unwrap();
+    assert!(term.success() && recorder.wait().unwrap().success());
+    let (gz, plain) = (files()[0].clone(), files()[1].clone());
+    let (gz_arg, plain_arg) = (gz.to_str().unwrap(), plain.to_str().unwrap());
+    // The report reads the gzipped log as it is, and the set as one run.
+    let frames = |p: &std::path::Path| gleaner::analysis::analyze_file(p).unwrap().link.frames;
+    assert!(frames(&gz) > 10);
+    let (ok, said, err) = run(&["report", "--one-run", "--json", gz_arg, plain_arg]);
+    assert!(ok, "{err}");
+    let one: serde_json::Value = serde_json::from_str(&said).unwrap();
+    assert_eq!(
+        one["link"]["frames"].as_u64(),
+        Some(frames(&gz) + frames(&plain))
+    );
+    assert_eq!(one["link"]["lost_frames"].as_u64(), Some(0));
+    // The replay plays both, one link throughout: every report, none lost.
+    let (ok, said, err) = run(&["watch", "--json-lines", "--replay", gz_arg, plain_arg]);
+    assert!(ok, "{err}");
+    let lines: Vec<serde_json::Value> = said
+        .lines()
+        .map(|l| serde_json::from_str(l).unwrap())
+        .collect();
+    let reports = lines.iter().filter(|l| l["kind"] == "report").count() as u64;
+    assert_eq!(Some(reports), one["message_counts"]["report"].as_u64());
+    assert!(lines
+        .iter()
+        .all(|l| l["lost_before"].as_u64().unwrap_or(0) == 0));
+    assert!(lines.iter().all(|l| l["boot"].as_u64().unwrap_or(0) == 0));
+    // The CSV export reads the gzipped log too, the same as its plain bytes.
+    let unzipped = dir.path().join("unzipped.gleanlog");
+    let mut bytes = Vec::new();
+    std::io::Read::read_to_end(
+        &mut flate2::read::GzDecoder::new(std::fs::File::open(&gz).unwrap()),
+        &mut bytes,
+    )
+    .unwrap();
+    std::fs::write(&unzipped, bytes).unwrap();
+    let csv = |log: &str| run(&["export", log, "--prefix", "-"]);
+    let (from_gz, from_plain) = (csv(gz_arg), csv(unzipped.to_str().unwrap()));
+    assert!(from_gz.0 && from_plain.0, "{}{}", from_gz.2, from_plain.2);
+    assert_eq!(from_gz.1, from_plain.1);
 }
 
 #[test]

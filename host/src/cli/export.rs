@@ -7,7 +7,7 @@ use clap::Args;
 
 use crate::export::{export_csv, write_csv};
 use crate::failure::{FailedAs, Failure};
-use crate::files::{is_stdio, open_input};
+use crate::files::is_stdio;
 
 /// Export a recorded run as CSV (default) or Parquet: one row per report
 /// (units in the column names) and the state transitions in a second file;
@@ -104,7 +104,7 @@ impl Cmd {
             )
             .failed_as(Failure::Usage));
         }
-        let input = open_input(log, "log")?;
+        let input = crate::files::open_log(log)?;
         let stdout = std::io::stdout();
         let mut out = std::io::BufWriter::new(stdout.lock());
         let mut sink = std::io::sink();

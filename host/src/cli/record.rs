@@ -18,6 +18,7 @@ use crate::record_status::{Reporting, StatusBoard};
 use crate::recorder::{run_port, Recorder};
 use crate::rotation::{Every, Reopen, Rotating};
 use crate::settings::NodeSettings;
+use crate::upkeep::{Policy, Upkeep, BYTES_PER_MB};
 use crate::view::observer::{Display, LiveObserver};
 
 /// Record a node to a log file: reconnects when the port disappears and comes
@@ -67,11 +68,19 @@ pub struct Cmd {
     /// note naming the next.
     #[arg(long, value_enum, default_value = "never", hide_possible_values = true)]
     pub rotate: Every,
-    /// With --rotate daily: at each new log, remove this port's logs in the
-    /// same folder last written more than this many days ago (other files
-    /// are never touched).
+    /// Remove these ports' closed logs in the folder (from this recording or
+    /// an earlier one; never a log being written) last written more than
+    /// this many days ago. Other files are never touched.
     #[arg(long, value_name = "DAYS", value_parser = clap::value_parser!(u32).range(1..))]
     pub keep_days: Option<u32>,
+    /// Gzip each closed log (NAME-....gleanlog.gz); `report`, `export` and
+    /// `watch --replay` read them as they are.
+    #[arg(long)]
+    pub compress: bool,
+    /// While the folder's disk has less free space than this (megabytes),
+    /// remove the oldest closed logs of these ports.
+    #[arg(long, value_name = "MB", value_parser = clap::value_parser!(u64).range(1..))]
+    pub free_floor_mb: Option<u64>,
     /// Instead of recording, say what a running several-port recording in
     /// --dir is doing (from its status.json): each port's node, state, last
     /// frame, frames lost and damaged, gaps and log.
@@ -82,12 +91,6 @@ pub struct Cmd {
 impl Cmd {
     /// Runs the command.
     pub fn run(self) -> Result<()> {
-        if self.keep_days.is_some() && self.rotate != Every::Daily {
-            return Err(anyhow::anyhow!(
-                "--keep-days removes old logs when a new one starts: give --rotate daily too"
-            ))
-            .failed_as(crate::failure::Failure::Usage);
-        }
         if self.status {
             let config = crate::user_config::UserConfig::load()?;
             let dir = config.runs_dir(self.dir.clone());
@@ -113,7 +116,11 @@ impl Cmd {
         };
         let stop = super::stop_flag()?;
         let reopen = Reopen::on_sighup()?;
-        let stats = self.record_port(&reach, &path, &stop, None, &reopen)?;
+        let (dir, _) = log_place(&path);
+        let stats = std::thread::scope(|scope| {
+            let upkeep = Upkeep::start(scope, dir, self.upkeep_policy());
+            self.record_port(&reach, &path, &stop, None, &reopen, upkeep)
+        })?;
         let _ = std::io::stderr().flush();
         eprintln!("stopped: {}; log {}", summary(&stats), path.display());
         Ok(())
@@ -129,6 +136,7 @@ impl Cmd {
         stop: &AtomicBool,
         board: Option<&StatusBoard>,
         reopen: &Reopen,
+        upkeep: Upkeep,
     ) -> Result<LinkStats> {
         let port = reach.port.clone();
         let tag = board.map(|_| reach.port.as_str());
@@ -162,11 +170,8 @@ impl Cmd {
         let mut scripted = Scripted::new(script, inner);
         let (dir, name) = log_place(path);
         let status = board.map(|b| (b, port.clone()));
-        let keep = self
-            .keep_days
-            .map(|d| Duration::from_secs(u64::from(d) * 86_400));
         let mut rotating = Rotating::new(&mut scripted, self.rotate, reopen, dir, name, status)
-            .keeping(path, keep);
+            .keeping(path, upkeep);
         let result = run_port(&mut recorder, &port, reach.baud, stop, &mut rotating);
         print_outcomes(&scripted.script);
         let finished = recorder.finish();
@@ -209,6 +214,17 @@ impl Cmd {
         }
     }
 
+    /// What becomes of closed logs: --compress, --keep-days, --free-floor-mb.
+    fn upkeep_policy(&self) -> Policy {
+        Policy {
+            compress: self.compress,
+            keep_for: self
+                .keep_days
+                .map(|d| Duration::from_secs(u64::from(d) * SECONDS_PER_DAY)),
+            free_floor_bytes: self.free_floor_mb.map(|mb| mb.saturating_mul(BYTES_PER_MB)),
+        }
+    }
+
     /// The commands to send once connected: --ping, --set-config.
     fn steps(&self) -> Result<Vec<Step>> {
         let mut steps = Vec::new();
@@ -241,6 +257,7 @@ impl Cmd {
         let board = StatusBoard::default();
         let reopen = Reopen::on_sighup()?;
         std::thread::scope(|scope| -> Result<()> {
+            let upkeep = Upkeep::start(scope, dir.clone(), self.upkeep_policy());
             loop {
                 for port in self.present_ports(&config) {
                     if !recording.insert(port.clone()) {
@@ -252,8 +269,10 @@ impl Cmd {
                         baud: config.baud(self.link.baud),
                     };
                     let (stop, done, board, reopen) = (&stop, &done, &board, &*reopen);
+                    let upkeep = upkeep.clone();
                     scope.spawn(move || {
-                        let outcome = self.record_port(&reach, &path, stop, Some(board), reopen);
+                        let outcome =
+                            self.record_port(&reach, &path, stop, Some(board), reopen, upkeep);
                         board.update(&reach.port, |s| s.connected = false);
                         if let Ok(mut all) = done.lock() {
                             all.push((reach.port, path, outcome));
@@ -328,6 +347,9 @@ fn write_status(board: &StatusBoard, dir: &std::path::Path) {
         eprintln!("could not write the recording status: {e:#}");
     }
 }
+
+/// Seconds in the day of `--keep-days`.
+const SECONDS_PER_DAY: u64 = 86_400;
 
 /// How often several-port recording looks for new ports.
 pub const RESCAN: Duration = Duration::from_secs(2);

@@ -26,9 +26,10 @@ pub struct Cmd {
     /// The port and line rate.
     #[command(flatten)]
     pub link: super::PortArgs,
-    /// Replay a recorded log instead of a port (`-`: standard input).
-    #[arg(long, conflicts_with = "port_arg")]
-    pub replay: Option<PathBuf>,
+    /// Replay a recorded log instead of a port (`-`: standard input); several
+    /// (a rotated recording, gzipped or not) play in the order given as one run.
+    #[arg(long, value_name = "LOG", num_args = 1.., conflicts_with = "port_arg")]
+    pub replay: Vec<PathBuf>,
     /// Replay speed: this many times faster than the node's own clock ran (a
     /// simulated day recorded in seconds still takes a day / speed; 0: as fast
     /// as possible).
@@ -57,18 +58,23 @@ impl Cmd {
         };
         let screen = matches!(display, Display::Screen { .. });
         let stop = super::stop_flag()?;
-        if let Some(log) = &self.replay {
+        if let Some(first) = self.replay.first() {
+            let logs = &self.replay;
+            let more = match logs.len() {
+                1 => String::new(),
+                n => format!(" and {} more", n - 1),
+            };
             let mut observer = LiveObserver::new(
                 display,
-                &format!("replay {}", log.display()),
+                &format!("replay {}{more}", first.display()),
                 Box::new(std::io::stdout()),
                 Box::new(|_, _| false),
             );
             let result = if self.json_lines {
                 let mut streamed = Streamed::new(&mut observer, Box::new(std::io::stdout()), true);
-                replay(log, self.speed, &stop, &mut streamed)
+                replay(logs, self.speed, &stop, &mut streamed)
             } else {
-                replay(log, self.speed, &stop, &mut observer)
+                replay(logs, self.speed, &stop, &mut observer)
             };
             observer.close();
             if screen && result.is_ok() && !observer.quit {
@@ -129,49 +135,93 @@ impl ReplayClock {
     }
 }
 
-/// Feeds a recorded log to an observer, paced by the node's own clock.
+/// Feeds recorded logs to an observer, in the order given as one run (one
+/// link and one clock throughout, so a rotated recording shows no lost frame
+/// or reboot between its files), paced by the node's own clock.
 pub fn replay(
-    path: &std::path::Path,
+    paths: &[PathBuf],
     speed: f64,
     stop: &std::sync::atomic::AtomicBool,
     observer: &mut dyn PortObserver,
 ) -> Result<()> {
-    let mut reader = LogReader::new(crate::files::open_input(path, "log")?.reader);
-    let mut tracker = LinkTracker::new();
-    let started = Instant::now();
-    let mut clock = ReplayClock::default();
-    for record in reader.by_ref() {
-        if stop.load(Ordering::Relaxed) {
+    let mut pace = Pace {
+        tracker: LinkTracker::new(),
+        started: Instant::now(),
+        clock: ReplayClock::default(),
+        speed,
+    };
+    for path in paths {
+        let mut reader = LogReader::new(crate::files::open_log(path)?.reader);
+        let over = pace.feed(&mut reader, stop, observer);
+        let name = match paths.len() {
+            1 => String::new(),
+            _ => format!("{}: ", path.display()),
+        };
+        for w in reader.warnings() {
+            eprintln!("warning: {name}{w}");
+        }
+        if over {
             break;
         }
-        let RecordBody::Frame(bytes) = &record.body else {
-            continue;
-        };
-        let tracked = tracker.accept_encoded(bytes).ok().flatten();
-        if let (Some(t), true) = (&tracked, speed > 0.0) {
-            let node_time = clock.advance(t.message.uptime_ms, record.host_time_us);
-            let due = Duration::from_secs_f64(node_time.as_secs_f64() / speed);
-            while started.elapsed() < due {
-                if observer.tick(tracker.stats(), Duration::ZERO) {
-                    return Ok(());
-                }
-                std::thread::sleep(
-                    due.saturating_sub(started.elapsed())
-                        .min(Duration::from_millis(50)),
-                );
-            }
-        }
-        if let Some(tracked) = tracked {
-            observer.message(&tracked, record.host_time_us, tracker.stats());
-        }
-        if observer.tick(tracker.stats(), Duration::ZERO) {
-            return Ok(());
-        }
-    }
-    for w in reader.warnings() {
-        eprintln!("warning: {w}");
     }
     Ok(())
+}
+
+/// A replay under way: the link and the node's clock carry on across logs.
+struct Pace {
+    tracker: LinkTracker,
+    started: Instant,
+    clock: ReplayClock,
+    speed: f64,
+}
+
+impl Pace {
+    /// Feeds one log; true when the replay is over (stopped or quit).
+    fn feed<R: std::io::Read>(
+        &mut self,
+        reader: &mut LogReader<R>,
+        stop: &std::sync::atomic::AtomicBool,
+        observer: &mut dyn PortObserver,
+    ) -> bool {
+        for record in reader.by_ref() {
+            if stop.load(Ordering::Relaxed) {
+                return true;
+            }
+            let RecordBody::Frame(bytes) = &record.body else {
+                continue;
+            };
+            let tracked = self.tracker.accept_encoded(bytes).ok().flatten();
+            if let (Some(t), true) = (&tracked, self.speed > 0.0) {
+                let node_time = self.clock.advance(t.message.uptime_ms, record.host_time_us);
+                if self.wait_until(node_time, observer) {
+                    return true;
+                }
+            }
+            if let Some(tracked) = tracked {
+                observer.message(&tracked, record.host_time_us, self.tracker.stats());
+            }
+            if observer.tick(self.tracker.stats(), Duration::ZERO) {
+                return true;
+            }
+        }
+        false
+    }
+
+    /// Waits until `node_time` is due at this speed, ticking the observer;
+    /// true when it quits.
+    fn wait_until(&self, node_time: Duration, observer: &mut dyn PortObserver) -> bool {
+        let due = Duration::from_secs_f64(node_time.as_secs_f64() / self.speed);
+        while self.started.elapsed() < due {
+            if observer.tick(self.tracker.stats(), Duration::ZERO) {
+                return true;
+            }
+            std::thread::sleep(
+                due.saturating_sub(self.started.elapsed())
+                    .min(Duration::from_millis(50)),
+            );
+        }
+        false
+    }
 }
 
 #[cfg(test)]

@@ -189,11 +189,19 @@ pub fn read_log(
     progress: &mut dyn FnMut(u64),
     sink: impl FnMut(LogItem<'_>),
 ) -> anyhow::Result<ReadSummary> {
-    if crate::files::is_stdio(path) {
-        let input = crate::files::open_input(path, "log")?;
+    let mut file = match crate::files::is_stdio(path) {
+        true => None,
+        false => Some(crate::files::open_file(path, "log")?),
+    };
+    let compressed = match file.as_mut() {
+        Some(file) => crate::files::is_gzip(file)
+            .map_err(|e| anyhow::anyhow!("cannot read {}: {e}", path.display()))?,
+        None => true, // standard input may be either: read it in one stream
+    };
+    let Some(file) = file.filter(|_| !compressed) else {
+        let input = crate::files::open_log(path)?;
         return Ok(read_stream(input.reader, progress, sink));
-    }
-    let file = crate::files::open_file(path, "log")?;
+    };
     let size = file.metadata().map_or(0, |m| m.len());
     if workers < 2 || size < 2 * PART_BYTES {
         return Ok(read_stream(Box::new(file), progress, sink));
