@@ -50,6 +50,13 @@ pub struct PortStatus {
     /// Frames received but not written because the disk was full.
     #[serde(default)]
     pub frames_not_written: u64,
+    /// The node came back on this other port, and its recording goes on
+    /// there in this port's log.
+    #[serde(default)]
+    pub moved_to: Option<String>,
+    /// This port's recording has ended and its log is closed.
+    #[serde(default)]
+    pub log_closed: bool,
 }
 
 /// The status file: every port recorded.
@@ -75,6 +82,50 @@ impl StatusBoard {
         if let Ok(mut ports) = self.ports.lock() {
             change(ports.entry(port.to_owned()).or_default());
         }
+    }
+
+    /// Claims for `port` the recording of another port, not connected, that
+    /// last recorded the node `node_id`: returns that port, whose recording
+    /// then ends so that `port` can go on in its log.
+    pub fn claim_moved_node(&self, port: &str, node_id: &str) -> Option<String> {
+        let mut ports = self.ports.lock().ok()?;
+        let (left, status) = ports.iter_mut().find(|(p, s)| {
+            p.as_str() != port
+                && s.node_id.as_deref() == Some(node_id)
+                && !s.connected
+                && s.moved_to.is_none()
+                && !s.log_closed
+        })?;
+        status.moved_to = Some(port.to_owned());
+        Some(left.clone())
+    }
+
+    /// The port the node of `port` moved to, once `port` has lost it.
+    pub fn moved_to(&self, port: &str) -> Option<String> {
+        let ports = self.ports.lock().ok()?;
+        let status = ports.get(port).filter(|s| !s.connected)?;
+        status.moved_to.clone()
+    }
+
+    /// The log `port` wrote, once its recording has ended and the log is closed.
+    pub fn closed_log(&self, port: &str) -> Option<PathBuf> {
+        let ports = self.ports.lock().ok()?;
+        let status = ports.get(port).filter(|s| s.log_closed)?;
+        Some(status.log.clone())
+    }
+
+    /// True once `port`'s recording has ended because its node moved to
+    /// another port (not for a recording that ended otherwise).
+    pub fn handed_over(&self, port: &str) -> bool {
+        self.ports
+            .lock()
+            .ok()
+            .and_then(|ports| {
+                ports
+                    .get(port)
+                    .map(|s| s.log_closed && s.moved_to.is_some())
+            })
+            .unwrap_or(false)
     }
 
     /// Everything now.
@@ -113,6 +164,8 @@ impl<'a> Reporting<'a> {
         board.update(port, |s| {
             s.log = log.to_path_buf();
             s.connected = true;
+            s.moved_to = None;
+            s.log_closed = false;
         });
         Reporting {
             board,
@@ -195,7 +248,11 @@ pub fn describe(dir: &Path, now_us: u64) -> Result<String> {
     for (port, s) in &status.ports {
         out.push_str(&format!(
             "{port}: {}, node {}, {}, last frame {}, frames {}, lost {}, damaged {}, gaps {}, reboots {}{}; log {}\n",
-            if s.connected { "connected" } else { "not connected" },
+            match (&s.moved_to, s.connected) {
+                (Some(to), false) => format!("not connected (the node moved to {to})"),
+                (_, true) => "connected".into(),
+                (None, false) => "not connected".into(),
+            },
             s.node_id.as_deref().unwrap_or("not identified yet"),
             s.state.as_deref().unwrap_or("no report yet"),
             s.last_frame_us.map_or("never".into(), |t| format!("{} ago", ago(t))),
@@ -241,10 +298,48 @@ mod tests {
             text.contains("reboots 0, DISK FULL: paused, 17 frames not written; log"),
             "{text}"
         );
+        board.update("/dev/ttyACM0", |s| {
+            s.connected = false;
+            s.moved_to = Some("/dev/ttyACM3".into());
+        });
+        board.write(dir.path()).unwrap();
+        let text = describe(dir.path(), 61_000_000).unwrap();
+        assert!(
+            text.contains("/dev/ttyACM0: not connected (the node moved to /dev/ttyACM3), node 5157000000000001"),
+            "{text}"
+        );
         let err = describe(&dir.path().join("none"), 0).unwrap_err();
         assert!(
             format!("{err:#}").contains("no recording status"),
             "{err:#}"
         );
+    }
+
+    #[test]
+    fn a_node_is_claimed_only_from_a_port_that_lost_it_and_only_once() {
+        let board = StatusBoard::default();
+        let node = "5157000000000001";
+        let on = |port: &str, connected: bool| {
+            board.update(port, |s| {
+                s.node_id = Some(node.into());
+                s.connected = connected;
+                s.log = format!("{port}.gleanlog").into();
+            })
+        };
+        on("a", true);
+        on("b", true);
+        // Still connected on a: the same id on b is not taken for a move.
+        assert_eq!(board.claim_moved_node("b", node), None);
+        assert_eq!(board.claim_moved_node("b", "0000000000000002"), None);
+        on("a", false);
+        assert_eq!(board.claim_moved_node("b", node), Some("a".into()));
+        assert_eq!(board.claim_moved_node("c", node), None, "claimed once");
+        assert_eq!(board.moved_to("a"), Some("b".into()));
+        // a's log is handed over only once its recording has closed it.
+        assert_eq!(board.closed_log("a"), None);
+        assert!(!board.handed_over("a"));
+        board.update("a", |s| s.log_closed = true);
+        assert_eq!(board.closed_log("a"), Some("a.gleanlog".into()));
+        assert!(board.handed_over("a") && !board.handed_over("b"));
     }
 }

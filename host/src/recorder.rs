@@ -204,6 +204,33 @@ impl Recorder {
         self.mark(MarkerKind::Note, &format!("continued from {old}"))
     }
 
+    /// Goes on in `earlier`, the node's own log from a port it has left
+    /// (the recording there has ended): what this port recorded so far is
+    /// copied to its end, after a note, and this port's short log is
+    /// removed. If that cannot be done, recording goes on here and a note
+    /// says why; either way nothing received is lost.
+    pub fn go_on_in_earlier(&mut self, earlier: &Path, port: &str) -> Result<()> {
+        let Some(short) = self.log_path().map(Path::to_path_buf) else {
+            return Ok(());
+        };
+        self.out.write(|w| w.sync())?;
+        if self.is_paused() {
+            return Ok(()); // a full disk: stay where the pause will resume
+        }
+        match copy_log_into(&short, earlier, port) {
+            Ok(writer) => {
+                self.out.writer = Some(writer);
+                // The short log lives on, whole, in the earlier one.
+                let _ = std::fs::remove_file(&short);
+                Ok(())
+            }
+            Err(e) => self.mark(
+                MarkerKind::Note,
+                &format!("the node's earlier log is not continued: {e:#}"),
+            ),
+        }
+    }
+
     /// Writes the stop marker and forces everything to disk.
     pub fn finish(&mut self) -> Result<()> {
         self.mark(MarkerKind::Stopped, "recording stopped")?;
@@ -224,6 +251,46 @@ impl Recorder {
     pub fn log_path(&self) -> Option<&Path> {
         self.out.writer.as_ref().map(|w| w.path())
     }
+}
+
+/// Appends the records of the log `short` (after its header) to the log
+/// `earlier`, after a note saying the node came back on `port`; returns the
+/// writer of `earlier`, synced. On failure `earlier` is cut back to where it
+/// ended.
+fn copy_log_into(short: &Path, earlier: &Path, port: &str) -> Result<LogWriter> {
+    let mut writer = LogWriter::append_to(earlier)?;
+    let copy = |writer: &mut LogWriter| -> Result<()> {
+        let file = std::fs::File::open(short)?;
+        let mut first = true;
+        for record in crate::log::LogReader::new(file) {
+            if first {
+                first = false;
+                writer.append_marker(
+                    record.host_time_us,
+                    MarkerKind::Note,
+                    &format!(
+                        "the node came back on {port}; its recording goes on here (from {})",
+                        short.display()
+                    ),
+                )?;
+            }
+            match &record.body {
+                crate::log::RecordBody::Frame(frame) => {
+                    writer.append_frame(record.host_time_us, frame)?
+                }
+                crate::log::RecordBody::Marker { kind, detail } => {
+                    writer.append_marker(record.host_time_us, *kind, detail)?
+                }
+                crate::log::RecordBody::Header(_) | crate::log::RecordBody::Unknown(_) => {}
+            }
+        }
+        writer.sync()
+    };
+    if let Err(e) = copy(&mut writer) {
+        writer.roll_back()?;
+        return Err(e);
+    }
+    Ok(writer)
 }
 
 impl Output {
@@ -308,13 +375,22 @@ pub trait PortObserver {
     fn outgoing(&mut self) -> Option<Vec<u8>> {
         None
     }
-    /// A new log to go on in now (rotation), if any.
-    fn next_log(&mut self) -> Option<std::path::PathBuf> {
+    /// Another log to go on in now, if any.
+    fn next_log(&mut self) -> Option<NextLog> {
         None
     }
     /// The disk filled (`full`) or has room again; frames received and not
     /// written so far.
     fn disk_full(&mut self, _full: bool, _frames_not_written: u64) {}
+}
+
+/// Where a recording goes on.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum NextLog {
+    /// A new log (rotation).
+    New(std::path::PathBuf),
+    /// The node's own log from a port it has left: it came back on this one.
+    Earlier(std::path::PathBuf),
 }
 
 /// Request id of the `Hello` asked for on every connect (the node echoes it).
@@ -400,12 +476,16 @@ pub fn run_port(
                 recorder.mark(MarkerKind::Note, &format!("could not send a command: {e}"))?;
             }
         }
-        if let Some(path) = observer.next_log() {
-            recorder.continue_in(&path, port)?;
-            // The new log describes the node too.
-            if let Some(p) = link.as_mut() {
-                ask_for_hello(p, recorder)?;
+        match observer.next_log() {
+            Some(NextLog::New(path)) => {
+                recorder.continue_in(&path, port)?;
+                // The new log describes the node too.
+                if let Some(p) = link.as_mut() {
+                    ask_for_hello(p, recorder)?;
+                }
             }
+            Some(NextLog::Earlier(path)) => recorder.go_on_in_earlier(&path, port)?,
+            None => {}
         }
         if recorder.is_paused() != was_full {
             was_full = recorder.is_paused();

@@ -13,7 +13,7 @@ const DAY_CHECK: Duration = Duration::from_secs(1);
 
 use crate::link::{LinkStats, Tracked};
 use crate::record_status::StatusBoard;
-use crate::recorder::PortObserver;
+use crate::recorder::{NextLog, PortObserver};
 use crate::upkeep::Upkeep;
 
 /// How often a recording starts a new log by itself.
@@ -76,7 +76,16 @@ pub struct Rotating<'a> {
     closing: Option<PathBuf>,
     /// What becomes of closed logs.
     upkeep: Upkeep,
+    /// The port this node was recorded on before, whose log this recording
+    /// goes on in once that port's recording has ended.
+    came_from: Option<String>,
+    /// The node identified on this port, and until when a port it left is
+    /// looked for (that port may notice it lost the node a little later).
+    seeking: Option<(String, Instant)>,
 }
+
+/// How long after a node is identified a port it left is looked for.
+const SEEK_MOVED_NODE_FOR: Duration = Duration::from_secs(30);
 
 impl<'a> Rotating<'a> {
     /// New logs go to `dir`, named after `name` and the time.
@@ -101,6 +110,8 @@ impl<'a> Rotating<'a> {
             current: PathBuf::new(),
             closing: None,
             upkeep: Upkeep::none(),
+            came_from: None,
+            seeking: None,
         }
     }
 
@@ -118,13 +129,50 @@ fn today() -> String {
     crate::dataset::utc_day(crate::log::now_us())
 }
 
+impl Rotating<'_> {
+    /// A node identified on this port: if a port it has left still holds its
+    /// log, this port will go on in it.
+    fn identified(&mut self, node_id: u64) {
+        if self.status.is_some() && self.came_from.is_none() {
+            let until = Instant::now() + SEEK_MOVED_NODE_FOR;
+            self.seeking = Some((format!("{node_id:016x}"), until));
+        }
+    }
+
+    /// The node's earlier log, once the port it left has closed it.
+    fn earlier_log(&mut self) -> Option<PathBuf> {
+        let (board, port) = self.status.as_ref()?;
+        if let Some((node_id, until)) = &self.seeking {
+            self.came_from = board.claim_moved_node(port, node_id);
+            if self.came_from.is_some() || Instant::now() > *until {
+                self.seeking = None;
+            }
+        }
+        let log = board.closed_log(self.came_from.as_deref()?)?;
+        self.came_from = None;
+        board.update(port, |s| s.log = log.clone());
+        self.upkeep.opened(&log);
+        self.current = log.clone();
+        Some(log)
+    }
+}
+
 impl PortObserver for Rotating<'_> {
     fn message(&mut self, tracked: &Tracked, host_time_us: u64, stats: &LinkStats) {
+        if let gleaner_protocol::UplinkBody::Hello(hello) = &tracked.message.body {
+            self.identified(hello.node_id);
+        }
         self.inner.message(tracked, host_time_us, stats);
     }
 
     fn tick(&mut self, stats: &LinkStats, idle_for: Duration) -> bool {
-        self.inner.tick(stats, idle_for)
+        // The node came back on another port: this port's recording ends,
+        // so that one can go on in its log.
+        let moved = self
+            .status
+            .as_ref()
+            .is_some_and(|(board, port)| board.moved_to(port).is_some());
+        self.inner.tick(stats, idle_for) || moved
     }
 
     fn link_changed(&mut self, connected: bool, detail: &str) {
@@ -139,11 +187,14 @@ impl PortObserver for Rotating<'_> {
         self.inner.disk_full(full, frames_not_written);
     }
 
-    fn next_log(&mut self) -> Option<PathBuf> {
+    fn next_log(&mut self) -> Option<NextLog> {
         // Called after every read: the date is looked at once a second, and
         // only when rotating daily.
         if let Some(closed) = self.closing.take() {
             self.upkeep.closed(&closed);
+        }
+        if let Some(earlier) = self.earlier_log() {
+            return Some(NextLog::Earlier(earlier));
         }
         let generation = self.reopen.generation();
         let mut new_day = None;
@@ -164,6 +215,6 @@ impl PortObserver for Rotating<'_> {
         }
         self.upkeep.opened(&path);
         self.closing = Some(std::mem::replace(&mut self.current, path.clone()));
-        Some(path)
+        Some(NextLog::New(path))
     }
 }

@@ -23,8 +23,14 @@ struct Served {
 
 impl Served {
     fn start(scenario: &str) -> Self {
+        Served::start_with(scenario, &[])
+    }
+
+    /// Serves `scenario` with more `sim serve` arguments.
+    fn start_with(scenario: &str, more: &[&str]) -> Self {
         let mut child = gleaner()
             .args(["sim", "serve", scenario, "--speed", "20"])
+            .args(more)
             .stdout(std::process::Stdio::piped())
             .spawn()
             .unwrap();
@@ -50,6 +56,16 @@ impl Drop for Served {
     fn drop(&mut self) {
         let _ = self.child.kill();
         let _ = self.child.wait();
+    }
+}
+
+/// A child process killed when the test ends, passed or not.
+struct Stopped(std::process::Child);
+
+impl Drop for Stopped {
+    fn drop(&mut self) {
+        let _ = self.0.kill();
+        let _ = self.0.wait();
     }
 }
 
@@ -1385,6 +1401,80 @@ fn a_compressed_rotated_recording_reads_and_replays_as_one_run() {
     let (from_gz, from_plain) = (csv(gz_arg), csv(unzipped.to_str().unwrap()));
     assert!(from_gz.0 && from_plain.0, "{}{}", from_gz.2, from_plain.2);
     assert_eq!(from_gz.1, from_plain.1);
+}
+
+#[test]
+fn a_node_back_on_another_path_goes_on_in_its_own_log() {
+    let dir = tempfile::tempdir().unwrap();
+    let links = dir.path().join("by-id");
+    std::fs::create_dir(&links).unwrap();
+    let logs = dir.path().join("logs");
+    let link = |name: &str| links.join(name).to_string_lossy().into_owned();
+    let first = Served::start_with("greenhouse-day", &["--link", &link("node-a")]);
+    let pattern = format!("{}/node-*", links.display());
+    let mut recorder = Stopped(
+        gleaner()
+            .args([
+                "record",
+                "--dir",
+                logs.to_str().unwrap(),
+                "--status-every",
+                "0",
+                &pattern,
+            ])
+            .stderr(std::process::Stdio::null())
+            .spawn()
+            .unwrap(),
+    );
+    let status = || -> serde_json::Value {
+        std::fs::read_to_string(logs.join("status.json"))
+            .ok()
+            .and_then(|t| serde_json::from_str(&t).ok())
+            .unwrap_or_default()
+    };
+    let port_a = link("node-a");
+    wait_for("the node identified on node-a", || {
+        status()["ports"][&port_a]["frames"].as_u64().unwrap_or(0) > 20
+            && status()["ports"][&port_a]["node_id"].is_string()
+    });
+    // Unplugged (the serving process ends and its link goes, as udev
+    // removes a by-id link), then plugged into another socket: the same node
+    // on a new path.
+    drop(first);
+    let _ = std::fs::remove_file(link("node-a"));
+    let _second = Served::start_with("greenhouse-day", &["--link", &link("node-b")]);
+    let port_b = link("node-b");
+    wait_for("node-b to go on in node-a's log", || {
+        let s = status();
+        s["ports"][&port_a]["moved_to"].as_str() == Some(port_b.as_str())
+            && s["ports"][&port_b]["log"] == s["ports"][&port_a]["log"]
+            && s["ports"][&port_b]["frames"].as_u64().unwrap_or(0) > 20
+    });
+    let term = Command::new("kill")
+        .args(["-TERM", &recorder.0.id().to_string()])
+        .status()
+        .unwrap();
+    assert!(term.success() && recorder.0.wait().unwrap().success());
+    // One log for the node: node-b's short log went into it and is gone.
+    let written: Vec<_> = std::fs::read_dir(&logs)
+        .unwrap()
+        .flatten()
+        .map(|e| e.path())
+        .filter(|p| p.extension().is_some_and(|e| e == "gleanlog"))
+        .collect();
+    assert_eq!(written.len(), 1, "{written:?}");
+    let bytes = std::fs::read(&written[0]).unwrap();
+    let says = |text: &str| bytes.windows(text.len()).any(|w| w == text.as_bytes());
+    assert!(says(&format!("the node came back on {port_b}")));
+    // It reads whole, with both stays of the node: two boots of one node
+    // (the serving process started it afresh), every frame of both ports.
+    let mut reader = gleaner::log::LogReader::new(std::fs::File::open(&written[0]).unwrap());
+    assert!(reader.by_ref().count() > 40);
+    assert!(reader.warnings().is_empty(), "{:?}", reader.warnings());
+    let report = gleaner::analysis::analyze_file(&written[0]).unwrap();
+    assert_eq!(report.boots.len(), 2);
+    let frames = |port: &str| status()["ports"][port]["frames"].as_u64().unwrap();
+    assert_eq!(report.link.frames, frames(&port_a) + frames(&port_b));
 }
 
 #[test]

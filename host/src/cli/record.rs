@@ -173,6 +173,11 @@ impl Cmd {
         let mut rotating = Rotating::new(&mut scripted, self.rotate, reopen, dir, name, status)
             .keeping(path, upkeep);
         let result = run_port(&mut recorder, &port, reach.baud, stop, &mut rotating);
+        if let Some(to) = board.and_then(|b| b.moved_to(&port)) {
+            let note = format!("the node came back on {to}: its recording goes on in this log");
+            eprintln!("{port}: {note}");
+            recorder.mark(crate::log::MarkerKind::Note, &note)?;
+        }
         print_outcomes(&scripted.script);
         let finished = recorder.finish();
         let stats = *recorder.stats();
@@ -249,6 +254,8 @@ impl Cmd {
         self.check_many()?;
         let config = crate::user_config::UserConfig::load()?;
         let dir = config.runs_dir(self.dir.clone());
+        std::fs::create_dir_all(&dir)
+            .with_context(|| format!("cannot create folder {}", dir.display()))?;
         let stop = super::stop_flag()?;
         let started = Instant::now();
         let limit = self.duration.map(Duration::from_secs_f64);
@@ -259,6 +266,9 @@ impl Cmd {
         std::thread::scope(|scope| -> Result<()> {
             let upkeep = Upkeep::start(scope, dir.clone(), self.upkeep_policy());
             loop {
+                // A port whose node moved to another port has ended: a node
+                // plugged in there later is recorded afresh.
+                recording.retain(|port| !board.handed_over(port));
                 for port in self.present_ports(&config) {
                     if !recording.insert(port.clone()) {
                         continue;
@@ -271,11 +281,9 @@ impl Cmd {
                     let (stop, done, board, reopen) = (&stop, &done, &board, &*reopen);
                     let upkeep = upkeep.clone();
                     scope.spawn(move || {
-                        let outcome =
-                            self.record_port(&reach, &path, stop, Some(board), reopen, upkeep);
-                        board.update(&reach.port, |s| s.connected = false);
+                        let ended = self.record_among(&reach, path, stop, board, reopen, upkeep);
                         if let Ok(mut all) = done.lock() {
-                            all.push((reach.port, path, outcome));
+                            all.push(ended);
                         }
                     });
                 }
@@ -301,6 +309,29 @@ impl Cmd {
         })?;
         write_status(&board, &dir);
         say_how_each_ended(done.into_inner().unwrap_or_default())
+    }
+
+    /// Records one of several ports to `path` until stopped; returns the
+    /// port, its last log (where its node's recording went on) and how it ended.
+    fn record_among(
+        &self,
+        reach: &super::Reach,
+        path: PathBuf,
+        stop: &AtomicBool,
+        board: &StatusBoard,
+        reopen: &Reopen,
+        upkeep: Upkeep,
+    ) -> (String, PathBuf, Result<LinkStats>) {
+        let outcome = self.record_port(reach, &path, stop, Some(board), reopen, upkeep);
+        let mut last_log = path;
+        board.update(&reach.port, |s| {
+            s.connected = false;
+            s.log_closed = true;
+            if !s.log.as_os_str().is_empty() {
+                last_log.clone_from(&s.log);
+            }
+        });
+        (reach.port.clone(), last_log, outcome)
     }
 
     /// Refuses options that name one log or one stream.
@@ -334,7 +365,9 @@ impl Cmd {
                 continue;
             }
             if let Ok(paths) = glob::glob(given) {
-                found.extend(paths.flatten().map(|p| p.to_string_lossy().into_owned()));
+                // Not a link left behind by a device that went away.
+                let present = paths.flatten().filter(|p| p.exists());
+                found.extend(present.map(|p| p.to_string_lossy().into_owned()));
             }
         }
         found

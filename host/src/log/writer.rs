@@ -105,6 +105,48 @@ impl LogWriter<File> {
     }
 }
 
+impl LogWriter<File> {
+    /// Opens an existing log to go on writing at its end (a node's own log,
+    /// picked up again). Refused unless the file starts with a header and
+    /// reads whole to its end, so nothing is ever appended after damage.
+    pub fn append_to(path: &Path) -> Result<Self> {
+        let refuse = |why: &str| anyhow::anyhow!("not going on in {}: {why}", path.display());
+        let file =
+            File::open(path).with_context(|| format!("cannot open log {}", path.display()))?;
+        let len = file.metadata()?.len();
+        let mut reader = super::LogReader::new(file);
+        let mut records = 0u64;
+        let mut starts_with_header = false;
+        for record in reader.by_ref() {
+            if records == 0 {
+                starts_with_header = matches!(record.body, super::RecordBody::Header(_));
+            }
+            records += 1;
+        }
+        if !starts_with_header {
+            return Err(refuse("it is not a log"));
+        }
+        if !reader.warnings().is_empty() || reader.offset() != len {
+            return Err(refuse("it does not read whole to its end"));
+        }
+        let mut out = OpenOptions::new()
+            .write(true)
+            .open(path)
+            .with_context(|| format!("cannot open log {}", path.display()))?;
+        out.seek(SeekFrom::End(0))?;
+        Ok(LogWriter {
+            out,
+            path: path.to_path_buf(),
+            scratch: Vec::new(),
+            pending: Vec::new(),
+            bytes: len,
+            records,
+            kept_bytes: len,
+            kept_records: records,
+        })
+    }
+}
+
 impl<W: LogStore> LogWriter<W> {
     /// Flushes and forces the data to the disk.
     pub fn sync(&mut self) -> Result<()> {
@@ -223,5 +265,64 @@ impl<W: Write> LogWriter<W> {
     /// Records written so far.
     pub fn records_written(&self) -> u64 {
         self.records
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::log::{LogReader, RecordBody};
+
+    fn header() -> LogHeader {
+        crate::recorder::header_for("test")
+    }
+
+    fn frames_in(path: &Path) -> (Vec<Vec<u8>>, usize) {
+        let mut reader = LogReader::new(File::open(path).unwrap());
+        let frames = reader
+            .by_ref()
+            .filter_map(|r| match r.body {
+                RecordBody::Frame(f) => Some(f),
+                _ => None,
+            })
+            .collect();
+        (frames, reader.warnings().len())
+    }
+
+    #[test]
+    fn a_whole_log_is_gone_on_in_at_its_end() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("node.gleanlog");
+        let mut first = LogWriter::create(&path, &header()).unwrap();
+        first.append_frame(1, b"one").unwrap();
+        first.append_frame(2, b"two").unwrap();
+        first.sync().unwrap();
+        drop(first);
+        let mut again = LogWriter::append_to(&path).unwrap();
+        assert_eq!(again.records_written(), 3, "the header and two frames");
+        again.append_frame(3, b"three").unwrap();
+        again.sync().unwrap();
+        let (frames, warnings) = frames_in(&path);
+        assert_eq!(frames, [&b"one"[..], b"two", b"three"]);
+        assert_eq!(warnings, 0);
+    }
+
+    #[test]
+    fn a_torn_or_foreign_file_is_never_appended_to() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("node.gleanlog");
+        let mut first = LogWriter::create(&path, &header()).unwrap();
+        first.append_frame(1, b"one").unwrap();
+        first.sync().unwrap();
+        drop(first);
+        let whole = std::fs::read(&path).unwrap();
+        std::fs::write(&path, &whole[..whole.len() - 2]).unwrap();
+        let err = LogWriter::append_to(&path).err().unwrap();
+        assert!(format!("{err}").contains("does not read whole"), "{err}");
+        assert_eq!(std::fs::read(&path).unwrap().len(), whole.len() - 2, "untouched");
+        let notes = dir.path().join("notes.txt");
+        std::fs::write(&notes, "not a log at all").unwrap();
+        let err = LogWriter::append_to(&notes).err().unwrap();
+        assert!(format!("{err}").contains("not a log"), "{err}");
     }
 }
