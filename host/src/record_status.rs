@@ -203,14 +203,14 @@ impl PortObserver for Reporting<'_> {
         self.inner.tick(stats, idle_for)
     }
 
-    fn link_changed(&mut self, connected: bool, detail: &str) {
+    fn link_changed(&mut self, connected: bool, detail: &str, host_time_us: u64) {
         self.board.update(&self.port, |s| {
             s.connected = connected;
             if !connected {
                 s.gaps += 1;
             }
         });
-        self.inner.link_changed(connected, detail);
+        self.inner.link_changed(connected, detail, host_time_us);
     }
 
     fn outgoing(&mut self) -> Option<Vec<u8>> {

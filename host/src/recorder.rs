@@ -132,9 +132,15 @@ impl Recorder {
         self.flush()
     }
 
-    /// Writes a marker.
+    /// Writes a marker, stamped now.
     pub fn mark(&mut self, kind: MarkerKind, detail: &str) -> Result<()> {
-        self.out.write(|w| w.append_marker(now_us(), kind, detail))
+        self.mark_at(now_us(), kind, detail)
+    }
+
+    /// Writes a marker stamped `host_time_us`.
+    pub fn mark_at(&mut self, host_time_us: u64, kind: MarkerKind, detail: &str) -> Result<()> {
+        self.out
+            .write(|w| w.append_marker(host_time_us, kind, detail))
     }
 
     /// Hands records to the operating system; forces them to disk once a
@@ -370,7 +376,7 @@ pub trait PortObserver {
     /// Called after every read (or timeout): return true to stop.
     fn tick(&mut self, stats: &LinkStats, idle_for: Duration) -> bool;
     /// The port went away or came back.
-    fn link_changed(&mut self, _connected: bool, _detail: &str) {}
+    fn link_changed(&mut self, _connected: bool, _detail: &str, _host_time_us: u64) {}
     /// Bytes to send to the node now (commands), if any.
     fn outgoing(&mut self) -> Option<Vec<u8>> {
         None
@@ -392,6 +398,9 @@ pub enum NextLog {
     /// The node's own log from a port it has left: it came back on this one.
     Earlier(std::path::PathBuf),
 }
+
+/// What ends the detail of the marker of a port opened again after a loss.
+pub const RECONNECTED: &str = " (reconnected)";
 
 /// Request id of the `Hello` asked for on every connect (the node echoes it).
 pub const HELLO_REQUEST_ID: u16 = 0xFFF0;
@@ -449,21 +458,20 @@ pub fn run_port(
                             | std::io::ErrorKind::Interrupted
                     ) => {}
                 Err(e) => {
-                    let detail = format!("{port}: {e}");
-                    recorder.mark(MarkerKind::PortLost, &detail)?;
+                    let (detail, at) = (format!("{port}: {e}"), now_us());
+                    recorder.mark_at(at, MarkerKind::PortLost, &detail)?;
                     recorder.resync();
-                    observer.link_changed(false, &detail);
+                    observer.link_changed(false, &detail, at);
                     link = None;
                 }
             },
             None => {
                 std::thread::sleep(Duration::from_millis(250));
                 if let Ok(p) = open_port(port, baud) {
-                    recorder.mark(
-                        MarkerKind::PortOpened,
-                        &format!("{port} at {baud} baud (reconnected)"),
-                    )?;
-                    observer.link_changed(true, port);
+                    let at = now_us();
+                    let detail = format!("{port} at {baud} baud{RECONNECTED}");
+                    recorder.mark_at(at, MarkerKind::PortOpened, &detail)?;
+                    observer.link_changed(true, port, at);
                     link = Some(p);
                     if let Some(p) = link.as_mut() {
                         ask_for_hello(p, recorder)?;

@@ -175,8 +175,8 @@ impl PortObserver for Rotating<'_> {
         self.inner.tick(stats, idle_for) || moved
     }
 
-    fn link_changed(&mut self, connected: bool, detail: &str) {
-        self.inner.link_changed(connected, detail);
+    fn link_changed(&mut self, connected: bool, detail: &str, host_time_us: u64) {
+        self.inner.link_changed(connected, detail, host_time_us);
     }
 
     fn outgoing(&mut self) -> Option<Vec<u8>> {

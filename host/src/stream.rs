@@ -244,10 +244,10 @@ impl PortObserver for Streamed<'_> {
         done || (self.stop_when_closed && self.closed.is_some())
     }
 
-    fn link_changed(&mut self, connected: bool, detail: &str) {
-        let line = link_line(connected, detail, crate::log::now_us(), &self.node);
+    fn link_changed(&mut self, connected: bool, detail: &str, host_time_us: u64) {
+        let line = link_line(connected, detail, host_time_us, &self.node);
         self.write(&line);
-        self.inner.link_changed(connected, detail);
+        self.inner.link_changed(connected, detail, host_time_us);
     }
 
     fn outgoing(&mut self) -> Option<Vec<u8>> {

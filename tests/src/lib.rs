@@ -128,7 +128,7 @@ impl<F: FnMut(&LinkStats, Duration) -> bool> PortObserver for Collect<F> {
     fn tick(&mut self, stats: &LinkStats, idle_for: Duration) -> bool {
         (self.stop_when)(stats, idle_for)
     }
-    fn link_changed(&mut self, connected: bool, detail: &str) {
+    fn link_changed(&mut self, connected: bool, detail: &str, _host_time_us: u64) {
         self.changes.push((connected, detail.to_string()));
     }
 }
@@ -143,13 +143,13 @@ pub fn record_virtual_run(
     let node = VirtualNode::new(scenario, 0x5EED)?;
     let port = VirtualPort::spawn(node, None)?;
     let log = dir.join("run.gleanlog");
-    let mut recorder = Recorder::create(&log, port.path())?;
+    let mut recorder = Recorder::create(&log, &port.path())?;
     let stop = AtomicBool::new(false);
     let messages = {
         let port_ref = &port;
         let mut observer =
             Collect::new(move |_, idle| port_ref.finished() && idle > Duration::from_millis(300));
-        run_port(&mut recorder, port.path(), 115_200, &stop, &mut observer)?;
+        run_port(&mut recorder, &port.path(), 115_200, &stop, &mut observer)?;
         observer.messages
     };
     recorder.finish()?;

@@ -228,7 +228,7 @@ impl gleaner::recorder::PortObserver for Signalling {
     fn tick(&mut self, _stats: &LinkStats, _idle_for: Duration) -> bool {
         false
     }
-    fn link_changed(&mut self, connected: bool, _detail: &str) {
+    fn link_changed(&mut self, connected: bool, _detail: &str, _host_time_us: u64) {
         self.changes.push(connected);
         let _ = self.tx.send(Seen::Link(connected));
     }
@@ -373,7 +373,7 @@ fn ten_unplug_replug_cycles_reconnect_each_time_and_mark_every_gap() {
 fn device_commands_work_and_a_refusal_shows_the_reason() {
     let node = VirtualNode::new(scenario("stalled-converter", Some(0.5)), 3).unwrap();
     let port = VirtualPort::spawn(node, Some(50.0)).unwrap();
-    let mut session = Session::open(port.path(), 115_200, Duration::from_secs(3)).unwrap();
+    let mut session = Session::open(&port.path(), 115_200, Duration::from_secs(3)).unwrap();
     assert_eq!(
         session.request(Command::Ping, Duration::ZERO).unwrap(),
         Outcome::Pong

@@ -133,7 +133,7 @@ impl Cmd {
         );
         let result = run_port(
             &mut recorder,
-            port.path(),
+            &port.path(),
             DEFAULT_BAUD,
             &stop,
             &mut observer,

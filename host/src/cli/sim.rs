@@ -3,6 +3,8 @@
 #[cfg(unix)]
 use std::io::Write;
 use std::path::PathBuf;
+#[cfg(unix)]
+use std::sync::Arc;
 
 use anyhow::{bail, Result};
 use clap::{Args, Subcommand};
@@ -114,6 +116,9 @@ pub struct Serve {
     #[arg(long, default_value_t = 1.0)]
     pub speed: f64,
     /// Also make a symbolic link to the device here (a name that stays put).
+    /// SIGUSR1 unplugs the node for a second and plugs it back in on a new
+    /// pseudo-terminal behind the same link; SIGUSR2 behind the link's name
+    /// with `-moved` added, as an adapter moved to another USB socket.
     #[arg(long)]
     pub link: Option<PathBuf>,
     /// Boot id of the virtual node.
@@ -178,6 +183,7 @@ impl Serve {
             port.path()
         )?;
         out.flush()?;
+        let mut replugging = Replugging::on_signals(self.link.clone())?;
         let mut said_over = false;
         while !stop.load(std::sync::atomic::Ordering::Relaxed) {
             std::thread::sleep(std::time::Duration::from_millis(100));
@@ -186,12 +192,91 @@ impl Serve {
                 writeln!(out, "the scenario is over; the node still answers commands")?;
                 out.flush()?;
             }
+            if let Some(said) = replugging.follow(&port)? {
+                writeln!(out, "{said}")?;
+                out.flush()?;
+            }
         }
+        let progress = port.progress();
         port.stop()?;
-        if let Some(link) = &self.link {
+        if let Some(link) = &replugging.link {
             let _ = std::fs::remove_file(link);
         }
+        writeln!(
+            out,
+            "frames sent whole {}, not sent {} (unplugged, or nobody reading)",
+            progress.frames_sent, progress.frames_dropped
+        )?;
         Ok(())
+    }
+}
+
+/// How long a virtual node stays unplugged on SIGUSR1 or SIGUSR2.
+#[cfg(unix)]
+const UNPLUGGED_FOR: std::time::Duration = std::time::Duration::from_secs(1);
+
+/// A served node unplugged and plugged back in on a signal, for trying a
+/// recorder's reconnection: SIGUSR1 plugs it back in behind the same link,
+/// SIGUSR2 behind the link's name with `-moved` added (another USB socket).
+#[cfg(unix)]
+struct Replugging {
+    same: Arc<std::sync::atomic::AtomicBool>,
+    moved: Arc<std::sync::atomic::AtomicBool>,
+    /// The link now.
+    link: Option<PathBuf>,
+    /// Unplugged, to come back behind this link after this many replugs.
+    pending: Option<(Option<PathBuf>, u64)>,
+}
+
+#[cfg(unix)]
+impl Replugging {
+    fn on_signals(link: Option<PathBuf>) -> Result<Self> {
+        let (same, moved) = (Arc::default(), Arc::default());
+        signal_hook::flag::register(signal_hook::consts::SIGUSR1, Arc::clone(&same))?;
+        signal_hook::flag::register(signal_hook::consts::SIGUSR2, Arc::clone(&moved))?;
+        Ok(Replugging {
+            same,
+            moved,
+            link,
+            pending: None,
+        })
+    }
+
+    /// Unplugs on a signal and links the new pseudo-terminal once plugged
+    /// back in; says what it did.
+    fn follow(&mut self, port: &crate::sim::port::VirtualPort) -> Result<Option<String>> {
+        use std::sync::atomic::Ordering::Relaxed;
+        let moved = self.moved.swap(false, Relaxed);
+        if (self.same.swap(false, Relaxed) || moved) && self.pending.is_none() {
+            let back_behind = match (&self.link, moved) {
+                (Some(link), true) => {
+                    let mut name = link.as_os_str().to_owned();
+                    name.push("-moved");
+                    Some(PathBuf::from(name))
+                }
+                (link, _) => link.clone(),
+            };
+            if let Some(link) = self.link.take() {
+                let _ = std::fs::remove_file(link);
+            }
+            self.pending = Some((back_behind, port.replugs() + 1));
+            port.unplug_for(UNPLUGGED_FOR);
+            return Ok(Some("unplugged".into()));
+        }
+        let Some((back_behind, _)) = self.pending.take_if(|(_, n)| port.replugs() >= *n) else {
+            return Ok(None);
+        };
+        let path = port.path();
+        if let Some(link) = &back_behind {
+            let _ = std::fs::remove_file(link);
+            std::os::unix::fs::symlink(&path, link)
+                .map_err(|e| anyhow::anyhow!("cannot make the link {}: {e}", link.display()))?;
+        }
+        self.link = back_behind;
+        Ok(Some(match &self.link {
+            Some(link) => format!("plugged back in on {path} (linked from {})", link.display()),
+            None => format!("plugged back in on {path}"),
+        }))
     }
 }
 

@@ -167,6 +167,17 @@ pub fn replay(
     Ok(())
 }
 
+/// The port change a recorded marker stands for: `Some(false)` where the
+/// port went away, `Some(true)` where it came back (not its first opening).
+fn link_change(kind: crate::log::MarkerKind, detail: &str) -> Option<bool> {
+    use crate::log::MarkerKind;
+    match kind {
+        MarkerKind::PortLost => Some(false),
+        MarkerKind::PortOpened if detail.ends_with(crate::recorder::RECONNECTED) => Some(true),
+        _ => None,
+    }
+}
+
 /// A replay under way: the link and the node's clock carry on across logs.
 struct Pace {
     tracker: LinkTracker,
@@ -187,8 +198,16 @@ impl Pace {
             if stop.load(Ordering::Relaxed) {
                 return true;
             }
-            let RecordBody::Frame(bytes) = &record.body else {
-                continue;
+            let bytes = match &record.body {
+                RecordBody::Frame(bytes) => bytes,
+                // The port's gaps, as the recorder saw them.
+                RecordBody::Marker { kind, detail } => {
+                    if let Some(connected) = link_change(*kind, detail) {
+                        observer.link_changed(connected, detail, record.host_time_us);
+                    }
+                    continue;
+                }
+                _ => continue,
             };
             let tracked = self.tracker.accept_encoded(bytes).ok().flatten();
             if let (Some(t), true) = (&tracked, self.speed > 0.0) {

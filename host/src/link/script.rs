@@ -146,8 +146,8 @@ impl PortObserver for Scripted<'_> {
     fn tick(&mut self, stats: &LinkStats, idle_for: Duration) -> bool {
         self.inner.tick(stats, idle_for)
     }
-    fn link_changed(&mut self, connected: bool, detail: &str) {
-        self.inner.link_changed(connected, detail);
+    fn link_changed(&mut self, connected: bool, detail: &str, host_time_us: u64) {
+        self.inner.link_changed(connected, detail, host_time_us);
     }
     fn outgoing(&mut self) -> Option<Vec<u8>> {
         self.script.outgoing().or_else(|| self.inner.outgoing())

@@ -319,7 +319,11 @@ mod tests {
         std::fs::write(&path, &whole[..whole.len() - 2]).unwrap();
         let err = LogWriter::append_to(&path).err().unwrap();
         assert!(format!("{err}").contains("does not read whole"), "{err}");
-        assert_eq!(std::fs::read(&path).unwrap().len(), whole.len() - 2, "untouched");
+        assert_eq!(
+            std::fs::read(&path).unwrap().len(),
+            whole.len() - 2,
+            "untouched"
+        );
         let notes = dir.path().join("notes.txt");
         std::fs::write(&notes, "not a log at all").unwrap();
         let err = LogWriter::append_to(&notes).err().unwrap();

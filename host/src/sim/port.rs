@@ -22,11 +22,26 @@ pub struct Progress {
     pub total_s: f64,
     /// Ground truth so far (updated every simulated second or so).
     pub truth: GroundTruth,
+    /// Frames handed whole to the pseudo-terminal.
+    pub frames_sent: u64,
+    /// Frames not sent whole: unplugged, or nobody reading (with [`Unread::Drop`]).
+    pub frames_dropped: u64,
+}
+
+/// The pseudo-terminal the node is plugged into, shared with its thread.
+#[derive(Debug, Default)]
+struct Plug {
+    /// The slave's path.
+    path: String,
+    /// Asked for: unplug for this long, then plug into a new pseudo-terminal.
+    unplug_for: Option<Duration>,
+    /// Times plugged into a new pseudo-terminal.
+    replugs: u64,
 }
 
 /// A virtual node running on its own thread behind a pseudo-terminal.
 pub struct VirtualPort {
-    path: String,
+    plug: Arc<Mutex<Plug>>,
     stop: Arc<AtomicBool>,
     finished: Arc<AtomicBool>,
     progress: Arc<Mutex<Progress>>,
@@ -43,12 +58,14 @@ pub enum Unread {
     Drop,
 }
 
+/// Writes `all`; returns how many bytes went (fewer only with [`Unread::Drop`]).
 fn write_all_patiently(
     port: &mut TTYPort,
-    mut bytes: &[u8],
+    all: &[u8],
     stop: &AtomicBool,
     unread: Unread,
-) -> Result<()> {
+) -> Result<usize> {
+    let mut bytes = all;
     while !bytes.is_empty() {
         match port.write(bytes) {
             Ok(0) => return Err(anyhow!("pseudo-terminal closed")),
@@ -62,13 +79,18 @@ fn write_all_patiently(
                 ) =>
             {
                 if stop.load(Ordering::Relaxed) || unread == Unread::Drop {
-                    return Ok(());
+                    break;
                 }
             }
             Err(e) => return Err(e).context("writing to the pseudo-terminal"),
         }
     }
-    Ok(())
+    Ok(all.len() - bytes.len())
+}
+
+/// Frames ending in `bytes` (each ends with its 0 delimiter).
+fn frames_in(bytes: &[u8]) -> u64 {
+    bytes.iter().filter(|&&b| b == 0).count() as u64
 }
 
 impl VirtualPort {
@@ -81,30 +103,31 @@ impl VirtualPort {
 
     /// As [`VirtualPort::spawn`], choosing what happens to bytes nobody reads.
     pub fn spawn_with(mut node: VirtualNode, speed: Option<f64>, unread: Unread) -> Result<Self> {
-        let (mut master, slave) = TTYPort::pair().context("cannot create a pseudo-terminal")?;
-        let path = slave
-            .name()
-            .ok_or_else(|| anyhow!("pseudo-terminal has no name"))?;
-        master.set_timeout(Duration::from_millis(20))?;
+        let (mut wire, path) = Wire::plugged()?;
+        let plug = Arc::new(Mutex::new(Plug {
+            path,
+            ..Plug::default()
+        }));
         let stop = Arc::new(AtomicBool::new(false));
         let finished = Arc::new(AtomicBool::new(false));
         let progress = Arc::new(Mutex::new(Progress {
             total_s: node.scenario().duration_s(),
             ..Progress::default()
         }));
-        let (stop_t, finished_t, progress_t) = (stop.clone(), finished.clone(), progress.clone());
+        let (stop_t, finished_t, progress_t, plug_t) = (
+            stop.clone(),
+            finished.clone(),
+            progress.clone(),
+            plug.clone(),
+        );
         let handle = std::thread::Builder::new()
             .name("virtual-node".into())
             .spawn(move || {
-                // Keep our end of the slave open so the master never sees a hang-up
-                // while the host closes and reopens the port.
-                let _slave = slave;
                 let started = Instant::now();
                 let period_s = f64::from(node.scenario().sample_period_ms) / 1000.0;
                 let batch = ((0.25 / period_s).ceil() as u64).max(1);
                 let mut out = Vec::with_capacity(4096);
-                let mut rx = [0u8; 512];
-                let mut steps = 0u64;
+                let (mut steps, mut sent, mut dropped) = (0u64, 0u64, 0u64);
                 while !stop_t.load(Ordering::Relaxed) {
                     if !node.finished() {
                         node.step();
@@ -112,19 +135,22 @@ impl VirtualPort {
                     }
                     node.drain_frames(&mut out);
                     if !out.is_empty() {
-                        write_all_patiently(&mut master, &out, &stop_t, unread)?;
+                        let went = match wire.master.as_mut() {
+                            Some(master) => write_all_patiently(master, &out, &stop_t, unread)?,
+                            None => 0, // unplugged: the bytes are lost
+                        };
+                        let (whole, rest) = out.split_at(went.min(out.len()));
+                        (sent, dropped) = (sent + frames_in(whole), dropped + frames_in(rest));
                         out.clear();
                     }
                     if steps.is_multiple_of(batch) || node.finished() {
-                        if master.bytes_to_read().unwrap_or(0) > 0 {
-                            if let Ok(n) = master.read(&mut rx) {
-                                node.receive(&rx[..n]);
-                            }
-                        }
+                        wire.follow(&plug_t)?;
+                        wire.receive(&mut node);
                         let simulated = node.now_us() as f64 / 1e6;
                         if let Ok(mut p) = progress_t.lock() {
                             p.simulated_s = simulated.min(p.total_s);
                             p.truth = node.truth().clone();
+                            (p.frames_sent, p.frames_dropped) = (sent, dropped);
                         }
                         if node.finished() {
                             finished_t.store(true, Ordering::Relaxed);
@@ -140,7 +166,7 @@ impl VirtualPort {
                 Ok(node.truth().clone())
             })?;
         Ok(VirtualPort {
-            path,
+            plug,
             stop,
             finished,
             progress,
@@ -148,9 +174,24 @@ impl VirtualPort {
         })
     }
 
-    /// The pseudo-terminal path to open as a serial port.
-    pub fn path(&self) -> &str {
-        &self.path
+    /// Unplugs the node for `gap` (its time runs on, its bytes are lost),
+    /// then plugs it into a new pseudo-terminal: see [`VirtualPort::replugs`]
+    /// and [`VirtualPort::path`].
+    pub fn unplug_for(&self, gap: Duration) {
+        if let Ok(mut plug) = self.plug.lock() {
+            plug.unplug_for = Some(gap);
+        }
+    }
+
+    /// Times the node was plugged into a new pseudo-terminal.
+    pub fn replugs(&self) -> u64 {
+        self.plug.lock().map_or(0, |p| p.replugs)
+    }
+
+    /// The pseudo-terminal path to open as a serial port (a new one after
+    /// each replug).
+    pub fn path(&self) -> String {
+        self.plug.lock().map(|p| p.path.clone()).unwrap_or_default()
     }
 
     /// True once the whole scenario has been simulated and sent.
@@ -171,6 +212,65 @@ impl VirtualPort {
                 .join()
                 .map_err(|_| anyhow!("virtual node thread panicked"))?,
             None => Err(anyhow!("virtual node already stopped")),
+        }
+    }
+}
+
+/// The node's end of the line: a pseudo-terminal, or nothing while unplugged.
+struct Wire {
+    master: Option<TTYPort>,
+    /// Our end of the slave, kept open so the master never sees a hang-up
+    /// while the host closes and reopens the port.
+    slave: Option<TTYPort>,
+    /// Unplugged until then.
+    back_at: Option<Instant>,
+}
+
+impl Wire {
+    /// A new pseudo-terminal, and its slave's path.
+    fn plugged() -> Result<(Self, String)> {
+        let (mut master, slave) = TTYPort::pair().context("cannot create a pseudo-terminal")?;
+        let path = slave
+            .name()
+            .ok_or_else(|| anyhow!("pseudo-terminal has no name"))?;
+        master.set_timeout(Duration::from_millis(20))?;
+        let wire = Wire {
+            master: Some(master),
+            slave: Some(slave),
+            back_at: None,
+        };
+        Ok((wire, path))
+    }
+
+    /// Unplugs or plugs back in as `plug` asks.
+    fn follow(&mut self, plug: &Mutex<Plug>) -> Result<()> {
+        let Ok(mut plug) = plug.lock() else {
+            return Ok(());
+        };
+        if let Some(gap) = plug.unplug_for.take() {
+            // Closing both ends: the host's reads fail, as on a real unplug.
+            (self.master, self.slave) = (None, None);
+            self.back_at = Some(Instant::now() + gap);
+        }
+        if self.back_at.is_some_and(|t| Instant::now() >= t) {
+            let (wire, path) = Wire::plugged()?;
+            *self = wire;
+            plug.path = path;
+            plug.replugs += 1;
+        }
+        Ok(())
+    }
+
+    /// Hands the node whatever the host sent.
+    fn receive(&mut self, node: &mut VirtualNode) {
+        let Some(master) = self.master.as_mut() else {
+            return;
+        };
+        let mut rx = [0u8; 512];
+        if master.bytes_to_read().unwrap_or(0) > 0 {
+            if let Ok(n) = master.read(&mut rx) {
+                node.receive(&rx[..n]);
+            }
         }
     }
 }

@@ -164,7 +164,7 @@ impl PortObserver for LiveObserver<'_> {
         (self.done)(stats, idle_for)
     }
 
-    fn link_changed(&mut self, connected: bool, detail: &str) {
+    fn link_changed(&mut self, connected: bool, detail: &str, _host_time_us: u64) {
         if !matches!(self.display, Display::Screen { .. } | Display::Silent) {
             let _ = writeln!(
                 self.out,
