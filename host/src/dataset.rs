@@ -155,24 +155,26 @@ pub struct Exported {
     pub files: Vec<PathBuf>,
 }
 
-/// The first `Hello` in a log (read until one is found), for the node's
-/// identity and the files' metadata.
-fn first_hello(log: &Path) -> Result<(Option<LogHeader>, Option<Hello>)> {
-    let file =
-        std::fs::File::open(log).with_context(|| format!("cannot open log {}", log.display()))?;
+/// The first log's header and the first `Hello` in the logs (read until one
+/// is found), for the node's identity and the files' metadata.
+fn first_hello(logs: &[PathBuf]) -> Result<(Option<LogHeader>, Option<Hello>)> {
     let mut header = None;
-    let mut tracker = LinkTracker::new();
-    for record in LogReader::new(file) {
-        match &record.body {
-            RecordBody::Header(h) => header = Some(h.clone()),
-            RecordBody::Frame(bytes) => {
-                if let Ok(Some(t)) = tracker.accept_encoded(bytes) {
-                    if let UplinkBody::Hello(h) = t.message.body {
-                        return Ok((header, Some(h)));
+    for log in logs {
+        let mut tracker = LinkTracker::new();
+        for record in LogReader::new(crate::files::open_log(log)?.reader) {
+            match &record.body {
+                RecordBody::Header(h) => {
+                    header.get_or_insert_with(|| h.clone());
+                }
+                RecordBody::Frame(bytes) => {
+                    if let Ok(Some(t)) = tracker.accept_encoded(bytes) {
+                        if let UplinkBody::Hello(h) = t.message.body {
+                            return Ok((header, Some(h)));
+                        }
                     }
                 }
+                _ => {}
             }
-            _ => {}
         }
     }
     Ok((header, None))
@@ -197,11 +199,18 @@ struct Part {
 /// by the bytes read. Part files appear only when complete; every table gets
 /// at least one (empty when the log has no rows for it).
 pub fn export_log(log: &Path, dir: &Path, progress: &ProgressBar) -> Result<Exported> {
-    let stem = log.file_stem().map_or("log".into(), |s| {
+    // A gzipped log's part files are named as the log's would be.
+    let name = log
+        .file_name()
+        .map_or("log".into(), |n| n.to_string_lossy());
+    let name = name
+        .strip_suffix(crate::upkeep::COMPRESSED_SUFFIX)
+        .unwrap_or(&name);
+    let stem = Path::new(name).file_stem().map_or("log".into(), |s| {
         s.to_string_lossy()
             .replace(|c: char| !c.is_ascii_alphanumeric() && c != '-', "_")
     });
-    let mut exported = write_tables(log, progress, &|table, node_id, day| {
+    let mut exported = write_tables(&[log.to_path_buf()], progress, &|table, node_id, day| {
         dir.join(table.name())
             .join(format!("node={node_id}"))
             .join(format!("day={day}"))
@@ -230,16 +239,17 @@ pub fn export_log(log: &Path, dir: &Path, progress: &ProgressBar) -> Result<Expo
     Ok(exported)
 }
 
-/// Writes the log's tables as `PREFIX-reports.parquet`,
-/// `PREFIX-events.parquet` and `PREFIX-loads.parquet` (the dataset's
-/// columns, one file per table, each written even when it has no rows).
-pub fn export_files(log: &Path, prefix: &Path, progress: &ProgressBar) -> Result<Exported> {
+/// Writes the tables of the logs (in order, as one run) as
+/// `PREFIX-reports.parquet`, `PREFIX-events.parquet` and
+/// `PREFIX-loads.parquet` (the dataset's columns, one file per table, each
+/// written even when it has no rows).
+pub fn export_files(logs: &[PathBuf], prefix: &Path, progress: &ProgressBar) -> Result<Exported> {
     let place = |table: Table, _: &str, _: &str| {
         let mut name = prefix.as_os_str().to_owned();
         name.push(format!("-{}.parquet", table.name()));
         PathBuf::from(name)
     };
-    let mut exported = write_tables(log, progress, &place)?;
+    let mut exported = write_tables(logs, progress, &place)?;
     for table in Table::ALL {
         let path = place(table, "", "");
         if !exported.files.contains(&path) {
@@ -256,81 +266,112 @@ pub fn export_files(log: &Path, prefix: &Path, progress: &ProgressBar) -> Result
 /// Where a row goes: the file for a table, node id and UTC day.
 type Place<'a> = dyn Fn(Table, &str, &str) -> PathBuf + 'a;
 
-/// Reads the log at `log` and writes each row to the file `place` names
-/// for it; every file appears only when complete.
-fn write_tables(log: &Path, progress: &ProgressBar, place: &Place<'_>) -> Result<Exported> {
-    let (header, hello) = first_hello(log)?;
-    let mut node = NodeSeen::default();
-    if let Some(h) = &hello {
-        node.learn(&UplinkBody::Hello(h.clone()));
-    }
-    // A log with no Hello (protocol 1 before asking for one) is node zero.
-    let node_id = node.id.get_or_insert_with(|| format!("{:016x}", 0)).clone();
-    let metadata = file_metadata(header.as_ref(), hello.as_ref());
-    let file =
-        std::fs::File::open(log).with_context(|| format!("cannot open log {}", log.display()))?;
-    let mut reader = LogReader::new(file);
+/// Reads the logs at `logs`, in order as one run, and writes each row to the
+/// file `place` names for it; every file appears only when complete.
+fn write_tables(logs: &[PathBuf], progress: &ProgressBar, place: &Place<'_>) -> Result<Exported> {
+    let (header, hello) = first_hello(logs)?;
+    let mut tables = Tables::new(header.as_ref(), hello.as_ref());
     let mut tracker = LinkTracker::new();
-    // One open file per table: rows come in time order, so a table's file
-    // for a day is finished when the next day starts (memory stays at one
-    // row group per table, whatever the log's length).
-    let mut open: BTreeMap<Table, (PathBuf, Part)> = BTreeMap::new();
-    let mut written: std::collections::BTreeSet<PathBuf> = std::collections::BTreeSet::new();
-    let mut exported = Exported {
-        node_id: node_id.clone(),
-        ..Exported::default()
-    };
-    let (mut shown, mut records) = (0u64, 0u64);
-    while let Some(record) = reader.next() {
-        records += 1;
-        if records.is_multiple_of(crate::progress::RECORDS_PER_UPDATE) {
-            progress.inc(reader.offset() - shown);
-            shown = reader.offset();
+    for log in logs {
+        let mut reader = LogReader::new(crate::files::open_log(log)?.reader);
+        let (mut shown, mut records) = (0u64, 0u64);
+        while let Some(record) = reader.next() {
+            records += 1;
+            if records.is_multiple_of(crate::progress::RECORDS_PER_UPDATE) {
+                progress.inc(reader.offset() - shown);
+                shown = reader.offset();
+            }
+            let RecordBody::Frame(bytes) = &record.body else {
+                continue;
+            };
+            if let Ok(Some(t)) = tracker.accept_encoded(bytes) {
+                tables.push(t, record.host_time_us, place)?;
+            }
         }
-        let RecordBody::Frame(bytes) = &record.body else {
-            continue;
-        };
-        let Ok(Some(t)) = tracker.accept_encoded(bytes) else {
-            continue;
-        };
-        node.learn(&t.message.body);
+        progress.inc(reader.offset().saturating_sub(shown));
+        if reader
+            .warnings()
+            .iter()
+            .any(|w| matches!(w, crate::log::ReadWarning::NotALog))
+        {
+            use crate::failure::FailedAs;
+            return Err(
+                anyhow::anyhow!("{}: {}", log.display(), crate::log::ReadWarning::NotALog)
+                    .failed_as(crate::failure::Failure::BadInput),
+            );
+        }
+    }
+    tables.finish()
+}
+
+/// The tables being written: one open file per table. Rows come in time
+/// order, so a table's file for a day is finished when the next day starts
+/// (memory stays at one row group per table, whatever the log's length).
+struct Tables {
+    node: NodeSeen,
+    node_id: String,
+    metadata: Vec<parquet::file::metadata::KeyValue>,
+    open: BTreeMap<Table, (PathBuf, Part)>,
+    written: std::collections::BTreeSet<PathBuf>,
+    exported: Exported,
+}
+
+impl Tables {
+    /// Tables of the node that sent `hello` (none: node zero), recorded as `header` says.
+    fn new(header: Option<&LogHeader>, hello: Option<&Hello>) -> Self {
+        let mut node = NodeSeen::default();
+        if let Some(h) = hello {
+            node.learn(&UplinkBody::Hello(h.clone()));
+        }
+        // A log with no Hello (protocol 1 before asking for one) is node zero.
+        let node_id = node.id.get_or_insert_with(|| format!("{:016x}", 0)).clone();
+        Tables {
+            metadata: file_metadata(header, hello),
+            exported: Exported {
+                node_id: node_id.clone(),
+                ..Exported::default()
+            },
+            node,
+            node_id,
+            open: BTreeMap::new(),
+            written: std::collections::BTreeSet::new(),
+        }
+    }
+
+    /// Adds a message received at `host_time_us` to its table's file.
+    fn push(&mut self, t: Tracked, host_time_us: u64, place: &Place<'_>) -> Result<()> {
+        self.node.learn(&t.message.body);
         let Some(table) = Table::of(&t.message.body) else {
-            continue;
+            return Ok(());
         };
-        let place = place(table, &node_id, &utc_day(record.host_time_us));
-        if open.get(&table).is_none_or(|(at, _)| *at != place) {
-            if let Some((_, part)) = open.remove(&table) {
-                exported.files.push(finish(part, table, &node)?);
+        let place = place(table, &self.node_id, &utc_day(host_time_us));
+        if self.open.get(&table).is_none_or(|(at, _)| *at != place) {
+            if let Some((_, part)) = self.open.remove(&table) {
+                self.exported.files.push(finish(part, table, &self.node)?);
             }
-            let path = unused(&place, &written);
-            written.insert(path.clone());
-            open.insert(table, (place, open_part(&path, table, &metadata)?));
+            let path = unused(&place, &self.written);
+            self.written.insert(path.clone());
+            let part = open_part(&path, table, &self.metadata)?;
+            self.open.insert(table, (place, part));
         }
-        if let Some((_, part)) = open.get_mut(&table) {
-            part.rows.push((t, record.host_time_us));
+        if let Some((_, part)) = self.open.get_mut(&table) {
+            part.rows.push((t, host_time_us));
             if part.rows.len() >= BATCH_ROWS {
-                write_rows(part, table, &node)?;
+                write_rows(part, table, &self.node)?;
             }
         }
-        *exported.rows.entry(table.name()).or_default() += 1;
+        *self.exported.rows.entry(table.name()).or_default() += 1;
+        Ok(())
     }
-    progress.inc(reader.offset().saturating_sub(shown));
-    if reader
-        .warnings()
-        .iter()
-        .any(|w| matches!(w, crate::log::ReadWarning::NotALog))
-    {
-        use crate::failure::FailedAs;
-        return Err(
-            anyhow::anyhow!("{}: {}", log.display(), crate::log::ReadWarning::NotALog)
-                .failed_as(crate::failure::Failure::BadInput),
-        );
+
+    /// Finishes every open file.
+    fn finish(mut self) -> Result<Exported> {
+        for (table, (_, part)) in std::mem::take(&mut self.open) {
+            self.exported.files.push(finish(part, table, &self.node)?);
+        }
+        self.exported.files.sort();
+        Ok(self.exported)
     }
-    for (table, (_, part)) in open {
-        exported.files.push(finish(part, table, &node)?);
-    }
-    exported.files.sort();
-    Ok(exported)
 }
 
 /// `path`, or when this export has written it already (the host clock went

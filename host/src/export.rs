@@ -66,11 +66,16 @@ fn refuse_non_log<R: std::io::Read>(reader: &LogReader<R>, name: &str) -> Result
     Ok(())
 }
 
-/// Writes `PREFIX-reports.csv` and `PREFIX-events.csv` from the log at `log`
-/// (`-`: standard input), advancing `progress` by the bytes read; each file
-/// appears only once complete.
-pub fn export_csv(log: &Path, prefix: &Path, progress: &ProgressBar) -> Result<Exported> {
-    let input = crate::files::open_log(log)?;
+/// Opens the logs at `logs` (`-`: standard input), gzipped or not.
+pub fn open_logs(logs: &[PathBuf]) -> Result<Vec<Input>> {
+    logs.iter().map(|log| crate::files::open_log(log)).collect()
+}
+
+/// Writes `PREFIX-reports.csv` and `PREFIX-events.csv` from the logs at
+/// `logs` (in order, as one run; `-`: standard input), advancing `progress`
+/// by the bytes read; each file appears only once complete.
+pub fn export_csv(logs: &[PathBuf], prefix: &Path, progress: &ProgressBar) -> Result<Exported> {
+    let input = open_logs(logs)?;
     let reports_path = suffixed(prefix, "-reports.csv");
     let events_path = suffixed(prefix, "-events.csv");
     let mut reports_out = std::io::BufWriter::new(AtomicFile::create(&reports_path)?);
@@ -90,26 +95,47 @@ pub fn export_csv(log: &Path, prefix: &Path, progress: &ProgressBar) -> Result<E
     })
 }
 
-/// Writes the reports table and the events table of the log read from
-/// `input` as CSV, advancing `progress` by the bytes read; returns their row
-/// counts.
+/// Writes the reports table and the events table of the logs read from
+/// `inputs` (in order, as one run) as CSV, advancing `progress` by the bytes
+/// read; returns their row counts.
 pub fn write_csv(
-    input: Input,
+    inputs: Vec<Input>,
     reports_out: &mut dyn Write,
     events_out: &mut dyn Write,
     progress: &ProgressBar,
 ) -> Result<(u64, u64)> {
-    let (file, name) = (input.reader, input.name);
     writeln!(reports_out, "{}", report_header())?;
     writeln!(events_out, "{}", event_header())?;
     let mut tracker = LinkTracker::new();
-    let (mut reports, mut events) = (0, 0);
-    let mut reader = LogReader::new(file);
+    let mut rows = (0, 0);
+    let mut done_before = 0;
+    for input in inputs {
+        let mut reader = LogReader::new(input.reader);
+        let at = |offset| progress.set_position(done_before + offset);
+        write_csv_rows(&mut reader, &mut tracker, reports_out, events_out, &mut rows, at)?;
+        done_before += reader.offset();
+        refuse_non_log(&reader, &input.name)?;
+    }
+    reports_out.flush()?;
+    events_out.flush()?;
+    Ok(rows)
+}
+
+/// Writes the rows of one log to `reports_out` and `events_out`, counting
+/// them in `rows`; `at` is told the offset read now and then.
+fn write_csv_rows<R: std::io::Read>(
+    reader: &mut LogReader<R>,
+    tracker: &mut LinkTracker,
+    reports_out: &mut dyn Write,
+    events_out: &mut dyn Write,
+    (reports, events): &mut (u64, u64),
+    at: impl Fn(u64),
+) -> Result<()> {
     let mut records = 0u64;
     while let Some(record) = reader.next() {
         records += 1;
         if records.is_multiple_of(crate::progress::RECORDS_PER_UPDATE) {
-            progress.set_position(reader.offset());
+            at(reader.offset());
         }
         let RecordBody::Frame(bytes) = &record.body else {
             continue;
@@ -128,30 +154,27 @@ pub fn write_csv(
                 write!(reports_out, "{boot},{seq},{up},{host}")?;
                 columns::write_csv_cells(reports_out, &columns::REPORT, r)?;
                 writeln!(reports_out)?;
-                reports += 1;
+                *reports += 1;
             }
             UplinkBody::Event(e) => {
                 write!(events_out, "{boot},{seq},{up},{host}")?;
                 columns::write_csv_cells(events_out, &columns::EVENT, e)?;
                 writeln!(events_out)?;
-                events += 1;
+                *events += 1;
             }
             _ => {}
         }
     }
-    refuse_non_log(&reader, &name)?;
-    reports_out.flush()?;
-    events_out.flush()?;
-    Ok((reports, events))
+    Ok(())
 }
 
 /// Writes `PREFIX-reports.parquet`, `PREFIX-events.parquet` and
-/// `PREFIX-loads.parquet` from the log at `log`: the dataset's columns
+/// `PREFIX-loads.parquet` from the logs (in order, as one run): the dataset's columns
 /// (docs/dataset.md), one file per table, each appearing only when complete.
 pub fn export_parquet(
-    log: &Path,
+    logs: &[PathBuf],
     prefix: &Path,
     progress: &ProgressBar,
 ) -> Result<crate::dataset::Exported> {
-    crate::dataset::export_files(log, prefix, progress)
+    crate::dataset::export_files(logs, prefix, progress)
 }

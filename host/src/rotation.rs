@@ -1,5 +1,6 @@
 //! When a recording goes on in a new log: at the start of every UTC day
-//! (`record --rotate daily`), and when the recorder gets SIGHUP (the usual
+//! (`record --rotate daily`), when the log reaches a size (`--rotate-mb`),
+//! and when the recorder gets SIGHUP (the usual
 //! signal of tools that move logs away). The old log ends with a note naming
 //! the new one, so a set of rotated logs reads back in order.
 
@@ -8,8 +9,9 @@ use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
 use std::sync::Arc;
 use std::time::{Duration, Instant};
 
-/// How often a daily rotation looks at the date.
-const DAY_CHECK: Duration = Duration::from_secs(1);
+/// How often the date (daily rotation) and the log's size (a size limit)
+/// are looked at.
+const CHECK_EVERY: Duration = Duration::from_secs(1);
 
 use crate::link::{LinkStats, Tracked};
 use crate::record_status::StatusBoard;
@@ -64,7 +66,9 @@ pub struct Rotating<'a> {
     reopen: &'a Reopen,
     seen: u64,
     day: String,
-    day_checked: Instant,
+    checked: Instant,
+    /// A new log when the current one has this many bytes.
+    max_bytes: Option<u64>,
     dir: PathBuf,
     name: String,
     /// The port and where its status is kept, when several ports record.
@@ -103,7 +107,8 @@ impl<'a> Rotating<'a> {
             seen: reopen.generation(),
             reopen,
             day: today(),
-            day_checked: Instant::now(),
+            checked: Instant::now(),
+            max_bytes: None,
             dir,
             name,
             status,
@@ -113,6 +118,12 @@ impl<'a> Rotating<'a> {
             came_from: None,
             seeking: None,
         }
+    }
+
+    /// Also goes on in a new log when the current one has `max_bytes`.
+    pub fn limited_to(mut self, max_bytes: Option<u64>) -> Self {
+        self.max_bytes = max_bytes;
+        self
     }
 
     /// Writing `current` now; closed logs are handed to `upkeep`.
@@ -197,12 +208,17 @@ impl PortObserver for Rotating<'_> {
             return Some(NextLog::Earlier(earlier));
         }
         let generation = self.reopen.generation();
-        let mut new_day = None;
-        if self.every == Every::Daily && self.day_checked.elapsed() >= DAY_CHECK {
-            self.day_checked = Instant::now();
-            new_day = Some(today()).filter(|day| *day != self.day);
+        let (mut new_day, mut full) = (None, false);
+        if self.checked.elapsed() >= CHECK_EVERY {
+            self.checked = Instant::now();
+            if self.every == Every::Daily {
+                new_day = Some(today()).filter(|day| *day != self.day);
+            }
+            full = self
+                .max_bytes
+                .is_some_and(|max| std::fs::metadata(&self.current).is_ok_and(|m| m.len() >= max));
         }
-        if generation == self.seen && new_day.is_none() {
+        if generation == self.seen && new_day.is_none() && !full {
             return None;
         }
         self.seen = generation;
@@ -216,5 +232,53 @@ impl PortObserver for Rotating<'_> {
         self.upkeep.opened(&path);
         self.closing = Some(std::mem::replace(&mut self.current, path.clone()));
         Some(NextLog::New(path))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    struct Quiet;
+
+    impl PortObserver for Quiet {
+        fn message(&mut self, _: &Tracked, _: u64, _: &LinkStats) {}
+        fn tick(&mut self, _: &LinkStats, _: Duration) -> bool {
+            false
+        }
+    }
+
+    #[test]
+    fn a_log_that_reaches_its_size_limit_is_followed_by_a_new_one() {
+        let dir = tempfile::tempdir().unwrap();
+        let current = dir.path().join("node-20261203000000.gleanlog");
+        std::fs::write(&current, [0u8; 999]).unwrap();
+        let (mut quiet, reopen) = (Quiet, Reopen::default());
+        let mut rotating = Rotating::new(
+            &mut quiet,
+            Every::Never,
+            &reopen,
+            dir.path().to_path_buf(),
+            "node".into(),
+            None,
+        )
+        .keeping(&current, Upkeep::none())
+        .limited_to(Some(1000));
+        let a_while_ago = Instant::now() - CHECK_EVERY;
+        rotating.checked = a_while_ago;
+        assert_eq!(rotating.next_log(), None, "999 bytes of 1000");
+        std::fs::write(&current, [0u8; 1000]).unwrap();
+        assert_eq!(rotating.next_log(), None, "looked at once a second");
+        rotating.checked = a_while_ago;
+        let Some(NextLog::New(next)) = rotating.next_log() else {
+            panic!("a new log at 1000 bytes");
+        };
+        assert_eq!(next.parent(), Some(dir.path()));
+        assert!(next
+            .file_name()
+            .unwrap()
+            .to_string_lossy()
+            .starts_with("node-"));
+        assert_ne!(next, current);
     }
 }

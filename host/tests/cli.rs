@@ -1103,11 +1103,18 @@ fn a_dataset_grows_log_by_log_and_a_bad_log_is_named() {
     assert_eq!(out.status.code(), Some(6));
     assert!(String::from_utf8_lossy(&out.stderr).contains("notes.gleanlog"));
     assert_eq!(parts("reports").len(), 3);
-    // CSV takes one log.
-    assert_eq!(
-        exit_code(&["export", extra.to_str().unwrap(), notes.to_str().unwrap()]),
-        Some(2)
-    );
+    // CSV reads several logs as one run: one that is not a log is named,
+    // exit 6, and no half-made file appears.
+    let prefix = dir.path().join("both");
+    let out = gleaner()
+        .args(["export", "--prefix", prefix.to_str().unwrap()])
+        .arg(&extra)
+        .arg(&notes)
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(6));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("notes.gleanlog"));
+    assert!(!dir.path().join("both-reports.csv").exists());
 }
 
 #[test]
@@ -1397,10 +1404,23 @@ fn a_compressed_rotated_recording_reads_and_replays_as_one_run() {
     )
     .unwrap();
     std::fs::write(&unzipped, bytes).unwrap();
-    let csv = |log: &str| run(&["export", log, "--prefix", "-"]);
-    let (from_gz, from_plain) = (csv(gz_arg), csv(unzipped.to_str().unwrap()));
-    assert!(from_gz.0 && from_plain.0, "{}{}", from_gz.2, from_plain.2);
-    assert_eq!(from_gz.1, from_plain.1);
+    let csv = |logs: &[&str]| {
+        let (ok, out, err) = run(&[&["export", "--prefix", "-"], logs].concat());
+        assert!(ok, "{err}");
+        out
+    };
+    assert_eq!(csv(&[gz_arg]), csv(&[unzipped.to_str().unwrap()]));
+    // Both logs export as one run: every report row of each, one header.
+    let rows = |csv: &str| csv.lines().count() - 1;
+    let both = csv(&[gz_arg, plain_arg]);
+    assert_eq!(
+        rows(&both),
+        rows(&csv(&[gz_arg])) + rows(&csv(&[plain_arg]))
+    );
+    assert_eq!(
+        Some(rows(&both) as u64),
+        one["message_counts"]["report"].as_u64()
+    );
 }
 
 #[test]

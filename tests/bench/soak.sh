@@ -1,7 +1,9 @@
 #!/usr/bin/env bash
 # Gateway soak: NODES virtual nodes (invented scenarios, each its own
 # identity, SIM_DAYS simulated days at SPEED times real time) on
-# pseudo-terminals behind by-id style links, recorded by one `gleaner record`
+# pseudo-terminals behind by-id style links (a node holds its time while
+# its line is full, so every frame it sends while plugged in is on the line),
+# recorded by one `gleaner record`
 # (daily logs, gzip, a free-space floor) while faults are made:
 #   - the recorder killed with SIGKILL KILLS times and started again;
 #   - REPLUGS unplug-and-replug events of random nodes (SIGUSR1 to `sim serve`:
@@ -70,7 +72,7 @@ for i in $(seq 0 $((nodes - 1))); do
         -e "s/^duration_h = .*/duration_h = $(awk "BEGIN{print $days * 24}")/" > "$work/scenario-$(id "$i").toml"
 done
 serve() { # index, output file
-  "$bin" sim serve "$work/scenario-$(id "$1").toml" --speed "$speed" --boot-id "$((100 + $1))" \
+  "$bin" sim serve "$work/scenario-$(id "$1").toml" --speed "$speed" --boot-id "$((100 + $1))" --wait-for-reader \
     --link "$work/by-id/node-$(id "$1")" > "$2" 2>&1 &
   serving[$1]=$!
 }

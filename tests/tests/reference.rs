@@ -393,7 +393,12 @@ fn the_parquet_export_gives_the_report_totals_in_pyarrow_and_duckdb() {
     .unwrap();
     let report = gleaner::analysis::analyze_file(&log).unwrap();
     let prefix = dir.path().join("out");
-    gleaner::export::export_parquet(&log, &prefix, &gleaner::progress::none()).unwrap();
+    gleaner::export::export_parquet(
+        std::slice::from_ref(&log),
+        &prefix,
+        &gleaner::progress::none(),
+    )
+    .unwrap();
     let totals = python("parquet.py", &[prefix.to_str().unwrap()]);
     let cut_s = report.seconds_in("cutoff").unwrap();
     for reader in ["pyarrow", "duckdb"] {

@@ -110,7 +110,12 @@ fn the_html_page_has_one_valid_svg_per_plot() {
 fn csv_export_reproduces_the_report_totals() {
     let dir = tempfile::tempdir().unwrap();
     let (log, report, _) = simulated(scenario("boiler-pipe", Some(3.0)), dir.path());
-    let done = export_csv(&log, &dir.path().join("out"), &gleaner::progress::none()).unwrap();
+    let done = export_csv(
+        std::slice::from_ref(&log),
+        &dir.path().join("out"),
+        &gleaner::progress::none(),
+    )
+    .unwrap();
     let text = std::fs::read_to_string(&done.reports_path).unwrap();
     let mut lines = text.lines();
     let header: Vec<&str> = lines.next().unwrap().split(',').collect();
@@ -180,9 +185,12 @@ fn parquet_export_reads_back_with_the_report_totals() {
     use arrow_array::{Array, Int64Array, StringArray, TimestampMicrosecondArray};
     let dir = tempfile::tempdir().unwrap();
     let (log, report, _) = simulated(scenario("boiler-pipe", Some(3.0)), dir.path());
-    let done =
-        gleaner::export::export_parquet(&log, &dir.path().join("out"), &gleaner::progress::none())
-            .unwrap();
+    let done = gleaner::export::export_parquet(
+        std::slice::from_ref(&log),
+        &dir.path().join("out"),
+        &gleaner::progress::none(),
+    )
+    .unwrap();
     let reports_file = dir.path().join("out-reports.parquet");
     assert!(done.files.contains(&reports_file), "{:?}", done.files);
     let file = std::fs::File::open(&reports_file).unwrap();

@@ -15,8 +15,9 @@ use crate::files::is_stdio;
 /// dataset for DuckDB or Spark (`--dataset DIR`).
 #[derive(Debug, Args)]
 pub struct Cmd {
-    /// The log (`-`: standard input); with --dataset, any number of logs
-    /// and folders of logs.
+    /// The log (`-`: standard input), or several read in the order given as
+    /// one run (a rotated recording, gzipped or not); with --dataset, any
+    /// number of logs and folders of logs.
     #[arg(required = true, value_name = "LOG")]
     pub logs: Vec<PathBuf>,
     /// Add the logs to the Parquet dataset in this folder (created if
@@ -43,16 +44,13 @@ impl Cmd {
         if let Some(dir) = &self.dataset {
             return export_dataset(&self.logs, dir);
         }
-        let [log] = self.logs.as_slice() else {
-            return Err(anyhow::anyhow!(
-                "{} logs given: CSV and --parquet take one log (run once per log), --dataset DIR takes many",
-                self.logs.len()
-            )
-            .failed_as(Failure::Usage));
+        let logs = self.logs.as_slice();
+        let Some(log) = logs.first() else {
+            return Err(anyhow::anyhow!("name a log").failed_as(Failure::Usage));
         };
         let prefix = match (&self.prefix, is_stdio(log)) {
             (Some(prefix), _) => prefix.clone(),
-            (None, false) => log.with_extension(""),
+            (None, false) => default_prefix(log),
             (None, true) => {
                 return Err(anyhow::anyhow!(
                 "a log read from standard input needs --prefix (a path, or - for standard output)"
@@ -61,7 +59,7 @@ impl Cmd {
             }
         };
         if is_stdio(&prefix) {
-            return self.to_stdout(log);
+            return self.to_stdout(logs);
         }
         if self.events {
             return Err(anyhow::anyhow!(
@@ -69,10 +67,10 @@ impl Cmd {
             )
             .failed_as(Failure::Usage));
         }
-        let total = crate::progress::total_size([log.as_path()]);
+        let total = crate::progress::total_size(logs.iter().map(PathBuf::as_path));
         let progress = crate::progress::bytes(total, &format!("exporting {}", log.display()));
         if self.parquet {
-            let done = crate::export::export_parquet(log, &prefix, &progress)?;
+            let done = crate::export::export_parquet(logs, &prefix, &progress)?;
             progress.finish_and_clear();
             for table in crate::dataset::Table::ALL {
                 let rows = done.rows.get(table.name()).copied().unwrap_or(0);
@@ -85,7 +83,7 @@ impl Cmd {
             }
             return Ok(());
         }
-        let done = export_csv(log, &prefix, &progress)?;
+        let done = export_csv(logs, &prefix, &progress)?;
         progress.finish_and_clear();
         say!(
             "{} reports to {}",
@@ -97,14 +95,14 @@ impl Cmd {
     }
 
     /// Writes one table as CSV to standard output.
-    fn to_stdout(&self, log: &std::path::Path) -> Result<()> {
+    fn to_stdout(&self, logs: &[PathBuf]) -> Result<()> {
         if self.parquet {
             return Err(anyhow::anyhow!(
                 "Parquet goes to files only: give --prefix a path (standard output takes CSV)"
             )
             .failed_as(Failure::Usage));
         }
-        let input = crate::files::open_log(log)?;
+        let input = crate::export::open_logs(logs)?;
         let stdout = std::io::stdout();
         let mut out = std::io::BufWriter::new(stdout.lock());
         let mut sink = std::io::sink();
@@ -190,4 +188,18 @@ fn export_dataset(paths: &[PathBuf], dir: &std::path::Path) -> Result<()> {
         .failed_as(Failure::BadInput));
     }
     Ok(())
+}
+
+/// The prefix of a log's exported files: its path without `.gleanlog` (and
+/// `.gz` for a gzipped one).
+fn default_prefix(log: &std::path::Path) -> PathBuf {
+    let gz = log
+        .extension()
+        .is_some_and(|e| format!(".{}", e.to_string_lossy()) == crate::upkeep::COMPRESSED_SUFFIX);
+    let log = if gz {
+        log.with_extension("")
+    } else {
+        log.to_path_buf()
+    };
+    log.with_extension("")
 }

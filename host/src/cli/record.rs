@@ -68,6 +68,9 @@ pub struct Cmd {
     /// note naming the next.
     #[arg(long, value_enum, default_value = "never", hide_possible_values = true)]
     pub rotate: Every,
+    /// Also start a new log when the current one reaches this many megabytes.
+    #[arg(long, value_name = "MB", value_parser = clap::value_parser!(u64).range(1..))]
+    pub rotate_mb: Option<u64>,
     /// Remove these ports' closed logs in the folder (from this recording or
     /// an earlier one; never a log being written) last written more than
     /// this many days ago. Other files are never touched.
@@ -171,7 +174,8 @@ impl Cmd {
         let (dir, name) = log_place(path);
         let status = board.map(|b| (b, port.clone()));
         let mut rotating = Rotating::new(&mut scripted, self.rotate, reopen, dir, name, status)
-            .keeping(path, upkeep);
+            .keeping(path, upkeep)
+            .limited_to(self.rotate_mb.map(|mb| mb.saturating_mul(BYTES_PER_MB)));
         let result = run_port(&mut recorder, &port, reach.baud, stop, &mut rotating);
         if let Some(to) = board.and_then(|b| b.moved_to(&port)) {
             let note = format!("the node came back on {to}: its recording goes on in this log");

@@ -124,6 +124,11 @@ pub struct Serve {
     /// Boot id of the virtual node.
     #[arg(long, default_value_t = 1)]
     pub boot_id: u32,
+    /// While plugged in, hold simulated time until the reader takes the
+    /// node's bytes instead of dropping what the line cannot take (for
+    /// measuring a recorder's own losses on a busy machine).
+    #[arg(long)]
+    pub wait_for_reader: bool,
     /// Put the node on a virtual bench: lines on standard input set what its
     /// channels see (`input_v 0.1`, `input_a 0.002`, `output_v 3.3`,
     /// `output_a 0.0005`, `input_v off`, `off`), to practise calibration.
@@ -162,7 +167,12 @@ impl Serve {
             node.attach_bench(bench.clone());
             obey_bench_lines(bench);
         }
-        let port = VirtualPort::spawn_with(node, Some(self.speed), Unread::Drop)?;
+        let unread = if self.wait_for_reader {
+            Unread::Wait
+        } else {
+            Unread::Drop
+        };
+        let port = VirtualPort::spawn_with(node, Some(self.speed), unread)?;
         let shown = match &self.link {
             Some(link) => {
                 std::os::unix::fs::symlink(port.path(), link)
@@ -204,8 +214,10 @@ impl Serve {
         }
         writeln!(
             out,
-            "frames sent whole {}, not sent {} (unplugged, or nobody reading)",
-            progress.frames_sent, progress.frames_dropped
+            "frames sent whole {}, not sent {} (unplugged, or nobody reading); {:.1} simulated hours",
+            progress.frames_sent,
+            progress.frames_dropped,
+            progress.simulated_s / 3600.0
         )?;
         Ok(())
     }
