@@ -112,7 +112,14 @@ pub fn write_csv(
     for input in inputs {
         let mut reader = LogReader::new(input.reader);
         let at = |offset| progress.set_position(done_before + offset);
-        write_csv_rows(&mut reader, &mut tracker, reports_out, events_out, &mut rows, at)?;
+        write_csv_rows(
+            &mut reader,
+            &mut tracker,
+            reports_out,
+            events_out,
+            &mut rows,
+            at,
+        )?;
         done_before += reader.offset();
         refuse_non_log(&reader, &input.name)?;
     }

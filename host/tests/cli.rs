@@ -1298,6 +1298,55 @@ fn several_ports_record_at_once_one_log_each() {
 }
 
 #[test]
+fn record_named_takes_the_ports_of_the_configuration_file() {
+    let nodes = [
+        Served::start("greenhouse-day"),
+        Served::start("boiler-pipe"),
+    ];
+    let dir = tempfile::tempdir().unwrap();
+    let config = dir.path().join("config.toml");
+    std::fs::write(
+        &config,
+        format!(
+            "[ports]\ngreenhouse-3 = \"{}\"\nboiler = \"{}\"\nunplugged = \"/dev/gleaner-no-such-port\"\n",
+            nodes[0].path, nodes[1].path
+        ),
+    )
+    .unwrap();
+    let logs = dir.path().join("logs");
+    let out = gleaner()
+        .env("GLEANER_CONFIG", &config)
+        .args(["record", "--named", "--dir", logs.to_str().unwrap()])
+        .args(["--duration", "3", "--status-every", "0"])
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    // One log per present port, named after its alias.
+    let mut names: Vec<String> = std::fs::read_dir(&logs)
+        .unwrap()
+        .flatten()
+        .map(|e| e.file_name().to_string_lossy().into_owned())
+        .filter(|n| n.ends_with(".gleanlog"))
+        .map(|n| n.split('-').next().unwrap_or_default().to_owned())
+        .collect();
+    names.sort();
+    assert_eq!(names, ["boiler", "greenhouse"]);
+    // No names at all: a usage error that says so.
+    std::fs::write(&config, "baud = 115200\n").unwrap();
+    let out = gleaner()
+        .env("GLEANER_CONFIG", &config)
+        .args(["record", "--named"])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("names none"));
+}
+
+#[test]
 fn several_ports_need_a_folder_not_one_file() {
     let (ok, _, err) = run(&["record", "--out", "one.gleanlog", "/dev/a", "/dev/b"]);
     assert!(!ok);

@@ -37,6 +37,10 @@ pub struct Cmd {
     /// The port and line rate.
     #[command(flatten)]
     pub link: super::PortArgs,
+    /// Record every port named in the configuration file's `[ports]` (as
+    /// if each name were given): those present now, and any that appear.
+    #[arg(long)]
+    pub named: bool,
     /// Log file to create (default: a new file in --dir).
     #[arg(long)]
     pub out: Option<PathBuf>,
@@ -87,7 +91,7 @@ pub struct Cmd {
     /// Instead of recording, say what a running several-port recording in
     /// --dir is doing (from its status.json): each port's node, state, last
     /// frame, frames lost and damaged, gaps and log.
-    #[arg(long, conflicts_with_all = ["ports", "out", "ping", "set_config", "json_lines"])]
+    #[arg(long, conflicts_with_all = ["ports", "named", "out", "ping", "set_config", "json_lines"])]
     pub status: bool,
 }
 
@@ -101,6 +105,18 @@ impl Cmd {
                 .failed_as(crate::failure::Failure::BadInput)?;
             print!("{said}");
             return Ok(());
+        }
+        if self.named {
+            let config = crate::user_config::UserConfig::load()?;
+            if config.ports.is_empty() {
+                return Err(anyhow::anyhow!(
+                    "--named records the ports of the configuration file's [ports], and it names none"
+                ))
+                .failed_as(crate::failure::Failure::Usage);
+            }
+            let mut all = self;
+            all.ports.extend(config.ports.into_keys());
+            return all.record_many();
         }
         if self.ports.len() > 1 || self.ports.first().is_some_and(|p| is_pattern(p)) {
             return self.record_many();
