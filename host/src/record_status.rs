@@ -183,6 +183,10 @@ fn counters(s: &mut PortStatus, stats: &LinkStats) {
 }
 
 impl PortObserver for Reporting<'_> {
+    fn inner(&mut self) -> Option<&mut dyn PortObserver> {
+        Some(&mut *self.inner)
+    }
+
     fn message(&mut self, tracked: &Tracked, host_time_us: u64, stats: &LinkStats) {
         self.board.update(&self.port, |s| {
             s.last_frame_us = Some(host_time_us);
@@ -211,10 +215,6 @@ impl PortObserver for Reporting<'_> {
             }
         });
         self.inner.link_changed(connected, detail, host_time_us);
-    }
-
-    fn outgoing(&mut self) -> Option<Vec<u8>> {
-        self.inner.outgoing()
     }
 
     fn disk_full(&mut self, full: bool, frames_not_written: u64) {

@@ -369,25 +369,47 @@ impl Output {
     }
 }
 
-/// What the port loop reports to its caller between reads.
+/// What the port loop reports to its caller between reads. An observer
+/// that wraps another ([`PortObserver::inner`]) passes on, by default, every
+/// call it does not handle itself; one that wraps none must handle
+/// [`PortObserver::message`] and [`PortObserver::tick`].
 pub trait PortObserver {
+    /// The observer this one wraps, if any.
+    fn inner(&mut self) -> Option<&mut dyn PortObserver> {
+        None
+    }
     /// A message arrived; the recorder stamped its frame `host_time_us`.
-    fn message(&mut self, tracked: &Tracked, host_time_us: u64, stats: &LinkStats);
+    fn message(&mut self, tracked: &Tracked, host_time_us: u64, stats: &LinkStats) {
+        if let Some(inner) = self.inner() {
+            inner.message(tracked, host_time_us, stats);
+        }
+    }
     /// Called after every read (or timeout): return true to stop.
-    fn tick(&mut self, stats: &LinkStats, idle_for: Duration) -> bool;
-    /// The port went away or came back.
-    fn link_changed(&mut self, _connected: bool, _detail: &str, _host_time_us: u64) {}
+    fn tick(&mut self, stats: &LinkStats, idle_for: Duration) -> bool {
+        self.inner()
+            .is_some_and(|inner| inner.tick(stats, idle_for))
+    }
+    /// The port went away or came back (at `host_time_us`).
+    fn link_changed(&mut self, connected: bool, detail: &str, host_time_us: u64) {
+        if let Some(inner) = self.inner() {
+            inner.link_changed(connected, detail, host_time_us);
+        }
+    }
     /// Bytes to send to the node now (commands), if any.
     fn outgoing(&mut self) -> Option<Vec<u8>> {
-        None
+        self.inner().and_then(|inner| inner.outgoing())
     }
     /// Another log to go on in now, if any.
     fn next_log(&mut self) -> Option<NextLog> {
-        None
+        self.inner().and_then(|inner| inner.next_log())
     }
     /// The disk filled (`full`) or has room again; frames received and not
     /// written so far.
-    fn disk_full(&mut self, _full: bool, _frames_not_written: u64) {}
+    fn disk_full(&mut self, full: bool, frames_not_written: u64) {
+        if let Some(inner) = self.inner() {
+            inner.disk_full(full, frames_not_written);
+        }
+    }
 }
 
 /// Where a recording goes on.

@@ -169,6 +169,10 @@ impl Rotating<'_> {
 }
 
 impl PortObserver for Rotating<'_> {
+    fn inner(&mut self) -> Option<&mut dyn PortObserver> {
+        Some(&mut *self.inner)
+    }
+
     fn message(&mut self, tracked: &Tracked, host_time_us: u64, stats: &LinkStats) {
         if let gleaner_protocol::UplinkBody::Hello(hello) = &tracked.message.body {
             self.identified(hello.node_id);
@@ -184,18 +188,6 @@ impl PortObserver for Rotating<'_> {
             .as_ref()
             .is_some_and(|(board, port)| board.moved_to(port).is_some());
         self.inner.tick(stats, idle_for) || moved
-    }
-
-    fn link_changed(&mut self, connected: bool, detail: &str, host_time_us: u64) {
-        self.inner.link_changed(connected, detail, host_time_us);
-    }
-
-    fn outgoing(&mut self) -> Option<Vec<u8>> {
-        self.inner.outgoing()
-    }
-
-    fn disk_full(&mut self, full: bool, frames_not_written: u64) {
-        self.inner.disk_full(full, frames_not_written);
     }
 
     fn next_log(&mut self) -> Option<NextLog> {

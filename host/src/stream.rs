@@ -223,6 +223,10 @@ fn write_line(
 }
 
 impl PortObserver for Streamed<'_> {
+    fn inner(&mut self) -> Option<&mut dyn PortObserver> {
+        Some(&mut *self.inner)
+    }
+
     fn message(&mut self, tracked: &Tracked, host_time_us: u64, stats: &LinkStats) {
         self.node.learn(&tracked.message.body);
         let line = Line {
@@ -248,14 +252,6 @@ impl PortObserver for Streamed<'_> {
         let line = link_line(connected, detail, host_time_us, &self.node);
         self.write(&line);
         self.inner.link_changed(connected, detail, host_time_us);
-    }
-
-    fn outgoing(&mut self) -> Option<Vec<u8>> {
-        self.inner.outgoing()
-    }
-
-    fn disk_full(&mut self, full: bool, frames_not_written: u64) {
-        self.inner.disk_full(full, frames_not_written);
     }
 }
 

@@ -139,20 +139,15 @@ impl<'a> Scripted<'a> {
 }
 
 impl PortObserver for Scripted<'_> {
+    fn inner(&mut self) -> Option<&mut dyn PortObserver> {
+        Some(&mut *self.inner)
+    }
+
     fn message(&mut self, tracked: &Tracked, host_time_us: u64, stats: &LinkStats) {
         self.script.message(tracked);
         self.inner.message(tracked, host_time_us, stats);
     }
-    fn tick(&mut self, stats: &LinkStats, idle_for: Duration) -> bool {
-        self.inner.tick(stats, idle_for)
-    }
-    fn link_changed(&mut self, connected: bool, detail: &str, host_time_us: u64) {
-        self.inner.link_changed(connected, detail, host_time_us);
-    }
     fn outgoing(&mut self) -> Option<Vec<u8>> {
         self.script.outgoing().or_else(|| self.inner.outgoing())
-    }
-    fn disk_full(&mut self, full: bool, frames_not_written: u64) {
-        self.inner.disk_full(full, frames_not_written);
     }
 }
