@@ -31,6 +31,18 @@ pub enum StoreError {
     Encode,
 }
 
+impl core::fmt::Display for StoreError {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        f.write_str(match self {
+            StoreError::TooSmall => "the storage is smaller than the configuration store",
+            StoreError::Storage => "the storage refused a read or write",
+            StoreError::Encode => "the configuration did not encode",
+        })
+    }
+}
+
+impl core::error::Error for StoreError {}
+
 /// What was loaded at boot.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct Loaded {

@@ -28,6 +28,17 @@ pub enum FlashSlotsError {
     Flash,
 }
 
+impl core::fmt::Display for FlashSlotsError {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        f.write_str(match self {
+            FlashSlotsError::NotASlot => "not a whole configuration slot",
+            FlashSlotsError::Flash => "the flash refused an erase, write or read",
+        })
+    }
+}
+
+impl core::error::Error for FlashSlotsError {}
+
 /// Two pages of a NOR flash seen as the [`Storage`] the configuration store needs.
 #[derive(Debug)]
 pub struct FlashSlots<F> {
@@ -152,6 +163,21 @@ mod tests {
     use crate::config_store::{load, save};
     use embedded_storage::nor_flash::{ErrorType, NorFlashErrorKind, ReadNorFlash};
     use gleaner_protocol::ConfigSource;
+
+    #[test]
+    fn errors_say_what_failed_as_errors_do() {
+        fn as_error(e: &dyn core::error::Error) -> String {
+            e.to_string()
+        }
+        assert_eq!(
+            as_error(&FlashSlotsError::NotASlot),
+            "not a whole configuration slot"
+        );
+        assert_eq!(
+            as_error(&crate::config_store::StoreError::Storage),
+            "the storage refused a read or write"
+        );
+    }
 
     const PAGE: usize = 4096;
 
