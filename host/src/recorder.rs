@@ -424,8 +424,7 @@ pub enum NextLog {
 /// What ends the detail of the marker of a port opened again after a loss.
 pub const RECONNECTED: &str = " (reconnected)";
 
-/// Request id of the `Hello` asked for on every connect (the node echoes it).
-pub const HELLO_REQUEST_ID: u16 = 0xFFF0;
+use crate::link::HELLO_REQUEST_ID;
 
 /// Asks the node for its `Hello` (firmware, identity, calibration and
 /// thresholds): a node that was running before the port opened sent its own

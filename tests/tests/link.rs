@@ -7,7 +7,7 @@ use std::sync::Arc;
 use std::time::{Duration, Instant};
 
 use gleaner::analysis::analyze_file;
-use gleaner::cli::node::Session;
+use gleaner::link::Session;
 use gleaner::link::{LinkStats, Tracked};
 use gleaner::log::{LogReader, MarkerKind, RecordBody};
 use gleaner::recorder::{run_port, Recorder};

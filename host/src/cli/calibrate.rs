@@ -9,10 +9,10 @@ use std::path::PathBuf;
 use anyhow::{bail, Context, Result};
 use clap::Args;
 use gleaner_firmware::calibration::{counts_q8_for, COUNT_FRACTION_BITS, SCALE_FRACTION_BITS};
-use gleaner_protocol::{Calibration, Channel, ChannelCal, Command, Sample};
+use gleaner_protocol::{Calibration, Channel, ChannelCal, Sample};
 
-use super::node::{explain, Session};
 use crate::failure::{FailedAs, Failure};
+use crate::link::Session;
 use crate::settings::{NodeSettings, TwoPoint, TwoPointTrims};
 
 /// A channel as typed on the command line (`input-voltage`, ...).
@@ -119,13 +119,7 @@ impl Answers {
 impl Calibrate {
     /// Runs the calibration on an open session.
     pub fn run(&self, session: &mut Session) -> Result<()> {
-        explain(session.request(Command::GetInfo, std::time::Duration::ZERO)?)?;
-        let present = session
-            .hello
-            .as_ref()
-            .context("the node sent no Hello")?
-            .config
-            .clone();
+        let present = session.present_config()?;
         let channels = if self.channels.is_empty() {
             Channel::ALL.to_vec()
         } else {
@@ -158,7 +152,7 @@ impl Calibrate {
                 return Ok(());
             }
         }
-        explain(session.request(Command::SetConfig(updated), std::time::Duration::ZERO)?)?;
+        session.configure(updated)?;
         say!("calibration accepted and stored by the node")?;
         Ok(())
     }

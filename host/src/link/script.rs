@@ -27,7 +27,7 @@ pub enum Step {
 #[derive(Debug)]
 pub struct CommandScript {
     steps: VecDeque<Step>,
-    next_id: u16,
+    ids: super::RequestIds,
     waiting: Option<(u16, Step, Instant)>,
     timeout: Duration,
     hello: Option<Hello>,
@@ -45,7 +45,7 @@ impl CommandScript {
     pub fn new(steps: Vec<Step>, timeout: Duration) -> Self {
         CommandScript {
             steps: steps.into(),
-            next_id: 1,
+            ids: super::RequestIds::default(),
             waiting: None,
             timeout,
             hello: None,
@@ -116,8 +116,7 @@ impl CommandScript {
                 },
             },
         };
-        let request_id = self.next_id;
-        self.next_id = self.next_id.wrapping_add(1).max(1);
+        let request_id = self.ids.next_id();
         let bytes = super::downlink_frame(request_id, command).ok()?;
         self.waiting = Some((request_id, step, Instant::now()));
         Some(bytes)
