@@ -12,7 +12,7 @@ use gleaner::analysis::{
 };
 use gleaner::link::LinkTracker;
 use gleaner::log::{split, LogReader, RecordBody};
-use gleaner::sim::synthetic::SyntheticLog;
+use gleaner::sim::scenarios::synthetic::SyntheticLog;
 use gleaner_protocol::{Report, UplinkBody};
 
 /// One invented day at 1 Hz, written to a file.

@@ -10,7 +10,7 @@ use anyhow::Result;
 use gleaner::analysis::{analyze_file, RunReport};
 use gleaner::link::{LinkStats, Tracked};
 use gleaner::recorder::{run_port, PortObserver, Recorder};
-use gleaner::sim::port::VirtualPort;
+use gleaner::sim::run::port::VirtualPort;
 use gleaner::sim::{GroundTruth, Scenario, VirtualNode};
 
 /// The repository's top folder.

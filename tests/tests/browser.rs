@@ -8,7 +8,7 @@ use std::process::Command;
 use gleaner::analysis::html::PLOT_TITLES;
 use gleaner::analysis::text::Section;
 use gleaner::analysis::{analyze_file, html};
-use gleaner::sim::engine::simulate_to_log;
+use gleaner::sim::run::engine::simulate_to_log;
 use gleaner_tests::{browser, scenario};
 
 /// Runs the headless browser on `page` with `args`; returns stdout and the

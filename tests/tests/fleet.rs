@@ -9,7 +9,7 @@ use std::path::Path;
 use std::process::Command;
 
 use gleaner::analysis::{analyze_file, RunReport, EFFICIENCY_BIN_V};
-use gleaner::sim::fleet::{fleet_scenarios, simulate_fleet};
+use gleaner::sim::scenarios::fleet::{fleet_scenarios, simulate_fleet};
 use gleaner_tests::{reference_python, workspace};
 use serde_json::Value;
 

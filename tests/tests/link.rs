@@ -11,7 +11,7 @@ use gleaner::link::Session;
 use gleaner::link::{LinkStats, Tracked};
 use gleaner::log::{LogReader, MarkerKind, RecordBody};
 use gleaner::recorder::{run_port, Recorder};
-use gleaner::sim::port::VirtualPort;
+use gleaner::sim::run::port::VirtualPort;
 use gleaner::sim::VirtualNode;
 use gleaner::view::observer::{Display, LiveObserver};
 use gleaner_protocol::*;

@@ -4,7 +4,7 @@
 
 use gleaner::analysis::Analyzer;
 use gleaner::log::LogReader;
-use gleaner::sim::synthetic::SyntheticLog;
+use gleaner::sim::scenarios::synthetic::SyntheticLog;
 use peak_alloc::PeakAlloc;
 
 #[global_allocator]

@@ -10,10 +10,10 @@
 use std::path::Path;
 use std::process::Command;
 
-use gleaner::sim::converter::InputMode;
-use gleaner::sim::load::LoadParams;
-use gleaner::sim::solar::{thermal_voltage, PvCell, SingleDiode};
-use gleaner::sim::source::SourceParams;
+use gleaner::sim::models::converter::InputMode;
+use gleaner::sim::models::load::LoadParams;
+use gleaner::sim::models::solar::{thermal_voltage, PvCell, SingleDiode};
+use gleaner::sim::models::source::SourceParams;
 use gleaner::sim::VirtualNode;
 use gleaner_protocol::*;
 use gleaner_tests::{reference_python, rel, scenario, workspace};
@@ -383,7 +383,7 @@ fn the_parquet_export_gives_the_report_totals_in_pyarrow_and_duckdb() {
     }
     let dir = tempfile::tempdir().unwrap();
     let log = dir.path().join("run.gleanlog");
-    gleaner::sim::engine::simulate_to_log(
+    gleaner::sim::run::engine::simulate_to_log(
         scenario("boiler-pipe", Some(2.0)),
         4,
         &log,
@@ -435,8 +435,9 @@ fn harvest_prediction_on_a_real_year_of_sunlight() {
     // ahead of EWMA on solar traces, and both beat "same as yesterday".
     let ghi: Vec<f64> = serde_json::from_value(python("pv.py", &["tmy_year"])).unwrap();
     assert_eq!(ghi.len(), 8760);
-    let hours = gleaner::sim::harvest_eval::hourly_energy_uj(&ghi, &PvCell::indoor_module(), 25.0);
-    let eval = gleaner::sim::harvest_eval::evaluate(&hours, 7);
+    let hours =
+        gleaner::sim::judging::harvest_eval::hourly_energy_uj(&ghi, &PvCell::indoor_module(), 25.0);
+    let eval = gleaner::sim::judging::harvest_eval::evaluate(&hours, 7);
     println!(
         "TMY3 year, {} hour slots, {} days: slot MAPE EWMA {:.1} %, WCMA {:.1} %, same-as-yesterday {:.1} %; day-ahead MAPE EWMA {:.1} %, same-as-yesterday {:.1} %",
         eval.slots,

@@ -7,7 +7,7 @@ use gleaner::analysis::{
     analyze_file, html, sizing, RunReport, NAMES_RENAMED_SINCE_V1, RENAMED_SINCE_V1, REPORT_SCHEMA,
 };
 use gleaner::export::export_csv;
-use gleaner::sim::engine::simulate_to_log;
+use gleaner::sim::run::engine::simulate_to_log;
 use gleaner::sim::Scenario;
 use gleaner_tests::scenario;
 

@@ -3,7 +3,7 @@
 //! recording is judged against the simulator's ground truth.
 
 use gleaner::analysis::OutageCause;
-use gleaner::sim::converter::OffReason;
+use gleaner::sim::models::converter::OffReason;
 use gleaner_protocol::{ConverterState, UplinkBody};
 use gleaner_tests::{record_virtual_run, rel, scenario};
 
@@ -173,7 +173,7 @@ fn the_drained_cell_cuts_off_near_0_7_volts_not_0_9() {
 fn a_fresh_cell_keeps_the_led_above_2_3_volts() {
     // Common practice: the stage raises 1.5 V to the 2.2-2.4 V a red LED needs.
     let mut s = scenario("crate-beacon", Some(0.05));
-    if let gleaner::sim::source::SourceParams::Cell { cell } = &mut s.source {
+    if let gleaner::sim::models::source::SourceParams::Cell { cell } = &mut s.source {
         cell.initial_depth = 0.1; // about 1.5 V
     }
     let dir = tempfile::tempdir().unwrap();

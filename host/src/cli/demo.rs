@@ -6,7 +6,7 @@ use anyhow::Result;
 use clap::Args;
 
 use crate::analysis::{analyze_file, html, text};
-use crate::sim::scenario::DEFAULT_SCENARIO;
+use crate::sim::scenarios::scenario::DEFAULT_SCENARIO;
 use crate::sim::{GroundTruth, Scenario};
 
 /// Run a scenario on a virtual node, record it through a pseudo-terminal
@@ -105,7 +105,7 @@ impl Cmd {
     ) -> Result<GroundTruth> {
         use crate::link::DEFAULT_BAUD;
         use crate::recorder::{run_port, Recorder};
-        use crate::sim::port::VirtualPort;
+        use crate::sim::run::port::VirtualPort;
         use crate::view::observer::{Display, LiveObserver};
         use std::sync::atomic::Ordering;
         use std::time::Duration;
@@ -177,7 +177,7 @@ impl Cmd {
             &format!("simulating {}", scenario.name),
             "simulated s",
         );
-        let truth = crate::sim::engine::simulate_to_log(
+        let truth = crate::sim::run::engine::simulate_to_log(
             scenario,
             boot_id,
             log_path,

@@ -9,10 +9,10 @@ use std::sync::Arc;
 use anyhow::{bail, Result};
 use clap::{Args, Subcommand};
 
-use crate::sim::engine::simulate_to_log;
-use crate::sim::numeric::golden_max;
-use crate::sim::scenario::BUILTIN;
-use crate::sim::source::{Source, SourceParams};
+use crate::sim::models::numeric::golden_max;
+use crate::sim::models::source::{Source, SourceParams};
+use crate::sim::run::engine::simulate_to_log;
+use crate::sim::scenarios::scenario::BUILTIN;
 use crate::sim::Scenario;
 
 /// Virtual-node tools.
@@ -110,7 +110,7 @@ pub enum Action {
 #[derive(Debug, Args)]
 pub struct Serve {
     /// Built-in name or file.
-    #[arg(default_value = crate::sim::scenario::DEFAULT_SCENARIO)]
+    #[arg(default_value = crate::sim::scenarios::scenario::DEFAULT_SCENARIO)]
     pub scenario: String,
     /// Simulated time runs this many times faster than real time (1: real time).
     #[arg(long, default_value_t = 1.0)]
@@ -151,7 +151,7 @@ impl Serve {
     /// Serves until SIGINT or SIGTERM.
     #[cfg(unix)]
     fn run(self) -> Result<()> {
-        use crate::sim::port::{Unread, VirtualPort};
+        use crate::sim::run::port::{Unread, VirtualPort};
         if !(self.speed.is_finite() && self.speed > 0.0 && self.speed <= 1e6) {
             bail!(
                 "--speed must be above 0 and at most 1000000, got {}",
@@ -163,7 +163,7 @@ impl Serve {
         let name = scenario.name.clone();
         let mut node = crate::sim::VirtualNode::new(scenario, self.boot_id)?;
         if self.bench {
-            let bench = crate::sim::bench::Bench::default();
+            let bench = crate::sim::run::bench::Bench::default();
             node.attach_bench(bench.clone());
             obey_bench_lines(bench);
         }
@@ -256,7 +256,7 @@ impl Replugging {
 
     /// Unplugs on a signal and links the new pseudo-terminal once plugged
     /// back in; says what it did.
-    fn follow(&mut self, port: &crate::sim::port::VirtualPort) -> Result<Option<String>> {
+    fn follow(&mut self, port: &crate::sim::run::port::VirtualPort) -> Result<Option<String>> {
         use std::sync::atomic::Ordering::Relaxed;
         let moved = self.moved.swap(false, Relaxed);
         if (self.same.swap(false, Relaxed) || moved) && self.pending.is_none() {
@@ -295,7 +295,7 @@ impl Replugging {
 /// Reads bench settings from standard input, one per line, on a thread of
 /// its own; says what it did (or why not) on standard output.
 #[cfg(unix)]
-fn obey_bench_lines(bench: crate::sim::bench::Bench) {
+fn obey_bench_lines(bench: crate::sim::run::bench::Bench) {
     std::thread::spawn(move || {
         use std::io::BufRead;
         for line in std::io::stdin().lock().lines() {
@@ -319,7 +319,7 @@ fn obey_bench_lines(bench: crate::sim::bench::Bench) {
 #[derive(Debug, Args)]
 pub struct Curve {
     /// The scenario whose source to use (built-in name or file).
-    #[arg(long, default_value = crate::sim::scenario::DEFAULT_SCENARIO)]
+    #[arg(long, default_value = crate::sim::scenarios::scenario::DEFAULT_SCENARIO)]
     pub scenario: String,
     /// Irradiance for a solar source, W/m².
     #[arg(long)]
@@ -445,8 +445,10 @@ impl Cmd {
                     .open(&out)
                     .map_err(|e| anyhow::anyhow!("cannot create {}: {e}", out.display()))?;
                 let mut writer = std::io::BufWriter::new(file);
-                let mut log =
-                    crate::sim::synthetic::SyntheticLog::new((days * 86_400.0) as u64, interval_s);
+                let mut log = crate::sim::scenarios::synthetic::SyntheticLog::new(
+                    (days * 86_400.0) as u64,
+                    interval_s,
+                );
                 let progress =
                     crate::progress::counting_bytes(&format!("writing {}", out.display()));
                 let bytes = std::io::copy(&mut progress.wrap_read(&mut log), &mut writer)?;
@@ -472,14 +474,15 @@ impl Cmd {
                 seed,
                 dir,
             } => {
-                let scenarios = crate::sim::fleet::fleet_scenarios(nodes, days, seed)?;
+                let scenarios = crate::sim::scenarios::fleet::fleet_scenarios(nodes, days, seed)?;
                 let total: f64 = scenarios.iter().map(Scenario::duration_s).sum();
                 let progress = crate::progress::steps(
                     total as u64,
                     &format!("simulating {nodes} nodes"),
                     "simulated s",
                 );
-                let logs = crate::sim::fleet::simulate_fleet(scenarios, &dir, &progress)?;
+                let logs =
+                    crate::sim::scenarios::fleet::simulate_fleet(scenarios, &dir, &progress)?;
                 progress.finish_and_clear();
                 say!(
                     "{} invented nodes, {days} days each, into {}",
@@ -493,7 +496,8 @@ impl Cmd {
                 compare_shedding,
                 json,
             } => {
-                let score = crate::sim::score::score_corpus(seed, scenarios, compare_shedding)?;
+                let score =
+                    crate::sim::judging::score::score_corpus(seed, scenarios, compare_shedding)?;
                 if json {
                     say!("{}", serde_json::to_string_pretty(&score.to_json())?)?;
                 } else {

@@ -10,8 +10,8 @@ use std::time::{Duration, Instant};
 use anyhow::{anyhow, Context, Result};
 use serialport::{SerialPort, TTYPort};
 
-use super::engine::VirtualNode;
-use super::truth::GroundTruth;
+use crate::sim::run::engine::VirtualNode;
+use crate::sim::run::truth::GroundTruth;
 
 /// Progress shared with the caller.
 #[derive(Debug, Clone, Default)]

@@ -6,8 +6,8 @@ use std::path::{Path, PathBuf};
 
 use anyhow::{bail, Result};
 
-use super::engine::simulate_to_log;
-use super::scenario::{Scenario, BUILTIN};
+use crate::sim::run::engine::simulate_to_log;
+use crate::sim::scenarios::scenario::{Scenario, BUILTIN};
 
 /// When the fleet's logs start: 2026-06-01 00:00 UTC, an invented date kept
 /// fixed so a fleet is the same on every run.

@@ -3,7 +3,7 @@
 
 use serde::Serialize;
 
-use super::converter::{OffReason, StepOutcome};
+use crate::sim::models::converter::{OffReason, StepOutcome};
 
 /// A change of the converter's true state.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]

@@ -13,9 +13,9 @@
 
 use serde::{Deserialize, Serialize};
 
-use super::load::LoadParams;
-use super::numeric::bisect;
-use super::source::Source;
+use crate::sim::models::load::LoadParams;
+use crate::sim::models::numeric::bisect;
+use crate::sim::models::source::Source;
 
 /// How the converter loads its source.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
@@ -238,8 +238,8 @@ impl Converter {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::sim::cell::CellParams;
-    use crate::sim::source::SourceParams;
+    use crate::sim::models::cell::CellParams;
+    use crate::sim::models::source::SourceParams;
 
     fn params() -> ConverterParams {
         ConverterParams {

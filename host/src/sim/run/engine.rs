@@ -12,10 +12,10 @@ use gleaner_protocol::{ConfigSource, MAX_UPLINK_FRAME_LEN};
 use rand::SeedableRng;
 use rand_pcg::Pcg64Mcg;
 
-use super::converter::{Converter, StepOutcome};
-use super::scenario::Scenario;
-use super::source::Source;
-use super::truth::GroundTruth;
+use crate::sim::models::converter::{Converter, StepOutcome};
+use crate::sim::models::source::Source;
+use crate::sim::run::truth::GroundTruth;
+use crate::sim::scenarios::scenario::Scenario;
 
 /// The load-shed pin of the virtual node: low sheds the simulated load's
 /// non-essential part.
@@ -63,7 +63,7 @@ pub struct VirtualNode {
     last: Option<StepOutcome>,
     load_powered: bool,
     shed_pin_wired: bool,
-    bench: Option<super::bench::Bench>,
+    bench: Option<crate::sim::run::bench::Bench>,
 }
 
 impl VirtualNode {
@@ -110,7 +110,7 @@ impl VirtualNode {
 
     /// Wires the node's channels to a bench: channels it sets read its
     /// levels instead of the scenario's physics.
-    pub fn attach_bench(&mut self, bench: super::bench::Bench) {
+    pub fn attach_bench(&mut self, bench: crate::sim::run::bench::Bench) {
         self.bench = Some(bench);
     }
 

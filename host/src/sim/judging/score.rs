@@ -11,9 +11,9 @@ use gleaner_protocol::{ConverterState, Report, Uplink, UplinkBody};
 
 use gleaner_firmware::brownout::storage_runout_ms;
 
-use super::corpus::{corpus_entry, CorpusKind};
-use super::engine::VirtualNode;
-use super::GroundTruth;
+use crate::sim::run::engine::VirtualNode;
+use crate::sim::scenarios::corpus::{corpus_entry, CorpusKind};
+use crate::sim::GroundTruth;
 
 /// α of the α-accuracy: a forecast within ±20 % of the true remaining time.
 pub const ALPHA: f64 = 0.2;

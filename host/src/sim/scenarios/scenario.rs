@@ -5,12 +5,12 @@
 use anyhow::{bail, Context, Result};
 use serde::{Deserialize, Serialize};
 
-use super::adc::FrontEndParams;
-use super::converter::{ConverterParams, InputMode};
-use super::load::LoadParams;
-use super::source::SourceParams;
 use crate::failure::FailedAs;
 use crate::settings::NodeSettings;
+use crate::sim::models::adc::FrontEndParams;
+use crate::sim::models::converter::{ConverterParams, InputMode};
+use crate::sim::models::load::LoadParams;
+use crate::sim::models::source::SourceParams;
 
 /// A complete simulated run.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -52,23 +52,23 @@ fn default_seed() -> u64 {
 pub const BUILTIN: &[(&str, &str)] = &[
     (
         "greenhouse-day",
-        include_str!("../../scenarios/greenhouse-day.toml"),
+        include_str!("../../../scenarios/greenhouse-day.toml"),
     ),
     (
         "crate-beacon",
-        include_str!("../../scenarios/crate-beacon.toml"),
+        include_str!("../../../scenarios/crate-beacon.toml"),
     ),
     (
         "orchard-night",
-        include_str!("../../scenarios/orchard-night.toml"),
+        include_str!("../../../scenarios/orchard-night.toml"),
     ),
     (
         "boiler-pipe",
-        include_str!("../../scenarios/boiler-pipe.toml"),
+        include_str!("../../../scenarios/boiler-pipe.toml"),
     ),
     (
         "stalled-converter",
-        include_str!("../../scenarios/stalled-converter.toml"),
+        include_str!("../../../scenarios/stalled-converter.toml"),
     ),
 ];
 

@@ -12,7 +12,7 @@ use anyhow::Result;
 use rand::{Rng, SeedableRng};
 use rand_pcg::Pcg64Mcg;
 
-use super::scenario::Scenario;
+use crate::sim::scenarios::scenario::Scenario;
 
 /// The kinds of corpus scenario, taken in turn.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]

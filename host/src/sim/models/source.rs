@@ -2,12 +2,12 @@
 
 use serde::{Deserialize, Serialize};
 
-use super::cell::{CellParams, PrimaryCell};
-use super::environment::{Daylight, DaylightParams, Pipe, PipeParams};
-use super::numeric::bisect;
-use super::solar::{PvCell, SingleDiode};
-use super::supercap::{Supercap, SupercapParams};
-use super::teg::{Teg, TegParams};
+use crate::sim::models::cell::{CellParams, PrimaryCell};
+use crate::sim::models::environment::{Daylight, DaylightParams, Pipe, PipeParams};
+use crate::sim::models::numeric::bisect;
+use crate::sim::models::solar::{PvCell, SingleDiode};
+use crate::sim::models::supercap::{Supercap, SupercapParams};
+use crate::sim::models::teg::{Teg, TegParams};
 
 /// A source as a scenario describes it.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]

@@ -9,7 +9,7 @@
 
 use serde::{Deserialize, Serialize};
 
-use super::numeric::{bisect, golden_max};
+use crate::sim::models::numeric::{bisect, golden_max};
 
 /// Boltzmann constant over the elementary charge, V/K (exact since the 2019 SI,
 /// CODATA 2018 values of k and e).

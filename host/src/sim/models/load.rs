@@ -129,7 +129,9 @@ mod tests {
         // and at least the photon energy bound hc/(q lambda) = 1.98 V at 625 nm.
         let led = LoadParams::red_led();
         let v_at = |i: f64| {
-            crate::sim::numeric::bisect(0.0, 5.0, |v| led.current_at(v, 0.0, 0.0, false, true) - i)
+            crate::sim::models::numeric::bisect(0.0, 5.0, |v| {
+                led.current_at(v, 0.0, 0.0, false, true) - i
+            })
         };
         assert!((1.98..=2.2).contains(&v_at(1e-3)), "{}", v_at(1e-3));
         assert!((2.2..=2.4).contains(&v_at(10e-3)), "{}", v_at(10e-3));

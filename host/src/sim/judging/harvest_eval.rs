@@ -5,7 +5,7 @@
 
 use gleaner_firmware::harvest_profile::{HarvestProfile, SLOTS};
 
-use super::solar::PvCell;
+use crate::sim::models::solar::PvCell;
 
 /// Mean absolute percentage errors of one predictor.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
