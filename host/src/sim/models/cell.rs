@@ -83,6 +83,24 @@ impl PrimaryCell {
     }
 }
 
+impl crate::sim::models::source::SourceModel for PrimaryCell {
+    fn current_at(&self, v: f64) -> f64 {
+        PrimaryCell::current_at(self, v)
+    }
+    fn open_circuit_voltage(&self) -> f64 {
+        PrimaryCell::open_circuit_voltage(self)
+    }
+    fn advance(&mut self, dt_s: f64, current_a: f64) {
+        PrimaryCell::advance(self, dt_s, current_a);
+    }
+    fn condition(&self) -> f64 {
+        self.depth()
+    }
+    fn boxed_clone(&self) -> Box<dyn crate::sim::models::source::SourceModel> {
+        Box::new(self.clone())
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

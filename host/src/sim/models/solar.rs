@@ -224,6 +224,61 @@ impl PvCell {
     }
 }
 
+/// A solar cell under daylight: its parameters follow the light.
+#[derive(Debug, Clone)]
+pub struct LitCell {
+    /// Reference parameters.
+    cell: PvCell,
+    /// Light over time.
+    daylight: crate::sim::models::environment::Daylight,
+    /// Cell temperature, °C.
+    cell_celsius: f64,
+    /// Parameters at the present conditions.
+    now: SingleDiode,
+    /// Present irradiance, W/m².
+    irradiance: f64,
+}
+
+impl LitCell {
+    /// `cell` at `cell_celsius` under `daylight`, at its first light.
+    pub fn new(
+        cell: PvCell,
+        daylight: crate::sim::models::environment::Daylight,
+        cell_celsius: f64,
+    ) -> Self {
+        let irradiance = daylight.irradiance(0.0);
+        LitCell {
+            now: cell.at(irradiance, cell_celsius),
+            cell,
+            daylight,
+            cell_celsius,
+            irradiance,
+        }
+    }
+}
+
+impl crate::sim::models::source::SourceModel for LitCell {
+    fn set_conditions(&mut self, t_s: f64, _dt_s: f64) {
+        let light = self.daylight.irradiance(t_s);
+        if light != self.irradiance {
+            self.irradiance = light;
+            self.now = self.cell.at(light, self.cell_celsius);
+        }
+    }
+    fn current_at(&self, v: f64) -> f64 {
+        self.now.current_at(v)
+    }
+    fn open_circuit_voltage(&self) -> f64 {
+        self.now.open_circuit_voltage()
+    }
+    fn condition(&self) -> f64 {
+        self.irradiance
+    }
+    fn boxed_clone(&self) -> Box<dyn crate::sim::models::source::SourceModel> {
+        Box::new(self.clone())
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -5,9 +5,9 @@ use serde::{Deserialize, Serialize};
 use crate::sim::models::cell::{CellParams, PrimaryCell};
 use crate::sim::models::environment::{Daylight, DaylightParams, Pipe, PipeParams};
 use crate::sim::models::numeric::bisect;
-use crate::sim::models::solar::{PvCell, SingleDiode};
+use crate::sim::models::solar::{LitCell, PvCell};
 use crate::sim::models::supercap::{Supercap, SupercapParams};
-use crate::sim::models::teg::{Teg, TegParams};
+use crate::sim::models::teg::{HeatedTeg, Teg, TegParams};
 
 /// A source as a scenario describes it.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -48,104 +48,68 @@ fn default_cell_celsius() -> f64 {
     25.0
 }
 
-/// A source being simulated.
-#[derive(Debug, Clone)]
-pub enum Source {
-    /// A primary cell.
-    Cell(PrimaryCell),
-    /// A solar cell; `now` holds its parameters at the present light.
-    Solar {
-        /// Reference parameters.
-        cell: PvCell,
-        /// Light over time.
-        daylight: Daylight,
-        /// Cell temperature, °C.
-        cell_celsius: f64,
-        /// Parameters at the present conditions.
-        now: SingleDiode,
-        /// Present irradiance, W/m².
-        irradiance: f64,
-    },
-    /// A supercapacitor.
-    Supercap(Supercap),
-    /// A thermoelectric generator.
-    Thermoelectric {
-        /// The generator.
-        teg: Teg,
-        /// Its pipe.
-        pipe: Pipe,
-    },
+/// What every source model answers, whatever drives it. A new kind of
+/// source is one file implementing this, plus its parameters in
+/// [`SourceParams`] and one arm in [`Source::new`].
+pub trait SourceModel: std::fmt::Debug + Send {
+    /// Updates the conditions (light, temperature) for time `t_s`.
+    fn set_conditions(&mut self, _t_s: f64, _dt_s: f64) {}
+    /// Terminal current at terminal voltage `v`, A (decreasing in `v`).
+    fn current_at(&self, v: f64) -> f64;
+    /// Open-circuit voltage now, V.
+    fn open_circuit_voltage(&self) -> f64;
+    /// Draws `current_a` for `dt_s` (what discharges cells and capacitors).
+    fn advance(&mut self, _dt_s: f64, _current_a: f64) {}
+    /// A number describing the source's state for ground truth: depth of
+    /// discharge, irradiance, capacitor voltage or temperature difference.
+    fn condition(&self) -> f64;
+    /// A copy of the model in its present state.
+    fn boxed_clone(&self) -> Box<dyn SourceModel>;
+}
+
+/// A source being simulated: one of the models behind [`SourceModel`].
+#[derive(Debug)]
+pub struct Source(Box<dyn SourceModel>);
+
+impl Clone for Source {
+    fn clone(&self) -> Self {
+        Source(self.0.boxed_clone())
+    }
 }
 
 impl Source {
     /// Builds the source for a run of `duration_s` starting at `start_hour`.
     pub fn new(params: &SourceParams, start_hour: f64, duration_s: f64, seed: u64) -> Self {
-        match params {
-            SourceParams::Cell { cell } => Source::Cell(PrimaryCell::new(*cell)),
+        Source(match params {
+            SourceParams::Cell { cell } => Box::new(PrimaryCell::new(*cell)),
             SourceParams::Solar {
                 cell,
                 daylight,
                 cell_celsius,
             } => {
                 let daylight = Daylight::new(daylight.clone(), start_hour, duration_s, seed);
-                let irradiance = daylight.irradiance(0.0);
-                Source::Solar {
-                    cell: *cell,
-                    now: cell.at(irradiance, *cell_celsius),
-                    daylight,
-                    cell_celsius: *cell_celsius,
-                    irradiance,
-                }
+                Box::new(LitCell::new(*cell, daylight, *cell_celsius))
             }
-            SourceParams::Supercap { cap } => Source::Supercap(Supercap::new(*cap)),
+            SourceParams::Supercap { cap } => Box::new(Supercap::new(*cap)),
             SourceParams::Thermoelectric { generator, pipe } => {
-                let mut pipe = Pipe::new(*pipe);
-                let mut teg = Teg::new(*generator);
-                teg.set_delta_k(pipe.advance(0.0, 0.0));
-                Source::Thermoelectric { teg, pipe }
+                Box::new(HeatedTeg::new(Teg::new(*generator), Pipe::new(*pipe)))
             }
-        }
+        })
     }
 
     /// Updates the conditions (light, temperature) for time `t_s`.
     pub fn set_conditions(&mut self, t_s: f64, dt_s: f64) {
-        match self {
-            Source::Solar {
-                cell,
-                daylight,
-                cell_celsius,
-                now,
-                irradiance,
-            } => {
-                let light = daylight.irradiance(t_s);
-                if light != *irradiance {
-                    *irradiance = light;
-                    *now = cell.at(light, *cell_celsius);
-                }
-            }
-            Source::Thermoelectric { teg, pipe } => teg.set_delta_k(pipe.advance(t_s, dt_s)),
-            Source::Cell(_) | Source::Supercap(_) => {}
-        }
+        self.0.set_conditions(t_s, dt_s);
     }
 
     /// Terminal current at terminal voltage `v`, A (decreasing in `v`).
     pub fn current_at(&self, v: f64) -> f64 {
-        match self {
-            Source::Cell(c) => c.current_at(v),
-            Source::Solar { now, .. } => now.current_at(v),
-            Source::Supercap(c) => c.current_at(v),
-            Source::Thermoelectric { teg, .. } => teg.current_at(v),
-        }
+        self.0.current_at(v)
     }
 
     /// Open-circuit voltage now, V.
     pub fn open_circuit_voltage(&self) -> f64 {
-        match self {
-            Source::Cell(c) => c.open_circuit_voltage(),
-            Source::Solar { now, .. } => now.open_circuit_voltage(),
-            Source::Supercap(c) => c.open_circuit_voltage(),
-            Source::Thermoelectric { teg, .. } => teg.open_circuit_voltage(),
-        }
+        self.0.open_circuit_voltage()
     }
 
     /// Where a resistive input of `ohms` meets the source curve: `(V, I)`.
@@ -167,21 +131,11 @@ impl Source {
 
     /// Draws `current_a` for `dt_s` (discharges cells and capacitors).
     pub fn advance(&mut self, dt_s: f64, current_a: f64) {
-        match self {
-            Source::Cell(c) => c.advance(dt_s, current_a),
-            Source::Supercap(c) => c.advance(dt_s, current_a),
-            Source::Solar { .. } | Source::Thermoelectric { .. } => {}
-        }
+        self.0.advance(dt_s, current_a);
     }
 
-    /// A number describing the source's state for ground truth: depth of
-    /// discharge, irradiance, capacitor voltage or temperature difference.
+    /// A number describing the source's state for ground truth.
     pub fn condition(&self) -> f64 {
-        match self {
-            Source::Cell(c) => c.depth(),
-            Source::Solar { irradiance, .. } => *irradiance,
-            Source::Supercap(c) => c.open_circuit_voltage(),
-            Source::Thermoelectric { teg, .. } => teg.open_circuit_voltage(),
-        }
+        self.0.condition()
     }
 }

@@ -56,6 +56,24 @@ impl Supercap {
     }
 }
 
+impl crate::sim::models::source::SourceModel for Supercap {
+    fn current_at(&self, v: f64) -> f64 {
+        Supercap::current_at(self, v)
+    }
+    fn open_circuit_voltage(&self) -> f64 {
+        Supercap::open_circuit_voltage(self)
+    }
+    fn advance(&mut self, dt_s: f64, current_a: f64) {
+        Supercap::advance(self, dt_s, current_a);
+    }
+    fn condition(&self) -> f64 {
+        Supercap::open_circuit_voltage(self)
+    }
+    fn boxed_clone(&self) -> Box<dyn crate::sim::models::source::SourceModel> {
+        Box::new(self.clone())
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

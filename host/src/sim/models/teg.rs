@@ -52,6 +52,40 @@ impl Teg {
     }
 }
 
+/// A thermoelectric generator on a pipe heated in cycles: the pipe sets its
+/// temperature difference.
+#[derive(Debug, Clone)]
+pub struct HeatedTeg {
+    teg: Teg,
+    pipe: crate::sim::models::environment::Pipe,
+}
+
+impl HeatedTeg {
+    /// `teg` on `pipe`, at the pipe's first temperature.
+    pub fn new(mut teg: Teg, mut pipe: crate::sim::models::environment::Pipe) -> Self {
+        teg.set_delta_k(pipe.advance(0.0, 0.0));
+        HeatedTeg { teg, pipe }
+    }
+}
+
+impl crate::sim::models::source::SourceModel for HeatedTeg {
+    fn set_conditions(&mut self, t_s: f64, dt_s: f64) {
+        self.teg.set_delta_k(self.pipe.advance(t_s, dt_s));
+    }
+    fn current_at(&self, v: f64) -> f64 {
+        self.teg.current_at(v)
+    }
+    fn open_circuit_voltage(&self) -> f64 {
+        self.teg.open_circuit_voltage()
+    }
+    fn condition(&self) -> f64 {
+        self.teg.open_circuit_voltage()
+    }
+    fn boxed_clone(&self) -> Box<dyn crate::sim::models::source::SourceModel> {
+        Box::new(self.clone())
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
