@@ -471,13 +471,7 @@ pub fn run_port(
                         observer.message(t, host_time_us, recorder.stats());
                     }
                 }
-                Err(e)
-                    if matches!(
-                        e.kind(),
-                        std::io::ErrorKind::TimedOut
-                            | std::io::ErrorKind::WouldBlock
-                            | std::io::ErrorKind::Interrupted
-                    ) => {}
+                Err(e) if crate::link::ports::try_again(&e) => {}
                 Err(e) => {
                     let (detail, at) = (format!("{port}: {e}"), now_us());
                     recorder.mark_at(at, MarkerKind::PortLost, &detail)?;

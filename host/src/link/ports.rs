@@ -123,6 +123,17 @@ pub fn open_port(port: &str, baud: u32) -> Result<Box<dyn SerialPort>> {
         })
 }
 
+/// True for a serial read or write that only has to be tried again (a
+/// timeout with nothing to move, a full buffer, a signal), not a lost port.
+pub fn try_again(err: &std::io::Error) -> bool {
+    matches!(
+        err.kind(),
+        std::io::ErrorKind::TimedOut
+            | std::io::ErrorKind::WouldBlock
+            | std::io::ErrorKind::Interrupted
+    )
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

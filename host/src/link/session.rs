@@ -86,14 +86,7 @@ impl Session {
         while Instant::now() < deadline {
             let n = match self.port.read(&mut rx) {
                 Ok(n) => n,
-                Err(e)
-                    if matches!(
-                        e.kind(),
-                        std::io::ErrorKind::TimedOut | std::io::ErrorKind::WouldBlock
-                    ) =>
-                {
-                    0
-                }
+                Err(e) if super::ports::try_again(&e) => 0,
                 Err(e) => return Err(e).context("reading from the port"),
             };
             for &byte in &rx[..n] {

@@ -70,14 +70,7 @@ fn write_all_patiently(
         match port.write(bytes) {
             Ok(0) => return Err(anyhow!("pseudo-terminal closed")),
             Ok(n) => bytes = &bytes[n..],
-            Err(e)
-                if matches!(
-                    e.kind(),
-                    std::io::ErrorKind::TimedOut
-                        | std::io::ErrorKind::WouldBlock
-                        | std::io::ErrorKind::Interrupted
-                ) =>
-            {
+            Err(e) if crate::link::ports::try_again(&e) => {
                 if stop.load(Ordering::Relaxed) || unread == Unread::Drop {
                     break;
                 }
