@@ -14,7 +14,7 @@ use anyhow::{bail, Result};
 use gleaner_protocol::{FrameError, FrameSplitter, MAX_UPLINK_FRAME_LEN};
 
 use crate::link::tracker::TrackError;
-use crate::link::{open_port, LinkStats, LinkTracker, Tracked};
+use crate::link::{open_port, LinkStats, LinkTracker, Tracked, HELLO_REQUEST_ID};
 use crate::log::{now_us, DiskFull, LogHeader, LogWriter, MarkerKind, FORMAT_VERSION};
 
 /// How often recorded data is forced to the disk.
@@ -423,8 +423,6 @@ pub enum NextLog {
 
 /// What ends the detail of the marker of a port opened again after a loss.
 pub const RECONNECTED: &str = " (reconnected)";
-
-use crate::link::HELLO_REQUEST_ID;
 
 /// Asks the node for its `Hello` (firmware, identity, calibration and
 /// thresholds): a node that was running before the port opened sent its own

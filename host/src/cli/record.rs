@@ -196,7 +196,10 @@ impl Cmd {
         if let Some(to) = board.and_then(|b| b.moved_to(&port)) {
             let note = format!("the node came back on {to}: its recording goes on in this log");
             eprintln!("{port}: {note}");
-            recorder.mark(crate::log::MarkerKind::Note, &note)?;
+            // Not written: the log still ends whole, with the stop below.
+            if let Err(e) = recorder.mark(crate::log::MarkerKind::Note, &note) {
+                eprintln!("{port}: the note was not written: {e:#}");
+            }
         }
         print_outcomes(&scripted.script);
         let finished = recorder.finish();
