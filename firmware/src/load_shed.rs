@@ -136,9 +136,12 @@ impl ShedSaving {
         }
     }
 
-    /// The load is being shed; `load_na` is its averaged current until now.
-    pub fn on_shed(&mut self, load_na: i64) {
-        self.before_na = Some(load_na);
+    /// The load is being shed; `load_na` is its averaged current until now,
+    /// None when that average does not yet span a whole averaging time (just
+    /// after a restore, when one burst of a duty-cycled load can make a few
+    /// seconds' mean many times the true one): that shed teaches nothing.
+    pub fn on_shed(&mut self, load_na: Option<i64>) {
+        self.before_na = load_na;
     }
 
     /// The load was restored before the shed load's average settled: that
@@ -229,16 +232,21 @@ mod tests {
         let mut saving = ShedSaving::new(40_000);
         assert_eq!(saving.saving_na(), 40_000);
         // 250 µA before the shed, 190 µA once the shed load settled: 60 µA.
-        saving.on_shed(250_000);
+        saving.on_shed(Some(250_000));
         saving.on_settled(190_000);
         assert_eq!(saving.saving_na(), 60_000);
+        // A shed from an average that had not settled teaches nothing (a
+        // burst caught in the seconds after a restore, say).
+        saving.on_shed(None);
+        saving.on_settled(14_000);
+        assert_eq!(saving.saving_na(), 60_000);
         // A shed restored before it settled teaches nothing.
-        saving.on_shed(260_000);
+        saving.on_shed(Some(260_000));
         saving.on_restore();
         saving.on_settled(100_000);
         assert_eq!(saving.saving_na(), 60_000);
         // A load that drew more once shed (it woke for other reasons) saves nothing.
-        saving.on_shed(100_000);
+        saving.on_shed(Some(100_000));
         saving.on_settled(120_000);
         assert_eq!(saving.saving_na(), 0);
     }

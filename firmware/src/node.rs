@@ -510,7 +510,9 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
         // starts again rather than lag the change by its time constant.
         if self.shedder.is_shed() != was_shed {
             if self.shedder.is_shed() {
-                self.shed_saving.on_shed(self.load_current.mean());
+                let settled = self.load_current.spans(LOAD_AVERAGE_MS);
+                self.shed_saving
+                    .on_shed(settled.then(|| self.load_current.mean()));
             } else {
                 self.shed_saving.on_restore();
             }
