@@ -6,6 +6,7 @@
 //! * [`calibration`]: raw ADC counts to microvolts and nanoamps, with clipping flags;
 //! * [`meter`]: power, lossless energy accumulators and efficiency as an energy ratio;
 //! * [`cutoff`]: the debounced cutoff state machine with a cause for each transition;
+//! * [`day_end`]: the hour the harvesting day ends (a sunset), learned from the nights seen;
 //! * [`forecast`]: time to input cutoff from the input's trends, and the averaged
 //!   load current and converter power;
 //! * [`brownout`]: time to the load's brown-out, counting the harvest still coming in,
@@ -72,6 +73,7 @@ pub mod calibration;
 pub mod config;
 pub mod config_store;
 pub mod cutoff;
+pub mod day_end;
 pub mod flash_slots;
 pub mod forecast;
 pub mod harvest_profile;

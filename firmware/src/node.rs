@@ -16,6 +16,7 @@ use crate::calibration::{calibrate, RawSample};
 use crate::config::validate;
 use crate::config_store;
 use crate::cutoff::{CutoffDetector, Observation};
+use crate::day_end::DayEnd;
 use crate::forecast::{
     CutoffForecaster, InputSeen, TimeAverage, HARVEST_AVERAGE_MS, LOAD_AVERAGE_MS,
 };
@@ -138,6 +139,8 @@ pub struct Node<P, S> {
     detector: CutoffDetector,
     meter: Meter,
     cutoff_forecast: CutoffForecaster,
+    /// When the harvesting day ends, learned from the nights seen.
+    day_end: DayEnd,
     /// The load's current, nA: a constant-current load's stays put while the
     /// storage voltage (and so its power) falls.
     load_current: TimeAverage,
@@ -185,6 +188,7 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             detector: CutoffDetector::new(0),
             meter: Meter::new(),
             cutoff_forecast: CutoffForecaster::new(),
+            day_end: DayEnd::new(),
             load_current: TimeAverage::new(),
             output_power: TimeAverage::new(),
             load_watch: LoadWatch::new(),
@@ -244,6 +248,13 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             input_cutoff_in_ms: self.input_cutoff_in_ms,
         };
         if let Some(event) = self.detector.update(now_ms, &seen, &self.config.thresholds) {
+            match event.to {
+                ConverterState::CutOff => self.day_end.on_cutoff(now_ms),
+                ConverterState::ColdStart | ConverterState::Harvesting => {
+                    self.day_end.on_start(now_ms);
+                }
+                _ => {}
+            }
             if event.to == ConverterState::ColdStart {
                 self.cutoff_forecast.clear();
                 self.input_cutoff_in_ms = None;
@@ -573,7 +584,13 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             let middle_ms = now_ms.saturating_sub(length_us / 2000);
             self.cutoff_forecast
                 .push(middle_ms, seen, &self.config.converter);
-            self.cutoff_forecast.time_to_cutoff(now_ms, t.hold_uv)
+            // Within its look-ahead the learned day end answers: before the
+            // evening's fall shows in the input, the trends cannot tell a
+            // sunset from a cloud (measured on the corpus: `sim score`).
+            let measured = self.cutoff_forecast.time_to_cutoff(now_ms, t.hold_uv);
+            self.day_end
+                .time_to_next(now_ms, t.forecast_horizon_ms)
+                .or(measured)
         } else {
             None
         };

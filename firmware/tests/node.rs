@@ -454,3 +454,59 @@ proptest! {
         }
     }
 }
+
+#[test]
+fn a_day_end_seen_once_is_forecast_the_next_day_and_raises_sagging() {
+    // An invented solar day: input up for ten hours, a night of fourteen,
+    // then the next day; one sample a second.
+    const NIGHT: RawSample = RawSample {
+        input_voltage: 0,
+        input_current: 0,
+        ..RUNNING
+    };
+    let (day_s, night_s) = (10 * 3600u64, 14 * 3600u64);
+    let mut n = node::<STORE_LEN>();
+    let mut cutoffs_ms = Vec::new();
+    let mut forecast_ms = None;
+    let mut sagging_ms = None;
+    let horizon_ms = u64::from(default_config().thresholds.forecast_horizon_ms);
+    for s in 0..2 * day_s + night_s {
+        let in_day = s % (day_s + night_s) < day_s;
+        n.on_sample(s * 1_000_000, if in_day { &RUNNING } else { &NIGHT });
+        for m in drain(&mut n) {
+            match m.body {
+                UplinkBody::Event(e) if e.to == ConverterState::CutOff => {
+                    cutoffs_ms.push(m.uptime_ms)
+                }
+                UplinkBody::Event(e) if e.cause == TransitionCause::ForecastUnderHorizon => {
+                    sagging_ms.get_or_insert(m.uptime_ms);
+                }
+                // Two minutes before the second evening's end.
+                UplinkBody::Report(r) if m.uptime_ms == (2 * day_s + night_s - 120) * 1000 => {
+                    forecast_ms = Some(r.input_cutoff_in_ms)
+                }
+                _ => {}
+            }
+        }
+    }
+    // The first evening was seen at the first sample after the debounce (0.2 s).
+    let first = cutoffs_ms[0];
+    assert_eq!(first, day_s * 1000 + 1000);
+    // Expected a day after it, known to the second.
+    let now_ms = (2 * day_s + night_s - 120) * 1000;
+    let expected_ms = first + 86_400_000 - now_ms;
+    let forecast = forecast_ms
+        .flatten()
+        .expect("a forecast from the learned day end");
+    assert!(
+        u64::from(forecast).abs_diff(expected_ms) <= 1000,
+        "{forecast} ms, expected {expected_ms} ms"
+    );
+    // Sagging within the last horizon, confirmed for a quarter of it, before the end.
+    let sagging = sagging_ms.expect("Sagging raised by the forecast");
+    let end_ms = first + 86_400_000;
+    assert!(
+        sagging < end_ms && sagging >= end_ms - horizon_ms,
+        "{sagging}"
+    );
+}
