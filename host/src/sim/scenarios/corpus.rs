@@ -17,7 +17,8 @@ use crate::sim::scenarios::scenario::Scenario;
 /// The kinds of corpus scenario, taken in turn.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum CorpusKind {
-    /// A solar node from the afternoon through sunset into the night.
+    /// A solar node deployed one afternoon, through that night and the next
+    /// day, to its second sunset and into the night.
     SolarEvening,
     /// A nearly spent primary cell through its knee.
     CellKnee,
@@ -54,7 +55,16 @@ pub struct CorpusEntry {
     pub kind: CorpusKind,
     /// The scenario.
     pub scenario: Scenario,
+    /// Seconds from the start before which nothing is judged: a solar node's
+    /// first afternoon and night, so its second evening is judged as a
+    /// deployed node's evenings are, with a day behind it (the first evening
+    /// is judged on its own). 0 for the other kinds.
+    pub settles_s: f64,
 }
+
+/// Hour of the day (the second one) from which a solar run is judged: after
+/// the morning's start, before the afternoon's last hours.
+const SOLAR_JUDGED_FROM_HOUR: f64 = 12.0;
 
 /// Sample period of corpus scenarios, ms: the built-in scenarios' period.
 /// The load model averages a burst shorter than a sample over it, so a
@@ -182,6 +192,7 @@ pub fn corpus_entry(seed: u64, index: usize) -> Result<CorpusEntry> {
     } else {
         0.95
     };
+    let mut settles_s = 0.0;
     let (hours, start_hour, body) = match kind {
         CorpusKind::SolarEvening => {
             let start = rng.random_range(13.0..16.0);
@@ -190,7 +201,9 @@ pub fn corpus_entry(seed: u64, index: usize) -> Result<CorpusEntry> {
             let drawn = rng.random_range(60.0..200.0);
             let source = solar(&mut rng, drawn, sunset);
             let conv = converter(&mut rng, start_v, &fractional, storage);
-            (sunset - start + 10.0, start, format!("{source}\n{conv}"))
+            settles_s = (24.0 - start + SOLAR_JUDGED_FROM_HOUR) * 3600.0;
+            let hours = 24.0 - start + sunset + 10.0;
+            (hours, start, format!("{source}\n{conv}"))
         }
         CorpusKind::CellKnee => {
             let source = format!(
@@ -236,6 +249,7 @@ pub fn corpus_entry(seed: u64, index: usize) -> Result<CorpusEntry> {
     Ok(CorpusEntry {
         kind,
         scenario: Scenario::from_toml(&text)?,
+        settles_s,
     })
 }
 
