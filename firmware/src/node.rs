@@ -173,11 +173,31 @@ pub struct Node<P, S> {
     stats: NodeStats,
 }
 
+/// The outbox at boot: the `Hello` first, with sequence number 0 and
+/// nothing metered yet.
+fn boot_outbox() -> Deque<Queued, OUTBOX_LEN> {
+    let mut outbox = Deque::new();
+    let hello = Queued {
+        seq: 0,
+        uptime_ms: 0,
+        body: QueuedBody::Hello {
+            totals: EnergyTotals::default(),
+        },
+    };
+    // An empty outbox has room for one message.
+    let _ = outbox.push_back(hello);
+    outbox
+}
+
 impl<P: OutputPin, S: Storage> Node<P, S> {
     /// A node at boot; its `Hello` is the first message queued.
+    ///
+    /// Built as one expression, the Hello already in its outbox, so the node
+    /// is written where the caller keeps it rather than copied there (a board
+    /// keeps it on its stack).
     pub fn new(parts: NodeParts<P, S>) -> Self {
         let shed_saving = ShedSaving::new(parts.config.shed_load_na);
-        let mut node = Node {
+        Node {
             config: parts.config,
             config_source: parts.config_source,
             node_id: parts.node_id,
@@ -207,14 +227,12 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             last_t_us: None,
             last_sample: Sample::default(),
             now_us: 0,
-            seq: 0,
-            outbox: Deque::new(),
+            seq: 1,
+            outbox: boot_outbox(),
             rx: Decoder::new(),
             burst: None,
             stats: NodeStats::default(),
-        };
-        node.enqueue_hello();
-        node
+        }
     }
 
     /// Processes one reading of the four channels taken at `t_us` (microseconds
@@ -248,23 +266,31 @@ impl<P: OutputPin, S: Storage> Node<P, S> {
             input_cutoff_in_ms: self.input_cutoff_in_ms,
         };
         if let Some(event) = self.detector.update(now_ms, &seen, &self.config.thresholds) {
-            match event.to {
-                ConverterState::CutOff => self.day_end.on_cutoff(now_ms),
-                ConverterState::ColdStart | ConverterState::Harvesting => {
-                    self.day_end.on_start(now_ms);
-                }
-                _ => {}
-            }
-            if event.to == ConverterState::ColdStart {
-                self.cutoff_forecast.clear();
-                self.input_cutoff_in_ms = None;
-            }
-            self.enqueue(QueuedBody::Event(event));
+            self.on_transition(now_ms, event);
         }
         self.watch_load(now_ms, &sample);
         self.close_slot_if_due(t_us);
         self.add_to_burst(sample);
         self.close_interval_if_due(t_us);
+    }
+
+    /// A change of the converter's state at `now_ms`: learned from, and sent.
+    /// Kept out of line so its frame is not on the stack while the forecasts
+    /// are computed.
+    #[inline(never)]
+    fn on_transition(&mut self, now_ms: u64, event: gleaner_protocol::Event) {
+        match event.to {
+            ConverterState::CutOff => self.day_end.on_cutoff(now_ms),
+            ConverterState::ColdStart | ConverterState::Harvesting => {
+                self.day_end.on_start(now_ms);
+            }
+            _ => {}
+        }
+        if event.to == ConverterState::ColdStart {
+            self.cutoff_forecast.clear();
+            self.input_cutoff_in_ms = None;
+        }
+        self.enqueue(QueuedBody::Event(event));
     }
 
     /// Records a failed conversion at `t_us`: time passes, the report is flagged.
