@@ -46,39 +46,65 @@ impl Adc {
 }
 
 /// `units_per_count * 2^20 = numerator * 2^20 / (2^bits * denominator)`, rounded.
-fn q20_scale(numerator: u128, denominator: u128, bits: u8) -> Option<u64> {
-    let scaled = numerator.checked_shl(SCALE_FRACTION_BITS)?;
-    let divisor = denominator.checked_shl(u32::from(bits))?;
-    if divisor == 0 {
+///
+/// This and the two channel formulas below are `const`, so a board's fixed
+/// front-end is calibrated when the firmware is compiled.
+const fn q20_scale(numerator: u128, denominator: u128, bits: u8) -> Option<u64> {
+    let Some(scaled) = numerator.checked_shl(SCALE_FRACTION_BITS) else {
+        return None;
+    };
+    let Some(divisor) = denominator.checked_shl(bits as u32) else {
+        return None;
+    };
+    let Some(sum) = scaled.checked_add(divisor / 2) else {
+        return None;
+    };
+    let Some(rounded) = sum.checked_div(divisor) else {
+        return None;
+    };
+    if rounded == 0 || rounded > u64::MAX as u128 {
         return None;
     }
-    let rounded = scaled.checked_add(divisor / 2)?.checked_div(divisor)?;
-    u64::try_from(rounded).ok().filter(|&q| q > 0)
+    // Within u64: checked just above.
+    #[allow(clippy::cast_possible_truncation)]
+    Some(rounded as u64)
 }
 
 /// A voltage channel read through a resistive divider (`r_top_ohm` from the
 /// signal to the ADC pin, `r_bottom_ohm` from the pin to ground). A direct
 /// connection is `r_top_ohm = 0`. None when a value is zero or the scale overflows.
-pub fn voltage_divider(adc: Adc, r_top_ohm: u32, r_bottom_ohm: u32) -> Option<ChannelCal> {
-    let total = u128::from(r_top_ohm).checked_add(u128::from(r_bottom_ohm))?;
-    let numerator = u128::from(adc.reference_uv).checked_mul(total)?;
-    let units_per_count_q20 = q20_scale(numerator, u128::from(r_bottom_ohm), adc.bits)?;
-    Some(ChannelCal {
-        units_per_count_q20,
-        offset: 0,
-    })
+pub const fn voltage_divider(adc: Adc, r_top_ohm: u32, r_bottom_ohm: u32) -> Option<ChannelCal> {
+    let Some(total) = (r_top_ohm as u128).checked_add(r_bottom_ohm as u128) else {
+        return None;
+    };
+    let Some(numerator) = (adc.reference_uv as u128).checked_mul(total) else {
+        return None;
+    };
+    match q20_scale(numerator, r_bottom_ohm as u128, adc.bits) {
+        Some(units_per_count_q20) => Some(ChannelCal {
+            units_per_count_q20,
+            offset: 0,
+        }),
+        None => None,
+    }
 }
 
 /// A current channel: a shunt of `shunt_milliohm` whose voltage is amplified by
 /// `gain` before the ADC. Current in nA = shunt µV * 10^6 / (gain * shunt mΩ).
-pub fn current_shunt(adc: Adc, shunt_milliohm: u32, gain: u32) -> Option<ChannelCal> {
-    let numerator = u128::from(adc.reference_uv).checked_mul(1_000_000)?;
-    let denominator = u128::from(shunt_milliohm).checked_mul(u128::from(gain))?;
-    let units_per_count_q20 = q20_scale(numerator, denominator, adc.bits)?;
-    Some(ChannelCal {
-        units_per_count_q20,
-        offset: 0,
-    })
+pub const fn current_shunt(adc: Adc, shunt_milliohm: u32, gain: u32) -> Option<ChannelCal> {
+    let Some(numerator) = (adc.reference_uv as u128).checked_mul(1_000_000) else {
+        return None;
+    };
+    let Some(denominator) = (shunt_milliohm as u128).checked_mul(gain as u128) else {
+        return None;
+    };
+    match q20_scale(numerator, denominator, adc.bits) {
+        Some(units_per_count_q20) => Some(ChannelCal {
+            units_per_count_q20,
+            offset: 0,
+        }),
+        None => None,
+    }
 }
 
 /// Fractional bits of a reference point's counts: the mean of a burst of

@@ -5,13 +5,7 @@ use gleaner_protocol::{
     MAX_SHED_LOAD_NA,
 };
 
-use crate::calibration::{current_shunt, voltage_divider, Adc};
-
-/// The ADC assumed by the defaults: 12 bits, 3.3 V reference.
-pub const DEFAULT_ADC: Adc = Adc {
-    bits: 12,
-    reference_uv: 3_300_000,
-};
+use crate::front_end::DEFAULT_FRONT_END;
 
 /// Shortest accepted report interval.
 pub const MIN_REPORT_INTERVAL_MS: u32 = 100;
@@ -30,25 +24,30 @@ pub const MAX_LOAD_UV: u32 = 60_000_000;
 /// Largest accepted channel scale: 10^9 units per count, in Q20.
 pub const MAX_SCALE_Q20: u64 = 1_000_000_000 << 20;
 
-const fn fallback_cal() -> ChannelCal {
-    ChannelCal {
-        units_per_count_q20: 1 << 20,
-        offset: 0,
-    }
-}
+/// The calibration of the default front-end, worked out at compile time.
+pub const DEFAULT_CALIBRATION: Calibration = match DEFAULT_FRONT_END.calibration() {
+    Some(calibration) => calibration,
+    // Never taken: the assertion below fails the build first.
+    None => Calibration {
+        adc_bits: DEFAULT_FRONT_END.result_bits,
+        input_voltage: UNIT_SCALE,
+        input_current: UNIT_SCALE,
+        output_voltage: UNIT_SCALE,
+        output_current: UNIT_SCALE,
+    },
+};
+const _: () = assert!(
+    DEFAULT_FRONT_END.calibration().is_some(),
+    "the default front-end has a zero divider, shunt or gain"
+);
+const UNIT_SCALE: ChannelCal = ChannelCal {
+    units_per_count_q20: 1 << 20,
+    offset: 0,
+};
 
-/// The front-end the defaults describe: input read directly (up to 3.3 V),
-/// input current through 1 Ω at gain 50 (16.1 µA per count), output through a
-/// 1 MΩ / 1 MΩ divider (up to 6.6 V), output current through 10 Ω at gain 50.
-pub fn default_calibration() -> Calibration {
-    Calibration {
-        adc_bits: DEFAULT_ADC.bits,
-        input_voltage: voltage_divider(DEFAULT_ADC, 0, 1).unwrap_or(fallback_cal()),
-        input_current: current_shunt(DEFAULT_ADC, 1_000, 50).unwrap_or(fallback_cal()),
-        output_voltage: voltage_divider(DEFAULT_ADC, 1_000_000, 1_000_000)
-            .unwrap_or(fallback_cal()),
-        output_current: current_shunt(DEFAULT_ADC, 10_000, 50).unwrap_or(fallback_cal()),
-    }
+/// The calibration of the default front-end ([`DEFAULT_CALIBRATION`]).
+pub const fn default_calibration() -> Calibration {
+    DEFAULT_CALIBRATION
 }
 
 /// Thresholds for a single-transistor or small boost stage: it starts near

@@ -4,6 +4,7 @@
 //! microcontroller beside the step-up converter:
 //!
 //! * [`calibration`]: raw ADC counts to microvolts and nanoamps, with clipping flags;
+//! * [`front_end`]: the measuring front-end described once, per channel, and its calibration;
 //! * [`meter`]: power, lossless energy accumulators and efficiency as an energy ratio;
 //! * [`cutoff`]: the debounced cutoff state machine with a cause for each transition;
 //! * [`day_end`]: the hour the harvesting day ends (a sunset), learned from the nights seen;
@@ -76,6 +77,7 @@ pub mod cutoff;
 pub mod day_end;
 pub mod flash_slots;
 pub mod forecast;
+pub mod front_end;
 pub mod harvest_profile;
 pub mod interval;
 pub mod load_shed;

@@ -45,6 +45,7 @@ pub mod dataset;
 pub mod export;
 pub mod failure;
 pub mod files;
+pub mod front_end;
 pub mod link;
 pub mod log;
 pub mod parallel;

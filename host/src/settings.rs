@@ -6,7 +6,7 @@ use gleaner_firmware::config::MAX_SCALE_Q20;
 use gleaner_protocol::{ChannelCal, NodeConfig};
 use serde::{Deserialize, Serialize};
 
-use crate::sim::models::adc::FrontEndParams;
+use crate::front_end::FrontEndParams;
 
 /// Optional overrides of a node's configuration. Absent fields keep the base value.
 #[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]

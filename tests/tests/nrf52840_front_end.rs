@@ -22,7 +22,7 @@ fn code(volts: f64, gain: f64, differential: bool) -> i16 {
 
 #[test]
 fn nominal_readings_come_back_in_channel_units() {
-    let cal = front_end::calibration();
+    let cal = front_end::CALIBRATION;
     assert_eq!(cal.adc_bits, 14);
     // A 0.45 V harvester drawing 2.0 mA through the 10 Ω input shunt (20 mV),
     // a 3.3 V output (1.65 V at the pin behind the 1:2 divider) with 1.2 mA
@@ -45,7 +45,7 @@ fn nominal_readings_come_back_in_channel_units() {
 
 #[test]
 fn one_code_is_the_documented_resolution() {
-    let cal = front_end::calibration();
+    let cal = front_end::CALIBRATION;
     let lsb = |q20: u64| q20 as f64 / f64::from(1u32 << 20);
     // 1.2 V / 2^14, 150 mV / 2^13 / 10 Ω, 2 * 2.4 V / 2^14, 150 mV / 2^13 / 10 Ω.
     let expected = [73.2421875, 1831.0546875, 292.96875, 1831.0546875];
@@ -62,7 +62,7 @@ fn one_code_is_the_documented_resolution() {
 
 #[test]
 fn limits_and_reverse_current_are_mapped_for_the_node() {
-    let cal = front_end::calibration();
+    let cal = front_end::CALIBRATION;
     // Offset noise below zero on a dark cell and reverse current read 0, unflagged.
     let raw = front_end::raw_sample([-3, -40, 0, -1]);
     assert_eq!(
@@ -87,4 +87,26 @@ fn limits_and_reverse_current_are_mapped_for_the_node() {
     let (sample, flags) = calibrate(&cal, &raw);
     assert_eq!(flags, ReportFlags::default());
     assert!(sample.input_na.abs_diff(14_996_338) <= 2, "{sample:?}");
+}
+
+#[test]
+fn the_settings_block_of_the_guide_gives_the_firmware_calibration() {
+    // The guide's `[front_end]` block, as a user would paste it.
+    let guide = include_str!("../../docs/nrf52840-front-end.md");
+    let section = guide
+        .split("## The same front-end in a settings file")
+        .nth(1)
+        .expect("the guide has the settings section");
+    let block = section
+        .split("```toml\n")
+        .nth(1)
+        .and_then(|rest| rest.split("```").next())
+        .expect("a toml block in the section");
+    let settings = gleaner::settings::NodeSettings::from_toml(block).unwrap();
+    let params = settings.front_end.expect("a front_end table");
+    assert_eq!(params.calibration(), Some(front_end::CALIBRATION));
+    // And the firmware's description, written in that form, is the same.
+    let written = gleaner::front_end::FrontEndParams::from_front_end(&front_end::FRONT_END);
+    assert_eq!(written.front_end(), front_end::FRONT_END);
+    assert_eq!(written.channel_adc, params.channel_adc);
 }

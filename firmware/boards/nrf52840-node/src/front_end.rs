@@ -6,8 +6,9 @@
 //! oversampling in burst mode. A single-ended channel spans `0.6 V / gain` over
 //! `2^14` codes; a differential channel spans `±0.6 V / gain` over `±2^13`.
 
-use gleaner_firmware::calibration::{current_shunt, voltage_divider, Adc};
-use gleaner_firmware::config::default_calibration;
+use gleaner_firmware::calibration::Adc;
+use gleaner_firmware::config::DEFAULT_CALIBRATION;
+use gleaner_firmware::front_end::{CurrentChannel, FrontEnd, VoltageChannel};
 use gleaner_firmware::RawSample;
 use gleaner_protocol::Calibration;
 
@@ -37,58 +38,71 @@ pub const OUTPUT_CURRENT_FULL_SCALE_UV: u32 = 150_000;
 /// The output shunt, mΩ.
 pub const OUTPUT_SHUNT_MILLIOHM: u32 = 10_000;
 
-/// Nominal calibration of this front-end, before a two-point trim from the
-/// host. Falls back to the library's defaults if a value above were zero.
-pub fn calibration() -> Calibration {
-    let single = |full_scale_uv| Adc {
+/// A single-ended channel's scale: `full_scale_uv` over `2^14` codes.
+const fn single(full_scale_uv: u32) -> Adc {
+    Adc {
         bits: ADC_BITS,
         reference_uv: full_scale_uv,
-    };
-    // A differential channel's positive half has one bit less.
-    let differential = |full_scale_uv| Adc {
-        bits: ADC_BITS - 1,
-        reference_uv: full_scale_uv,
-    };
-    let (top, bottom) = OUTPUT_DIVIDER_OHM;
-    let built = (
-        voltage_divider(single(INPUT_VOLTAGE_FULL_SCALE_UV), 0, 1),
-        current_shunt(
-            differential(INPUT_CURRENT_FULL_SCALE_UV),
-            INPUT_SHUNT_MILLIOHM,
-            1,
-        ),
-        voltage_divider(single(OUTPUT_VOLTAGE_FULL_SCALE_UV), top, bottom),
-        current_shunt(
-            differential(OUTPUT_CURRENT_FULL_SCALE_UV),
-            OUTPUT_SHUNT_MILLIOHM,
-            1,
-        ),
-    );
-    match built {
-        (Some(input_voltage), Some(input_current), Some(output_voltage), Some(output_current)) => {
-            Calibration {
-                adc_bits: ADC_BITS,
-                input_voltage,
-                input_current,
-                output_voltage,
-                output_current,
-            }
-        }
-        _ => default_calibration(),
     }
 }
 
+/// A differential channel's scale: its positive half has one bit less.
+const fn differential(full_scale_uv: u32) -> Adc {
+    Adc {
+        bits: ADC_BITS - 1,
+        reference_uv: full_scale_uv,
+    }
+}
+
+/// This front-end in the firmware library's terms (the SAADC's gain is in
+/// each channel's full scale, so no amplifier gain).
+pub const FRONT_END: FrontEnd = FrontEnd {
+    result_bits: ADC_BITS,
+    input_voltage: VoltageChannel {
+        adc: single(INPUT_VOLTAGE_FULL_SCALE_UV),
+        divider_top_ohm: 0,
+        divider_bottom_ohm: 1,
+    },
+    input_current: CurrentChannel {
+        adc: differential(INPUT_CURRENT_FULL_SCALE_UV),
+        shunt_milliohm: INPUT_SHUNT_MILLIOHM,
+        gain: 1,
+    },
+    output_voltage: VoltageChannel {
+        adc: single(OUTPUT_VOLTAGE_FULL_SCALE_UV),
+        divider_top_ohm: OUTPUT_DIVIDER_OHM.0,
+        divider_bottom_ohm: OUTPUT_DIVIDER_OHM.1,
+    },
+    output_current: CurrentChannel {
+        adc: differential(OUTPUT_CURRENT_FULL_SCALE_UV),
+        shunt_milliohm: OUTPUT_SHUNT_MILLIOHM,
+        gain: 1,
+    },
+};
+
+/// Nominal calibration of this front-end, before a two-point trim from the
+/// host, worked out when the firmware is compiled.
+pub const CALIBRATION: Calibration = match FRONT_END.calibration() {
+    Some(calibration) => calibration,
+    // Never taken: the assertion below fails the build first.
+    None => DEFAULT_CALIBRATION,
+};
+const _: () = assert!(
+    FRONT_END.calibration().is_some(),
+    "a divider, shunt or gain of this front-end is zero"
+);
+
 /// A single-ended result as counts: below zero (offset noise) reads 0, the
 /// top code stays the top code (flagged as clipped by the node).
-fn single_ended(code: i16) -> u32 {
+fn single_ended_counts(code: i16) -> u32 {
     u32::try_from(code.clamp(0, SINGLE_ENDED_TOP)).unwrap_or(0)
 }
 
 /// A differential result as counts: reverse current reads 0; a result at the
 /// positive limit becomes the single-ended top code so the node flags it.
-fn differential(code: i16) -> u32 {
+fn differential_counts(code: i16) -> u32 {
     if code >= DIFFERENTIAL_TOP {
-        single_ended(SINGLE_ENDED_TOP)
+        single_ended_counts(SINGLE_ENDED_TOP)
     } else {
         u32::try_from(code.max(0)).unwrap_or(0)
     }
@@ -99,9 +113,9 @@ fn differential(code: i16) -> u32 {
 pub fn raw_sample(results: [i16; 4]) -> RawSample {
     let [input_voltage, input_current, output_voltage, output_current] = results;
     RawSample {
-        input_voltage: single_ended(input_voltage),
-        input_current: differential(input_current),
-        output_voltage: single_ended(output_voltage),
-        output_current: differential(output_current),
+        input_voltage: single_ended_counts(input_voltage),
+        input_current: differential_counts(input_current),
+        output_voltage: single_ended_counts(output_voltage),
+        output_current: differential_counts(output_current),
     }
 }

@@ -99,7 +99,7 @@ fn main() -> ! {
     let loaded = config_store::load(&mut storage);
     let mut config = loaded.config;
     if loaded.source == ConfigSource::Defaults {
-        config.calibration = front_end::calibration();
+        config.calibration = front_end::CALIBRATION;
     }
     let boot_id = Rng::new(p.RNG).random_u32();
     // The factory-programmed device id (FICR DEVICEID, two words): the node's identity.

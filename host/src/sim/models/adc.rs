@@ -1,141 +1,33 @@
-//! The measuring front-end: dividers, shunts, amplifier gain and an N-bit ADC
-//! with a reference error and noise, producing the raw counts the node sees.
+//! The virtual node's ADC: the front-end as built ([`FrontEndParams`]) with
+//! its reference error, noise and channel errors, producing the raw counts
+//! the node sees.
 
-use gleaner_firmware::calibration::{current_shunt, voltage_divider, Adc};
+use gleaner_firmware::calibration::Adc;
 use gleaner_firmware::RawSample;
-use gleaner_protocol::Calibration;
 use rand::Rng;
 use rand_distr::StandardNormal;
-use serde::{Deserialize, Serialize};
 
-/// The front-end as built.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct FrontEndParams {
-    /// ADC resolution, bits.
-    pub adc_bits: u8,
-    /// Nominal ADC reference, V.
-    pub reference_v: f64,
-    /// Actual reference error, parts per million (what calibration would remove).
-    #[serde(default)]
-    pub reference_error_ppm: f64,
-    /// RMS noise at the ADC input, in LSB.
-    #[serde(default)]
-    pub noise_lsb: f64,
-    /// Input divider top resistor, Ω (0: direct).
-    pub input_divider_top_ohm: u32,
-    /// Input divider bottom resistor, Ω.
-    pub input_divider_bottom_ohm: u32,
-    /// Input shunt, mΩ.
-    pub input_shunt_milliohm: u32,
-    /// Input current amplifier gain.
-    pub input_gain: u32,
-    /// Output divider top resistor, Ω.
-    pub output_divider_top_ohm: u32,
-    /// Output divider bottom resistor, Ω.
-    pub output_divider_bottom_ohm: u32,
-    /// Output shunt, mΩ.
-    pub output_shunt_milliohm: u32,
-    /// Output current amplifier gain.
-    pub output_gain: u32,
-    /// Errors of each channel as built (what two-point calibration removes).
-    #[serde(default)]
-    pub errors: ChannelErrors,
-}
-
-/// A channel's error: it reads `value * (1 + gain_error_ppm / 10^6) + offset`.
-#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct ChannelError {
-    /// Gain error, parts per million (15000: reads 1.5 % high).
-    #[serde(default)]
-    pub gain_error_ppm: f64,
-    /// Offset, in the channel's unit (V for voltages, A for currents).
-    #[serde(default)]
-    pub offset: f64,
-}
-
-impl ChannelError {
-    /// What the channel takes `value` to be.
-    pub fn read(&self, value: f64) -> f64 {
-        value * (1.0 + self.gain_error_ppm * 1e-6) + self.offset
-    }
-}
-
-/// The four channels' errors.
-#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct ChannelErrors {
-    /// Harvester voltage.
-    #[serde(default)]
-    pub input_voltage: ChannelError,
-    /// Harvester current.
-    #[serde(default)]
-    pub input_current: ChannelError,
-    /// Load voltage.
-    #[serde(default)]
-    pub output_voltage: ChannelError,
-    /// Load current.
-    #[serde(default)]
-    pub output_current: ChannelError,
-}
+pub use crate::front_end::{ChannelError, ChannelErrors, FrontEndParams};
 
 impl FrontEndParams {
-    /// The front-end of the firmware's default calibration.
-    pub fn default_board() -> Self {
-        FrontEndParams {
-            adc_bits: 12,
-            reference_v: 3.3,
-            reference_error_ppm: 0.0,
-            noise_lsb: 0.0,
-            input_divider_top_ohm: 0,
-            input_divider_bottom_ohm: 1,
-            input_shunt_milliohm: 1_000,
-            input_gain: 50,
-            output_divider_top_ohm: 1_000_000,
-            output_divider_bottom_ohm: 1_000_000,
-            output_shunt_milliohm: 10_000,
-            output_gain: 50,
-            errors: ChannelErrors::default(),
-        }
-    }
-
-    fn adc(&self) -> Adc {
-        Adc {
-            bits: self.adc_bits,
-            reference_uv: (self.reference_v * 1e6).round() as u32,
-        }
-    }
-
-    /// The nominal calibration a node would be given for this front-end.
-    pub fn calibration(&self) -> Option<Calibration> {
-        let adc = self.adc();
-        Some(Calibration {
-            adc_bits: self.adc_bits,
-            input_voltage: voltage_divider(
-                adc,
-                self.input_divider_top_ohm,
-                self.input_divider_bottom_ohm,
-            )?,
-            input_current: current_shunt(adc, self.input_shunt_milliohm, self.input_gain)?,
-            output_voltage: voltage_divider(
-                adc,
-                self.output_divider_top_ohm,
-                self.output_divider_bottom_ohm,
-            )?,
-            output_current: current_shunt(adc, self.output_shunt_milliohm, self.output_gain)?,
-        })
-    }
-
-    fn convert(&self, pin_v: f64, rng: &mut impl Rng) -> u32 {
-        let reference = self.reference_v * (1.0 + self.reference_error_ppm * 1e-6);
-        let lsb = reference / f64::from(1u32 << self.adc_bits);
+    /// Counts for `pin_v` at the pin of a channel read at `adc`'s scale
+    /// (`2^bits` codes over its full scale, IEEE Std 1241 code width), held
+    /// within the converter's results.
+    fn convert(&self, pin_v: f64, adc: Adc, rng: &mut impl Rng) -> u32 {
+        let full_scale = f64::from(adc.reference_uv) * 1e-6;
+        let reference = full_scale * (1.0 + self.reference_error_ppm * 1e-6);
+        let lsb = reference / (f64::from(adc.max_count()) + 1.0);
         let noise = if self.noise_lsb > 0.0 {
             rng.sample::<f64, _>(StandardNormal) * self.noise_lsb
         } else {
             0.0
         };
-        let max = f64::from((1u32 << self.adc_bits) - 1);
+        let result_top = Adc {
+            bits: self.adc_bits,
+            reference_uv: adc.reference_uv,
+        }
+        .max_count();
+        let max = f64::from(adc.max_count().min(result_top));
         (pin_v / lsb + noise).round().clamp(0.0, max) as u32
     }
 
@@ -153,6 +45,7 @@ impl FrontEndParams {
         };
         let amplify =
             |a: f64, milliohm: u32, gain: u32| a * f64::from(milliohm) * 1e-3 * f64::from(gain);
+        let fe = self.front_end();
         let e = &self.errors;
         let (input_v, input_a) = (e.input_voltage.read(input_v), e.input_current.read(input_a));
         let (output_v, output_a) = (
@@ -166,10 +59,12 @@ impl FrontEndParams {
                     self.input_divider_top_ohm,
                     self.input_divider_bottom_ohm,
                 ),
+                fe.input_voltage.adc,
                 rng,
             ),
             input_current: self.convert(
                 amplify(input_a, self.input_shunt_milliohm, self.input_gain),
+                fe.input_current.adc,
                 rng,
             ),
             output_voltage: self.convert(
@@ -178,10 +73,12 @@ impl FrontEndParams {
                     self.output_divider_top_ohm,
                     self.output_divider_bottom_ohm,
                 ),
+                fe.output_voltage.adc,
                 rng,
             ),
             output_current: self.convert(
                 amplify(output_a, self.output_shunt_milliohm, self.output_gain),
+                fe.output_current.adc,
                 rng,
             ),
         }
@@ -205,6 +102,29 @@ mod tests {
         assert!((f64::from(s.input_na) - 12_300_000.0).abs() <= 16_114.0 / 2.0 + 1.0);
         assert!((f64::from(s.output_uv) - 3_100_000.0).abs() <= 1_612.0 / 2.0 + 1.0);
         assert!((f64::from(s.output_na) - 450_000.0).abs() <= 1_612.0 / 2.0 + 1.0);
+    }
+
+    #[test]
+    fn a_channel_with_its_own_scale_is_sampled_at_it() {
+        // The output current read differentially at 13 bits over 150 mV
+        // through 10 Ω without gain (1.831 µA per count) on a converter with
+        // 14-bit results.
+        let mut fe = FrontEndParams::default_board();
+        fe.adc_bits = 14;
+        fe.output_gain = 1;
+        fe.channel_adc.output_current = Some(crate::front_end::ChannelAdc {
+            bits: 13,
+            full_scale_v: 0.15,
+        });
+        let cal = fe.calibration().unwrap();
+        let mut rng = rand_pcg::Pcg64Mcg::seed_from_u64(1);
+        let raw = fe.sample(1.0, 0.0, 3.0, 0.012, &mut rng);
+        assert_eq!(raw.output_current, 6554); // 120 mV / (150 mV / 8192)
+        let (s, _) = calibrate(&cal, &raw);
+        assert!((f64::from(s.output_na) - 12_000_000.0).abs() <= 1_831.0 / 2.0 + 1.0);
+        // Beyond its full scale it stops at its own top code.
+        let raw = fe.sample(1.0, 0.0, 3.0, 0.1, &mut rng);
+        assert_eq!(raw.output_current, 8191);
     }
 
     #[test]

@@ -6,8 +6,8 @@ use anyhow::{bail, Context, Result};
 use serde::{Deserialize, Serialize};
 
 use crate::failure::FailedAs;
+use crate::front_end::FrontEndParams;
 use crate::settings::NodeSettings;
-use crate::sim::models::adc::FrontEndParams;
 use crate::sim::models::converter::{ConverterParams, InputMode};
 use crate::sim::models::load::LoadParams;
 use crate::sim::models::source::SourceParams;
