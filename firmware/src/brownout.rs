@@ -16,18 +16,12 @@
 //! alone would say `C V (V - Vmin) / (I V - P)`, shorter, because the load's
 //! power falls with the voltage while the harvest's does not.
 
+use crate::meter::storage_level_nj;
 use crate::wide::Wide;
 
 /// Power in nW of a current `na` at `uv` (nA µV = 1e-15 W).
 pub fn power_nw(na: i64, uv: u32) -> i64 {
     na.saturating_mul(i64::from(uv)) / 1_000_000
-}
-
-/// Stored energy `C V² / 2` in nJ (µF µV² = 1e-18 J).
-pub fn storage_level_nj(c_uf: u32, v_uv: u32) -> i64 {
-    let v2 = u128::from(v_uv).saturating_mul(u128::from(v_uv));
-    let nj = u128::from(c_uf).saturating_mul(v2) / 2_000_000_000;
-    i64::try_from(nj).unwrap_or(i64::MAX)
 }
 
 /// Milliseconds that `c_uf` of storage at `from_uv` can supply `load_nw` before

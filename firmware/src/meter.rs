@@ -84,16 +84,14 @@ impl EnergyIntegrator {
     }
 }
 
-/// Energy put into (positive) or taken from (negative) a capacitor of `c_uf` as
-/// its voltage moves from `from_uv` to `to_uv`: `E = C (V2^2 - V1^2) / 2`, in nJ.
+/// Energy a capacitor of `c_uf` holds at `v_uv`: `E = C V² / 2`, in nJ (the
+/// output storage's level; a change of level is energy stored or taken).
 ///
-/// Units: µF * µV^2 = 10^-18 J, so divide by `2 * 10^9` for nJ.
-pub fn capacitor_energy_change_nj(c_uf: u32, from_uv: u32, to_uv: u32) -> i64 {
-    let v2 = i128::from(to_uv).saturating_mul(i128::from(to_uv));
-    let v1 = i128::from(from_uv).saturating_mul(i128::from(from_uv));
-    let numerator = i128::from(c_uf).saturating_mul(v2.saturating_sub(v1));
-    let nj = numerator / 2_000_000_000;
-    i64::try_from(nj).unwrap_or(if nj < 0 { i64::MIN } else { i64::MAX })
+/// Units: µF * µV² = 10^-18 J, so divide by `2 * 10^9` for nJ.
+pub fn storage_level_nj(c_uf: u32, v_uv: u32) -> i64 {
+    let v2 = u128::from(v_uv).saturating_mul(u128::from(v_uv));
+    let nj = u128::from(c_uf).saturating_mul(v2) / 2_000_000_000;
+    i64::try_from(nj).unwrap_or(i64::MAX)
 }
 
 /// Below this much drawn energy an efficiency is not stated (1 µJ).
@@ -232,19 +230,17 @@ mod tests {
     #[test]
     fn capacitor_energy_worked_examples() {
         // Any physics text: 10 F at 2.7 V holds 36.45 J; 2.7 -> 0.9 V frees 32.4 J.
+        assert_eq!(storage_level_nj(10_000_000, 2_700_000), 36_450_000_000);
         assert_eq!(
-            capacitor_energy_change_nj(10_000_000, 0, 2_700_000),
-            36_450_000_000
-        );
-        assert_eq!(
-            capacitor_energy_change_nj(10_000_000, 2_700_000, 900_000),
+            storage_level_nj(10_000_000, 900_000) - storage_level_nj(10_000_000, 2_700_000),
             -32_400_000_000
         );
         // 100 uF from 3.3 to 1.8 V: 0.3825 mJ.
         assert_eq!(
-            capacitor_energy_change_nj(100, 3_300_000, 1_800_000),
+            storage_level_nj(100, 1_800_000) - storage_level_nj(100, 3_300_000),
             -382_500
         );
+        assert_eq!(storage_level_nj(0, 3_300_000), 0);
     }
 
     #[test]

@@ -11,7 +11,7 @@ use gleaner_protocol::{
 };
 use heapless::{Deque, HistoryBuf, Vec};
 
-use crate::brownout::{brownout_ms, power_nw, storage_level_nj, DrainOutlook};
+use crate::brownout::{brownout_ms, power_nw, DrainOutlook};
 use crate::calibration::{calibrate, RawSample};
 use crate::config::validate;
 use crate::config_store;
@@ -24,7 +24,7 @@ use crate::harvest_profile::{HarvestProfile, SLOT_MS};
 use crate::interval::{ChannelSummary, IntervalStats};
 use crate::load_shed::{LoadShedder, Risk, ShedSaving};
 use crate::load_watch::LoadWatch;
-use crate::meter::Meter;
+use crate::meter::{storage_level_nj, Meter};
 
 /// Samples averaged for the storage voltage: a single sample's noise would
 /// swing the storage energy of a large capacitor by more than an interval's
