@@ -583,3 +583,36 @@ fn a_log_without_a_hello_says_so() {
         report.warnings
     );
 }
+
+#[test]
+fn settings_are_applied_on_the_present_configuration_or_refused_with_the_reason() {
+    let node = VirtualNode::new(scenario("stalled-converter", Some(0.5)), 3).unwrap();
+    let port = VirtualPort::spawn(node, Some(50.0)).unwrap();
+    let mut session = Session::open(&port.path(), 115_200, Duration::from_secs(3)).unwrap();
+    // One key changed; the rest is what the node has (its Hello is asked first).
+    let settings = gleaner::settings::NodeSettings::from_toml("report_interval_ms = 2500").unwrap();
+    let sent = session.apply_settings(&settings).unwrap();
+    assert_eq!(sent.report_interval_ms, 2_500);
+    let before = session.hello.clone().expect("the Hello asked for first");
+    assert_eq!(
+        NodeConfig {
+            report_interval_ms: before.config.report_interval_ms,
+            ..sent.clone()
+        },
+        before.config
+    );
+    session.request(Command::GetInfo, Duration::ZERO).unwrap();
+    assert_eq!(session.hello.as_ref().unwrap().config, sent);
+    // A stop voltage above the start voltage: the node's own reason, and its
+    // settings unchanged.
+    let settings = gleaner::settings::NodeSettings::from_toml("stop_v = 5.0").unwrap();
+    let err = session.apply_settings(&settings).unwrap_err();
+    assert_eq!(
+        gleaner::failure::Failure::exit_code(&err),
+        gleaner::failure::Failure::Refused.code(),
+        "{err:#}"
+    );
+    assert!(format!("{err:#}").contains("stop voltage"), "{err:#}");
+    session.request(Command::GetInfo, Duration::ZERO).unwrap();
+    assert_eq!(session.hello.as_ref().unwrap().config, sent);
+}

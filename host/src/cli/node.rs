@@ -208,8 +208,7 @@ impl Cmd {
             }
             Action::SetConfig(set) => {
                 let settings = set.settings()?;
-                let config = settings.apply(&session.present_config()?)?;
-                session.configure(config.clone())?;
+                let config = session.apply_settings(&settings)?;
                 if self.json {
                     say!(
                         "{}",

@@ -467,7 +467,7 @@ fn print_outcomes(script: &CommandScript) {
         }
     }
     for e in &script.errors {
-        eprintln!("not sent: {e}");
+        eprintln!("not sent: {e:#}");
     }
 }
 

@@ -1,10 +1,13 @@
-//! Commands sent while recording: a short script run against the node as soon
-//! as it answers, its replies kept (they are in the log too).
+//! Commands run against a node one at a time, each waiting for its reply: a
+//! short script sent while recording as soon as the node answers (its
+//! replies are in the log too), or driven by a [`super::Session`]. Settings
+//! are applied here only: on the node's present configuration, from a fresh
+//! `Hello` asked for first.
 
 use std::collections::VecDeque;
 use std::time::{Duration, Instant};
 
-use gleaner_protocol::{Command, Hello, Outcome, UplinkBody};
+use gleaner_protocol::{Command, Hello, NodeConfig, Outcome, UplinkBody};
 
 use crate::link::{LinkStats, Tracked};
 use crate::recorder::PortObserver;
@@ -37,7 +40,9 @@ pub struct CommandScript {
     /// Each step with its outcome (None: no answer in time).
     pub results: Vec<(Step, Option<Outcome>)>,
     /// Problems preparing a step (bad settings for this node).
-    pub errors: Vec<String>,
+    pub errors: Vec<anyhow::Error>,
+    /// The last configuration sent by a `Configure` step.
+    pub configured: Option<NodeConfig>,
 }
 
 impl CommandScript {
@@ -53,7 +58,20 @@ impl CommandScript {
             heard: false,
             results: Vec::new(),
             errors: Vec::new(),
+            configured: None,
         }
+    }
+
+    /// Sends the first command at once instead of waiting to hear the node
+    /// (a session at the user's request: the node is up, and may be quiet).
+    pub fn at_once(mut self) -> Self {
+        self.heard = true;
+        self
+    }
+
+    /// Steps not yet sent.
+    pub fn steps_left(&self) -> usize {
+        self.steps.len()
     }
 
     /// True when every step has been answered or has timed out.
@@ -108,9 +126,12 @@ impl CommandScript {
                     return self.outgoing();
                 }
                 Some(hello) => match settings.apply(&hello.config) {
-                    Ok(config) => Command::SetConfig(config),
+                    Ok(config) => {
+                        self.configured = Some(config.clone());
+                        Command::SetConfig(config)
+                    }
                     Err(e) => {
-                        self.errors.push(format!("{e:#}"));
+                        self.errors.push(e);
                         return self.outgoing();
                     }
                 },

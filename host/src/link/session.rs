@@ -1,5 +1,6 @@
 //! A blocking session with a node on an open port: one command at a time,
-//! each waiting for its reply (`gleaner node`, calibration, tests).
+//! each waiting for its reply (`gleaner node`, calibration, tests). Settings
+//! go through the same [`CommandScript`] as commands sent while recording.
 
 use std::io::{Read, Write};
 use std::time::{Duration, Instant};
@@ -10,8 +11,10 @@ use gleaner_protocol::{
 };
 use serialport::SerialPort;
 
-use super::{open_port, LinkTracker, RequestIds};
+use super::script::{CommandScript, Step};
+use super::{open_port, LinkTracker, RequestIds, Tracked};
 use crate::failure::{FailedAs, Failure};
+use crate::settings::NodeSettings;
 
 /// A command session on an open port.
 pub struct Session {
@@ -73,6 +76,41 @@ impl Session {
         explain(self.request(Command::SetConfig(config), Duration::ZERO)?)
     }
 
+    /// Applies `settings` on top of the node's present configuration (a
+    /// fresh `Hello` first) and has it stored, through the one command
+    /// script every client uses; returns the configuration sent.
+    pub fn apply_settings(&mut self, settings: &NodeSettings) -> Result<NodeConfig> {
+        let steps = vec![Step::Configure(Box::new(settings.clone()))];
+        let mut script = self.run(CommandScript::new(steps, self.timeout).at_once())?;
+        if let Some(e) = script.errors.pop() {
+            return Err(e.failed_as(Failure::BadInput));
+        }
+        match script.results.last() {
+            Some((Step::Configure(_), Some(outcome))) => explain(*outcome)?,
+            _ => return Err(self.no_answer(self.timeout)),
+        }
+        script.configured.context("the configuration was not sent")
+    }
+
+    /// Runs `script` to its end: sends each command when due and feeds it
+    /// what the node says (`Hello`s and samples are kept here too).
+    pub fn run(&mut self, mut script: CommandScript) -> Result<CommandScript> {
+        // A step waits at most its timeout; the script ends well before this.
+        let steps = u32::try_from(script.steps_left()).unwrap_or(u32::MAX);
+        let deadline = Instant::now() + self.timeout * steps.saturating_mul(2).saturating_add(1);
+        while !script.finished() && Instant::now() < deadline {
+            if let Some(bytes) = script.outgoing() {
+                self.port.write_all(&bytes).context("writing to the port")?;
+                self.port.flush().ok();
+            }
+            self.pump(Instant::now() + POLL, |tracked| {
+                script.message(tracked);
+                false
+            })?;
+        }
+        Ok(script)
+    }
+
     /// Sends `command` and waits for its reply; collects `Hello`s and samples meanwhile.
     /// `extra` extends the wait (bursts take time).
     pub fn request(&mut self, command: Command, extra: Duration) -> Result<Outcome> {
@@ -82,6 +120,26 @@ impl Session {
         self.port.flush().ok();
         let deadline = Instant::now() + self.timeout + extra;
         let mut outcome = None;
+        while Instant::now() < deadline {
+            let burst_done = self.pump(deadline, |tracked| match &tracked.message.body {
+                UplinkBody::Reply(r) if r.request_id == request_id => {
+                    outcome = Some(r.outcome);
+                    extra.is_zero()
+                }
+                UplinkBody::Samples(block) => block.remaining == 0 && outcome.is_some(),
+                _ => false,
+            })?;
+            if burst_done {
+                break;
+            }
+        }
+        outcome.ok_or_else(|| self.no_answer(self.timeout + extra))
+    }
+
+    /// Reads from the port until `deadline` or until `stop` says so for a
+    /// message; `Hello`s and burst samples are kept on the way. True when
+    /// `stop` said so.
+    fn pump(&mut self, deadline: Instant, mut stop: impl FnMut(&Tracked) -> bool) -> Result<bool> {
         let mut rx = [0u8; 1024];
         while Instant::now() < deadline {
             let n = match self.port.read(&mut rx) {
@@ -96,42 +154,44 @@ impl Session {
                 let Ok(Some(tracked)) = self.tracker.accept_encoded(frame) else {
                     continue;
                 };
-                match tracked.message.body {
-                    UplinkBody::Hello(h) => self.hello = Some(h),
-                    UplinkBody::Samples(block) => {
-                        for (i, s) in block.samples.iter().enumerate() {
-                            self.samples
-                                .push((block.first_index + i as u32, *s, block.period_us));
-                        }
-                        self.progress.set_position(self.samples.len() as u64);
-                        if block.remaining == 0 && outcome.is_some() {
-                            return Ok(outcome.unwrap_or(Outcome::Accepted));
-                        }
-                    }
-                    UplinkBody::Reply(r) if r.request_id == request_id => {
-                        outcome = Some(r.outcome);
-                    }
-                    _ => {}
-                }
-            }
-            if let Some(o) = outcome {
-                if extra.is_zero() {
-                    return Ok(o);
+                self.keep(&tracked);
+                if stop(&tracked) {
+                    return Ok(true);
                 }
             }
         }
-        match outcome {
-            Some(o) => Ok(o),
-            None => Err(anyhow::anyhow!(
-                "the node did not answer within {:.1} s: check the port, the baud rate, and that the node runs Gleaner firmware ({} frames heard, {} damaged)",
-                (self.timeout + extra).as_secs_f64(),
-                self.tracker.stats().frames,
-                self.tracker.stats().damaged()
-            )
-            .failed_as(Failure::NoAnswer)),
+        Ok(false)
+    }
+
+    /// Keeps a `Hello` and burst samples.
+    fn keep(&mut self, tracked: &Tracked) {
+        match &tracked.message.body {
+            UplinkBody::Hello(h) => self.hello = Some(h.clone()),
+            UplinkBody::Samples(block) => {
+                for (i, s) in block.samples.iter().enumerate() {
+                    self.samples
+                        .push((block.first_index + i as u32, *s, block.period_us));
+                }
+                self.progress.set_position(self.samples.len() as u64);
+            }
+            _ => {}
         }
     }
+
+    /// The error for a node that did not answer within `waited`.
+    fn no_answer(&self, waited: Duration) -> anyhow::Error {
+        anyhow::anyhow!(
+            "the node did not answer within {:.1} s: check the port, the baud rate, and that the node runs Gleaner firmware ({} frames heard, {} damaged)",
+            waited.as_secs_f64(),
+            self.tracker.stats().frames,
+            self.tracker.stats().damaged()
+        )
+        .failed_as(Failure::NoAnswer)
+    }
 }
+
+/// How long [`Session::run`] reads between looking at its script.
+const POLL: Duration = Duration::from_millis(20);
 
 /// Ok for an answer that did what was asked; a refusal is an error carrying
 /// the node's reason.
