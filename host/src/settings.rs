@@ -3,7 +3,7 @@
 
 use anyhow::{bail, Context, Result};
 use gleaner_firmware::config::MAX_SCALE_Q20;
-use gleaner_protocol::{ChannelCal, NodeConfig};
+use gleaner_protocol::{Calibration, Channel, ChannelCal, NodeConfig, Thresholds};
 use serde::{Deserialize, Serialize};
 
 use crate::front_end::FrontEndParams;
@@ -88,8 +88,7 @@ pub struct TwoPointTrims {
 
 impl TwoPointTrims {
     /// The correction of `channel`, if given.
-    pub fn channel_mut(&mut self, channel: gleaner_protocol::Channel) -> &mut Option<TwoPoint> {
-        use gleaner_protocol::Channel;
+    pub fn channel_mut(&mut self, channel: Channel) -> &mut Option<TwoPoint> {
         match channel {
             Channel::InputVoltage => &mut self.input_voltage,
             Channel::InputCurrent => &mut self.input_current,
@@ -98,8 +97,18 @@ impl TwoPointTrims {
         }
     }
 
+    /// The settings key of `channel`'s correction (under `two_point`).
+    pub const fn key(channel: Channel) -> &'static str {
+        match channel {
+            Channel::InputVoltage => "input_voltage",
+            Channel::InputCurrent => "input_current",
+            Channel::OutputVoltage => "output_voltage",
+            Channel::OutputCurrent => "output_current",
+        }
+    }
+
     /// The correction of `channel`, if given.
-    pub fn channel(&self, channel: gleaner_protocol::Channel) -> Option<TwoPoint> {
+    pub fn channel(&self, channel: Channel) -> Option<TwoPoint> {
         self.clone().channel_mut(channel).take()
     }
 }
@@ -255,10 +264,26 @@ impl NodeSettings {
     /// the node itself checks the rules between fields.
     pub fn apply(&self, base: &NodeConfig) -> Result<NodeConfig> {
         let mut c = base.clone();
-        let t = &mut c.thresholds;
         if let Some(v) = self.report_interval_ms {
             c.report_interval_ms = v;
         }
+        self.apply_converter_thresholds(&mut c.thresholds)?;
+        self.apply_load(&mut c)?;
+        self.apply_converter_model(&mut c)?;
+        if let Some(name) = &self.name {
+            c.name = gleaner_protocol::NodeName::try_from(name.as_str()).map_err(|_| {
+                anyhow::anyhow!(
+                    "name = {name:?} is longer than {} bytes",
+                    gleaner_protocol::NODE_NAME_LEN
+                )
+            })?;
+        }
+        self.apply_calibration(&mut c.calibration)?;
+        Ok(c)
+    }
+
+    /// The converter's voltages, timings and forecast horizon.
+    fn apply_converter_thresholds(&self, t: &mut Thresholds) -> Result<()> {
         if let Some(v) = self.start_v {
             t.start_uv = volts_to_uv("start_v", v)?;
         }
@@ -289,6 +314,12 @@ impl NodeSettings {
             }
             t.input_idle_na = (v * 1e3).round() as u32;
         }
+        Ok(())
+    }
+
+    /// The load: its storage, minimum and restart voltages, brown-out
+    /// horizon and shedding.
+    fn apply_load(&self, c: &mut NodeConfig) -> Result<()> {
         if let Some(v) = self.output_storage_uf {
             c.output_storage_uf = v;
         }
@@ -311,14 +342,11 @@ impl NodeSettings {
             }
             c.shed_load_na = (v * 1e3).round() as u32;
         }
-        if let Some(name) = &self.name {
-            c.name = gleaner_protocol::NodeName::try_from(name.as_str()).map_err(|_| {
-                anyhow::anyhow!(
-                    "name = {name:?} is longer than {} bytes",
-                    gleaner_protocol::NODE_NAME_LEN
-                )
-            })?;
-        }
+        Ok(())
+    }
+
+    /// How the converter treats its input and output.
+    fn apply_converter_model(&self, c: &mut NodeConfig) -> Result<()> {
         if let Some(f) = self.mppt_fraction {
             if !(0.0..=1.0).contains(&f) {
                 bail!(
@@ -330,49 +358,31 @@ impl NodeSettings {
         if let Some(regulated) = self.output_regulated {
             c.converter.output_regulated = regulated;
         }
+        Ok(())
+    }
+
+    /// A new front-end, or two-point corrections of the present calibration.
+    fn apply_calibration(&self, cal: &mut Calibration) -> Result<()> {
         if let Some(fe) = &self.front_end {
             if self.two_point.is_some() {
                 bail!("front_end and two_point cannot be combined: send the front-end first, measure, then send the two-point corrections");
             }
-            c.calibration = fe
+            *cal = fe
                 .calibration()
                 .context("front_end: a divider, shunt or gain is zero or the scale overflows")?;
         }
-        if let Some(trims) = &self.two_point {
-            let cal = &mut c.calibration;
-            let channels = [
-                (
-                    "two_point.input_voltage",
-                    &trims.input_voltage,
-                    &mut cal.input_voltage,
-                    true,
-                ),
-                (
-                    "two_point.input_current",
-                    &trims.input_current,
-                    &mut cal.input_current,
-                    false,
-                ),
-                (
-                    "two_point.output_voltage",
-                    &trims.output_voltage,
-                    &mut cal.output_voltage,
-                    true,
-                ),
-                (
-                    "two_point.output_current",
-                    &trims.output_current,
-                    &mut cal.output_current,
-                    false,
-                ),
-            ];
-            for (field, trim, channel, voltage) in channels {
-                if let Some(trim) = trim {
-                    *channel = trimmed(field, channel, trim, voltage)?;
-                }
+        let Some(trims) = &self.two_point else {
+            return Ok(());
+        };
+        for channel in Channel::ALL {
+            if let Some(trim) = trims.channel(channel) {
+                let field = format!("two_point.{}", TwoPointTrims::key(channel));
+                let voltage = matches!(channel, Channel::InputVoltage | Channel::OutputVoltage);
+                let present = *cal.channel(channel);
+                *cal.channel_mut(channel) = trimmed(&field, &present, &trim, voltage)?;
             }
         }
-        Ok(c)
+        Ok(())
     }
 }
 

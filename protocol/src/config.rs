@@ -84,6 +84,16 @@ impl Calibration {
             Channel::OutputCurrent => &self.output_current,
         }
     }
+
+    /// The calibration of one channel, to change.
+    pub fn channel_mut(&mut self, channel: Channel) -> &mut ChannelCal {
+        match channel {
+            Channel::InputVoltage => &mut self.input_voltage,
+            Channel::InputCurrent => &mut self.input_current,
+            Channel::OutputVoltage => &mut self.output_voltage,
+            Channel::OutputCurrent => &mut self.output_current,
+        }
+    }
 }
 
 /// Thresholds and timings of the cutoff state machine.
