@@ -8,9 +8,14 @@ use serde::{Deserialize, Serialize};
 use crate::failure::FailedAs;
 use crate::front_end::FrontEndParams;
 use crate::settings::NodeSettings;
+use crate::sim::models::cell::CellParams;
 use crate::sim::models::converter::{ConverterParams, InputMode};
+use crate::sim::models::environment::{DaylightParams, PipeParams};
 use crate::sim::models::load::LoadParams;
+use crate::sim::models::solar::PvCell;
 use crate::sim::models::source::SourceParams;
+use crate::sim::models::supercap::SupercapParams;
+use crate::sim::models::teg::TegParams;
 
 /// A complete simulated run.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -138,88 +143,23 @@ impl Scenario {
             60_000.0,
         )?;
         match &self.source {
-            SourceParams::Cell { cell } => {
-                positive("source.capacity_mah", cell.capacity_mah)?;
-                positive("source.fresh_resistance_ohm", cell.fresh_resistance_ohm)?;
-                within("source.initial_depth", cell.initial_depth, 0.0, 1.2)?;
-            }
+            SourceParams::Cell { cell } => validate_cell(cell)?,
             SourceParams::Solar {
                 cell,
                 daylight,
                 cell_celsius,
-            } => {
-                positive("source.cell.photocurrent_ref_a", cell.photocurrent_ref_a)?;
-                positive(
-                    "source.cell.saturation_current_ref_a",
-                    cell.saturation_current_ref_a,
-                )?;
-                within("source.cell.series_ohm", cell.series_ohm, 0.0, 1e6)?;
-                positive("source.cell.shunt_ref_ohm", cell.shunt_ref_ohm)?;
-                positive(
-                    "source.cell.ideality_voltage_ref_v",
-                    cell.ideality_voltage_ref_v,
-                )?;
-                within("source.cell_celsius", *cell_celsius, -60.0, 120.0)?;
-                within(
-                    "source.daylight.sunrise_hour",
-                    daylight.sunrise_hour,
-                    0.0,
-                    24.0,
-                )?;
-                within(
-                    "source.daylight.sunset_hour",
-                    daylight.sunset_hour,
-                    daylight.sunrise_hour,
-                    24.0,
-                )?;
-                within("source.daylight.peak_w_m2", daylight.peak_w_m2, 0.0, 1500.0)?;
-                within(
-                    "source.daylight.night_w_m2",
-                    daylight.night_w_m2,
-                    0.0,
-                    1500.0,
-                )?;
-                within(
-                    "source.daylight.clouds_per_hour",
-                    daylight.clouds_per_hour,
-                    0.0,
-                    60.0,
-                )?;
-                positive("source.daylight.cloud_minutes", daylight.cloud_minutes)?;
-                within(
-                    "source.daylight.cloud_transmission",
-                    daylight.cloud_transmission,
-                    0.0,
-                    1.0,
-                )?;
-            }
-            SourceParams::Supercap { cap } => {
-                positive("source.capacitance_f", cap.capacitance_f)?;
-                positive("source.series_ohm", cap.series_ohm)?;
-                positive("source.leakage_ohm", cap.leakage_ohm)?;
-                within("source.initial_v", cap.initial_v, 0.0, 100.0)?;
-            }
-            SourceParams::Thermoelectric { generator, pipe } => {
-                positive(
-                    "source.generator.seebeck_v_per_k",
-                    generator.seebeck_v_per_k,
-                )?;
-                positive("source.generator.internal_ohm", generator.internal_ohm)?;
-                within(
-                    "source.pipe.running_delta_k",
-                    pipe.running_delta_k,
-                    0.0,
-                    500.0,
-                )?;
-                within("source.pipe.idle_delta_k", pipe.idle_delta_k, 0.0, 500.0)?;
-                positive("source.pipe.cycle_minutes", pipe.cycle_minutes)?;
-                within("source.pipe.duty", pipe.duty, 0.0, 1.0)?;
-                positive(
-                    "source.pipe.time_constant_minutes",
-                    pipe.time_constant_minutes,
-                )?;
-            }
+            } => validate_solar(cell, daylight, *cell_celsius)?,
+            SourceParams::Supercap { cap } => validate_supercap(cap)?,
+            SourceParams::Thermoelectric { generator, pipe } => validate_teg(generator, pipe)?,
         }
+        self.validate_converter()?;
+        self.validate_load()?;
+        self.validate_front_end()?;
+        self.node_config()?;
+        Ok(())
+    }
+
+    fn validate_converter(&self) -> Result<()> {
         let c = &self.converter;
         positive("converter.start_v", c.start_v)?;
         positive("converter.stop_v", c.stop_v)?;
@@ -256,6 +196,10 @@ impl Scenario {
         if let Some(v) = c.fault_for_s {
             positive("converter.fault_for_s", v)?;
         }
+        Ok(())
+    }
+
+    fn validate_load(&self) -> Result<()> {
         match self.load {
             LoadParams::SensorNode {
                 sleep_a,
@@ -277,6 +221,10 @@ impl Scenario {
                 positive("load.n_vt", n_vt)?;
             }
         }
+        Ok(())
+    }
+
+    fn validate_front_end(&self) -> Result<()> {
         within(
             "front_end.adc_bits",
             f64::from(self.front_end.adc_bits),
@@ -305,10 +253,28 @@ impl Scenario {
                 10.0,
             )?;
         }
+        let own = &self.front_end.channel_adc;
+        for (name, adc) in [
+            ("input_voltage", own.input_voltage),
+            ("input_current", own.input_current),
+            ("output_voltage", own.output_voltage),
+            ("output_current", own.output_current),
+        ] {
+            if let Some(adc) = adc {
+                let bits = f64::from(adc.bits);
+                let field = format!("front_end.channel_adc.{name}");
+                within(
+                    &format!("{field}.bits"),
+                    bits,
+                    1.0,
+                    f64::from(self.front_end.adc_bits),
+                )?;
+                positive(&format!("{field}.full_scale_v"), adc.full_scale_v)?;
+            }
+        }
         if self.front_end.calibration().is_none() {
             bail!("front_end: a divider, shunt or gain is zero or the scale overflows");
         }
-        self.node_config()?;
         Ok(())
     }
 
@@ -359,6 +325,91 @@ impl Scenario {
     }
 }
 
+fn validate_cell(cell: &CellParams) -> Result<()> {
+    positive("source.capacity_mah", cell.capacity_mah)?;
+    positive("source.fresh_resistance_ohm", cell.fresh_resistance_ohm)?;
+    within("source.initial_depth", cell.initial_depth, 0.0, 1.2)?;
+    Ok(())
+}
+
+fn validate_solar(cell: &PvCell, daylight: &DaylightParams, cell_celsius: f64) -> Result<()> {
+    positive("source.cell.photocurrent_ref_a", cell.photocurrent_ref_a)?;
+    positive(
+        "source.cell.saturation_current_ref_a",
+        cell.saturation_current_ref_a,
+    )?;
+    within("source.cell.series_ohm", cell.series_ohm, 0.0, 1e6)?;
+    positive("source.cell.shunt_ref_ohm", cell.shunt_ref_ohm)?;
+    positive(
+        "source.cell.ideality_voltage_ref_v",
+        cell.ideality_voltage_ref_v,
+    )?;
+    within("source.cell_celsius", cell_celsius, -60.0, 120.0)?;
+    within(
+        "source.daylight.sunrise_hour",
+        daylight.sunrise_hour,
+        0.0,
+        24.0,
+    )?;
+    within(
+        "source.daylight.sunset_hour",
+        daylight.sunset_hour,
+        daylight.sunrise_hour,
+        24.0,
+    )?;
+    within("source.daylight.peak_w_m2", daylight.peak_w_m2, 0.0, 1500.0)?;
+    within(
+        "source.daylight.night_w_m2",
+        daylight.night_w_m2,
+        0.0,
+        1500.0,
+    )?;
+    within(
+        "source.daylight.clouds_per_hour",
+        daylight.clouds_per_hour,
+        0.0,
+        60.0,
+    )?;
+    positive("source.daylight.cloud_minutes", daylight.cloud_minutes)?;
+    within(
+        "source.daylight.cloud_transmission",
+        daylight.cloud_transmission,
+        0.0,
+        1.0,
+    )?;
+    Ok(())
+}
+
+fn validate_supercap(cap: &SupercapParams) -> Result<()> {
+    positive("source.capacitance_f", cap.capacitance_f)?;
+    positive("source.series_ohm", cap.series_ohm)?;
+    positive("source.leakage_ohm", cap.leakage_ohm)?;
+    within("source.initial_v", cap.initial_v, 0.0, 100.0)?;
+    Ok(())
+}
+
+fn validate_teg(generator: &TegParams, pipe: &PipeParams) -> Result<()> {
+    positive(
+        "source.generator.seebeck_v_per_k",
+        generator.seebeck_v_per_k,
+    )?;
+    positive("source.generator.internal_ohm", generator.internal_ohm)?;
+    within(
+        "source.pipe.running_delta_k",
+        pipe.running_delta_k,
+        0.0,
+        500.0,
+    )?;
+    within("source.pipe.idle_delta_k", pipe.idle_delta_k, 0.0, 500.0)?;
+    positive("source.pipe.cycle_minutes", pipe.cycle_minutes)?;
+    within("source.pipe.duty", pipe.duty, 0.0, 1.0)?;
+    positive(
+        "source.pipe.time_constant_minutes",
+        pipe.time_constant_minutes,
+    )?;
+    Ok(())
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -385,6 +436,19 @@ mod tests {
         assert!(
             format!("{err:#}")
                 .contains("[node] settings are refused by the node: the stop voltage"),
+            "{err:#}"
+        );
+        // A channel's own scale may not have more bits than the converter's results.
+        let (_, with_front_end) = BUILTIN
+            .iter()
+            .find(|(_, text)| text.contains("[front_end]"))
+            .expect("a built-in scenario describes its front-end");
+        let text = format!(
+            "{with_front_end}\n[front_end.channel_adc.input_current]\nbits = 30\nfull_scale_v = 0.15\n"
+        );
+        let err = Scenario::from_toml(&text).unwrap_err();
+        assert!(
+            format!("{err:#}").contains("front_end.channel_adc.input_current.bits"),
             "{err:#}"
         );
         let text = format!("{}\nbogus = 1\n", BUILTIN[0].1);
