@@ -391,71 +391,17 @@ impl Cmd {
     /// Runs the command.
     pub fn run(self) -> Result<()> {
         match self.action {
-            Action::List { json } => {
-                let mut all = Vec::new();
-                for (name, _) in BUILTIN {
-                    let s = Scenario::builtin(name)?;
-                    if !json {
-                        say!("{name:<20} {:>5.1} h  {}", s.duration_h, s.description)?;
-                    }
-                    all.push(serde_json::json!({
-                        "name": name,
-                        "duration_h": s.duration_h,
-                        "description": s.description,
-                    }));
-                }
-                if json {
-                    say!("{}", serde_json::to_string_pretty(&all)?)?;
-                }
-            }
+            Action::List { json } => list(json)?,
             Action::Show { scenario } => match BUILTIN.iter().find(|(n, _)| *n == scenario) {
                 Some((_, text)) => say_part!("{text}")?,
                 None => say_part!("{}", toml::to_string(&Scenario::load(&scenario)?)?)?,
             },
-            Action::Curve(c) => {
-                if c.points < 2 || c.points > 100_000 {
-                    bail!("--points must be 2 to 100000");
-                }
-                let source = c.source()?;
-                let voc = source.open_circuit_voltage();
-                say!("# open-circuit voltage {voc:.6} V")?;
-                let (v_mp, p_mp) = golden_max(0.0, voc.max(0.0), |v| v * source.current_at(v));
-                say!(
-                    "# maximum power {p_mp:.6e} W at {v_mp:.6} V, {:.6e} A",
-                    source.current_at(v_mp)
-                )?;
-                say!("voltage_v,current_a,power_w")?;
-                for i in 0..c.points {
-                    let v = voc * i as f64 / (c.points - 1) as f64;
-                    let a = source.current_at(v);
-                    say!("{v:.6},{a:.6e},{:.6e}", v * a)?;
-                }
-            }
+            Action::Curve(c) => curve(&c)?,
             Action::Synthetic {
                 days,
                 interval_s,
                 out,
-            } => {
-                if !(days > 0.0 && days <= 3660.0) {
-                    bail!("--days must be above 0 and at most 3660, got {days}");
-                }
-                let file = std::fs::OpenOptions::new()
-                    .write(true)
-                    .create_new(true)
-                    .open(&out)
-                    .map_err(|e| anyhow::anyhow!("cannot create {}: {e}", out.display()))?;
-                let mut writer = std::io::BufWriter::new(file);
-                let mut log = crate::sim::scenarios::synthetic::SyntheticLog::new(
-                    (days * 86_400.0) as u64,
-                    interval_s,
-                );
-                let progress =
-                    crate::progress::counting_bytes(&format!("writing {}", out.display()));
-                let bytes = std::io::copy(&mut progress.wrap_read(&mut log), &mut writer)?;
-                progress.finish_and_clear();
-                std::io::Write::flush(&mut writer)?;
-                say!("{bytes} bytes to {}", out.display())?;
-            }
+            } => synthetic(days, interval_s, &out)?,
             Action::Run { scenario, out } => {
                 let scenario = Scenario::load(&scenario)?;
                 let progress = crate::progress::steps(
@@ -473,23 +419,7 @@ impl Cmd {
                 days,
                 seed,
                 dir,
-            } => {
-                let scenarios = crate::sim::scenarios::fleet::fleet_scenarios(nodes, days, seed)?;
-                let total: f64 = scenarios.iter().map(Scenario::duration_s).sum();
-                let progress = crate::progress::steps(
-                    total as u64,
-                    &format!("simulating {nodes} nodes"),
-                    "simulated s",
-                );
-                let logs =
-                    crate::sim::scenarios::fleet::simulate_fleet(scenarios, &dir, &progress)?;
-                progress.finish_and_clear();
-                say!(
-                    "{} invented nodes, {days} days each, into {}",
-                    logs.len(),
-                    dir.display()
-                )?;
-            }
+            } => fleet(nodes, days, seed, &dir)?,
             Action::Score {
                 scenarios,
                 seed,
@@ -507,4 +437,86 @@ impl Cmd {
         }
         Ok(())
     }
+}
+
+/// `sim list`: the built-in scenarios.
+fn list(json: bool) -> Result<()> {
+    let mut all = Vec::new();
+    for (name, _) in BUILTIN {
+        let s = Scenario::builtin(name)?;
+        if !json {
+            say!("{name:<20} {:>5.1} h  {}", s.duration_h, s.description)?;
+        }
+        all.push(serde_json::json!({
+            "name": name,
+            "duration_h": s.duration_h,
+            "description": s.description,
+        }));
+    }
+    if json {
+        say!("{}", serde_json::to_string_pretty(&all)?)?;
+    }
+    Ok(())
+}
+
+/// `sim curve`: a source's I-V curve as CSV, its maximum power point first.
+fn curve(c: &Curve) -> Result<()> {
+    if c.points < 2 || c.points > 100_000 {
+        bail!("--points must be 2 to 100000");
+    }
+    let source = c.source()?;
+    let voc = source.open_circuit_voltage();
+    say!("# open-circuit voltage {voc:.6} V")?;
+    let (v_mp, p_mp) = golden_max(0.0, voc.max(0.0), |v| v * source.current_at(v));
+    say!(
+        "# maximum power {p_mp:.6e} W at {v_mp:.6} V, {:.6e} A",
+        source.current_at(v_mp)
+    )?;
+    say!("voltage_v,current_a,power_w")?;
+    for i in 0..c.points {
+        let v = voc * i as f64 / (c.points - 1) as f64;
+        let a = source.current_at(v);
+        say!("{v:.6},{a:.6e},{:.6e}", v * a)?;
+    }
+    Ok(())
+}
+
+/// `sim synthetic`: a long invented log written to a new file.
+fn synthetic(days: f64, interval_s: u64, out: &std::path::Path) -> Result<()> {
+    if !(days > 0.0 && days <= 3660.0) {
+        bail!("--days must be above 0 and at most 3660, got {days}");
+    }
+    let file = std::fs::OpenOptions::new()
+        .write(true)
+        .create_new(true)
+        .open(out)
+        .map_err(|e| anyhow::anyhow!("cannot create {}: {e}", out.display()))?;
+    let mut writer = std::io::BufWriter::new(file);
+    let mut log =
+        crate::sim::scenarios::synthetic::SyntheticLog::new((days * 86_400.0) as u64, interval_s);
+    let progress = crate::progress::counting_bytes(&format!("writing {}", out.display()));
+    let bytes = std::io::copy(&mut progress.wrap_read(&mut log), &mut writer)?;
+    progress.finish_and_clear();
+    std::io::Write::flush(&mut writer)?;
+    say!("{bytes} bytes to {}", out.display())?;
+    Ok(())
+}
+
+/// `sim fleet`: invented nodes simulated into one log each.
+fn fleet(nodes: usize, days: f64, seed: u64, dir: &std::path::Path) -> Result<()> {
+    let scenarios = crate::sim::scenarios::fleet::fleet_scenarios(nodes, days, seed)?;
+    let total: f64 = scenarios.iter().map(Scenario::duration_s).sum();
+    let progress = crate::progress::steps(
+        total as u64,
+        &format!("simulating {nodes} nodes"),
+        "simulated s",
+    );
+    let logs = crate::sim::scenarios::fleet::simulate_fleet(scenarios, dir, &progress)?;
+    progress.finish_and_clear();
+    say!(
+        "{} invented nodes, {days} days each, into {}",
+        logs.len(),
+        dir.display()
+    )?;
+    Ok(())
 }
