@@ -436,82 +436,26 @@ pub fn score_corpus(
     let whole = parallel_map(count, workers, |i| run_corpus_scenario(seed, i, true))?;
     let runs: Vec<ScenarioRun> = whole.iter().map(ScenarioRun::judged).collect();
     let settling: Vec<ScenarioRun> = whole.iter().filter_map(ScenarioRun::settling).collect();
+    let pooled = Pooled::of(&runs);
+    let metrics_of = |(old, new): &(Vec<Judged>, Vec<Judged>)| (metrics(old), metrics(new));
     let mut score = CorpusScore {
         scenarios: count,
+        days: pooled.days,
+        brownouts: pooled.brownouts,
+        cutoffs: pooled.cutoffs,
+        brownout: metrics_of(&pooled.brownout),
+        cutoff_2h: metrics_of(&pooled.cutoff_2h),
+        cutoff_1h: metrics_of(&pooled.cutoff_1h),
+        sagging_early_share: pooled.sagging_early_share(),
+        false_sagging_per_day: pooled.false_sagging_per_day(),
+        by_kind: CorpusKind::ALL
+            .iter()
+            .map(|&kind| kind_score(kind, &runs))
+            .collect(),
         first_evening: (!settling.is_empty())
             .then(|| kind_score(CorpusKind::SolarEvening, &settling)),
-        ..CorpusScore::default()
+        brownout_minutes: None,
     };
-    let (mut b_old, mut b_new, mut c_old, mut c_new, mut h_old, mut h_new) = (
-        Vec::new(),
-        Vec::new(),
-        Vec::new(),
-        Vec::new(),
-        Vec::new(),
-        Vec::new(),
-    );
-    let (mut leads, mut false_alarms) = (Vec::new(), 0);
-    for run in &runs {
-        let t = &run.truth;
-        score.days += t.elapsed_s / 86_400.0;
-        let starts: Vec<f64> = t.starts_s().collect();
-        let cutoffs: Vec<f64> = t.cutoffs_s().collect();
-        let (bo, lp) = (&t.brownouts_s, &t.load_powered_s);
-        let k = score.brownouts;
-        b_old.extend(judge(&run.points, bo, lp, 7200.0, |p| p.old_brownout_s, k));
-        b_new.extend(judge(&run.points, bo, lp, 7200.0, |p| p.brownout_s, k));
-        let k = score.cutoffs;
-        c_old.extend(judge(
-            &run.points,
-            &cutoffs,
-            &starts,
-            7200.0,
-            |p| p.old_cutoff_s,
-            k,
-        ));
-        c_new.extend(judge(
-            &run.points,
-            &cutoffs,
-            &starts,
-            7200.0,
-            |p| p.cutoff_s,
-            k,
-        ));
-        h_old.extend(judge(
-            &run.points,
-            &cutoffs,
-            &starts,
-            3600.0,
-            |p| p.old_cutoff_s,
-            k,
-        ));
-        h_new.extend(judge(
-            &run.points,
-            &cutoffs,
-            &starts,
-            3600.0,
-            |p| p.cutoff_s,
-            k,
-        ));
-        score.brownouts += bo.len();
-        score.cutoffs += cutoffs.len();
-        let (l, f) = sagging_leads(run);
-        leads.extend(l);
-        false_alarms += f;
-    }
-    score.by_kind = CorpusKind::ALL
-        .iter()
-        .map(|&kind| kind_score(kind, &runs))
-        .collect();
-    score.brownout = (metrics(&b_old), metrics(&b_new));
-    score.cutoff_2h = (metrics(&c_old), metrics(&c_new));
-    score.cutoff_1h = (metrics(&h_old), metrics(&h_new));
-    score.sagging_early_share = if score.cutoffs == 0 {
-        0.0
-    } else {
-        leads.iter().filter(|&&l| l >= SAGGING_LEAD_S).count() as f64 / score.cutoffs as f64
-    };
-    score.false_sagging_per_day = false_alarms as f64 / score.days.max(1e-9);
     if compare_shedding {
         let unshed = parallel_map(count, workers, |i| run_corpus_scenario(seed, i, false))?;
         let minutes =
@@ -521,38 +465,110 @@ pub fn score_corpus(
     Ok(score)
 }
 
-/// The node's figures over the runs of one kind.
-fn kind_score(kind: CorpusKind, runs: &[ScenarioRun]) -> KindScore {
-    let (mut b, mut c, mut leads) = (Vec::new(), Vec::new(), Vec::new());
-    let (mut cutoffs_n, mut false_alarms, mut days) = (0usize, 0usize, 0.0);
-    for (k, run) in runs.iter().enumerate().filter(|(_, r)| r.kind == kind) {
+/// The forecasts of many runs judged and pooled: (protocol 1's, the node's)
+/// for each question, with the Sagging leads and the counts they are shares of.
+#[derive(Debug, Default)]
+struct Pooled {
+    brownout: (Vec<Judged>, Vec<Judged>),
+    cutoff_2h: (Vec<Judged>, Vec<Judged>),
+    cutoff_1h: (Vec<Judged>, Vec<Judged>),
+    leads: Vec<f64>,
+    false_alarms: usize,
+    brownouts: usize,
+    cutoffs: usize,
+    days: f64,
+}
+
+impl Pooled {
+    fn of<'a>(runs: impl IntoIterator<Item = &'a ScenarioRun>) -> Self {
+        let mut pooled = Pooled::default();
+        for run in runs {
+            pooled.add(run);
+        }
+        pooled
+    }
+
+    fn add(&mut self, run: &ScenarioRun) {
         let t = &run.truth;
         let starts: Vec<f64> = t.starts_s().collect();
         let cutoffs: Vec<f64> = t.cutoffs_s().collect();
-        let first = k * 1000;
+        let both = |into: &mut (Vec<Judged>, Vec<Judged>),
+                    events: &[f64],
+                    since: &[f64],
+                    window_s: f64,
+                    old: fn(&ForecastPoint) -> Option<f64>,
+                    new: fn(&ForecastPoint) -> Option<f64>,
+                    first: usize| {
+            into.0
+                .extend(judge(&run.points, events, since, window_s, old, first));
+            into.1
+                .extend(judge(&run.points, events, since, window_s, new, first));
+        };
         let (bo, lp) = (&t.brownouts_s, &t.load_powered_s);
-        b.extend(judge(&run.points, bo, lp, 7200.0, |p| p.brownout_s, first));
-        c.extend(judge(
-            &run.points,
+        let brownout = (
+            |p: &ForecastPoint| p.old_brownout_s,
+            |p: &ForecastPoint| p.brownout_s,
+        );
+        let cutoff = (
+            |p: &ForecastPoint| p.old_cutoff_s,
+            |p: &ForecastPoint| p.cutoff_s,
+        );
+        both(
+            &mut self.brownout,
+            bo,
+            lp,
+            7200.0,
+            brownout.0,
+            brownout.1,
+            self.brownouts,
+        );
+        both(
+            &mut self.cutoff_2h,
+            &cutoffs,
+            &starts,
+            7200.0,
+            cutoff.0,
+            cutoff.1,
+            self.cutoffs,
+        );
+        both(
+            &mut self.cutoff_1h,
             &cutoffs,
             &starts,
             3600.0,
-            |p| p.cutoff_s,
-            first,
-        ));
-        let (l, f) = sagging_leads(run);
-        leads.extend(l);
-        false_alarms += f;
-        cutoffs_n += cutoffs.len();
-        days += t.elapsed_s / 86_400.0;
+            cutoff.0,
+            cutoff.1,
+            self.cutoffs,
+        );
+        self.brownouts += bo.len();
+        self.cutoffs += cutoffs.len();
+        let (leads, false_alarms) = sagging_leads(run);
+        self.leads.extend(leads);
+        self.false_alarms += false_alarms;
+        self.days += t.elapsed_s / 86_400.0;
     }
+
+    /// Share of cutoffs with Sagging raised at least [`SAGGING_LEAD_S`] before.
+    fn sagging_early_share(&self) -> f64 {
+        let early = self.leads.iter().filter(|&&l| l >= SAGGING_LEAD_S).count();
+        early as f64 / self.cutoffs.max(1) as f64
+    }
+
+    /// Sagging that ended back in Harvesting, per simulated day.
+    fn false_sagging_per_day(&self) -> f64 {
+        self.false_alarms as f64 / self.days.max(1e-9)
+    }
+}
+
+/// The node's figures over the runs of one kind.
+fn kind_score(kind: CorpusKind, runs: &[ScenarioRun]) -> KindScore {
+    let pooled = Pooled::of(runs.iter().filter(|r| r.kind == kind));
     KindScore {
         kind,
-        brownout: metrics(&b),
-        cutoff: metrics(&c),
-        sagging_early_share: leads.iter().filter(|&&l| l >= SAGGING_LEAD_S).count() as f64
-            / cutoffs_n.max(1) as f64,
-        false_sagging_per_day: false_alarms as f64 / f64::max(days, 1e-9),
+        brownout: metrics(&pooled.brownout.1),
+        cutoff: metrics(&pooled.cutoff_1h.1),
+        sagging_early_share: pooled.sagging_early_share(),
+        false_sagging_per_day: pooled.false_sagging_per_day(),
     }
 }
 
