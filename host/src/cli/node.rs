@@ -178,26 +178,15 @@ impl Cmd {
                 Duration::from_secs_f64(self.timeout),
             )?
         };
+        let json = self.json;
         match self.action {
-            Action::Ping => {
-                let started = Instant::now();
-                explain(session.request(Command::Ping, Duration::ZERO)?)?;
-                let round_trip_ms = started.elapsed().as_secs_f64() * 1e3;
-                if self.json {
-                    say!(
-                        "{}",
-                        serde_json::json!({ "answered": true, "round_trip_ms": round_trip_ms })
-                    )?;
-                } else {
-                    say!("pong in {round_trip_ms:.1} ms")?;
-                }
-            }
+            Action::Ping => ping(&mut session, json)?,
             Action::Info => {
                 explain(session.request(Command::GetInfo, Duration::ZERO)?)?;
                 let hello = session
                     .hello
                     .context("the node accepted but sent no Hello")?;
-                if self.json {
+                if json {
                     say!(
                         "{}",
                         serde_json::to_string_pretty(&NodeInfo::from_hello(&hello))?
@@ -207,9 +196,8 @@ impl Cmd {
                 }
             }
             Action::SetConfig(set) => {
-                let settings = set.settings()?;
-                let config = session.apply_settings(&settings)?;
-                if self.json {
+                let config = session.apply_settings(&set.settings()?)?;
+                if json {
                     say!(
                         "{}",
                         serde_json::json!({ "accepted": true, "settings": NodeSettings::from_config(&config) })
@@ -220,45 +208,65 @@ impl Cmd {
             }
             Action::ResetEnergy => {
                 explain(session.request(Command::ResetEnergy, Duration::ZERO)?)?;
-                if self.json {
+                if json {
                     say!("{}", serde_json::json!({ "accepted": true }))?;
                 } else {
                     say!("energy totals reset")?;
                 }
             }
             Action::Calibrate(calibrate) => calibrate.run(&mut session)?,
-            Action::Burst { samples, out } => {
-                session.progress = crate::progress::steps(u64::from(samples), "burst", "samples");
-                let done = session.burst(samples);
-                session.progress.finish_and_clear();
-                done?;
-                let mut csv = Vec::new();
-                writeln!(csv, "index,time_us,input_uv,input_na,output_uv,output_na")?;
-                for (i, s, period) in &session.samples {
-                    writeln!(
-                        csv,
-                        "{i},{},{},{},{},{}",
-                        u64::from(*i) * u64::from(*period),
-                        s.input_uv,
-                        s.input_na,
-                        s.output_uv,
-                        s.output_na
-                    )?;
-                }
-                if crate::files::is_stdio(&out) {
-                    std::io::stdout().write_all(&csv)?;
-                    return Ok(());
-                }
-                crate::files::write_atomic(&out, &csv)?;
-                say!(
-                    "{} of {samples} samples written to {}",
-                    session.samples.len(),
-                    out.display()
-                )?;
-            }
+            Action::Burst { samples, out } => burst(&mut session, samples, &out)?,
         }
         Ok(())
     }
+}
+
+/// `node ping`: the round trip of one ping.
+fn ping(session: &mut Session, json: bool) -> Result<()> {
+    let started = Instant::now();
+    explain(session.request(Command::Ping, Duration::ZERO)?)?;
+    let round_trip_ms = started.elapsed().as_secs_f64() * 1e3;
+    if json {
+        say!(
+            "{}",
+            serde_json::json!({ "answered": true, "round_trip_ms": round_trip_ms })
+        )?;
+    } else {
+        say!("pong in {round_trip_ms:.1} ms")?;
+    }
+    Ok(())
+}
+
+/// `node burst`: `samples` samples at the full rate, as CSV to `out`.
+fn burst(session: &mut Session, samples: u32, out: &std::path::Path) -> Result<()> {
+    session.progress = crate::progress::steps(u64::from(samples), "burst", "samples");
+    let done = session.burst(samples);
+    session.progress.finish_and_clear();
+    done?;
+    let mut csv = Vec::new();
+    writeln!(csv, "index,time_us,input_uv,input_na,output_uv,output_na")?;
+    for (i, s, period) in &session.samples {
+        writeln!(
+            csv,
+            "{i},{},{},{},{},{}",
+            u64::from(*i) * u64::from(*period),
+            s.input_uv,
+            s.input_na,
+            s.output_uv,
+            s.output_na
+        )?;
+    }
+    if crate::files::is_stdio(out) {
+        std::io::stdout().write_all(&csv)?;
+        return Ok(());
+    }
+    crate::files::write_atomic(out, &csv)?;
+    say!(
+        "{} of {samples} samples written to {}",
+        session.samples.len(),
+        out.display()
+    )?;
+    Ok(())
 }
 
 /// Prints a `Hello` for people.
