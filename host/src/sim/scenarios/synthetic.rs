@@ -16,7 +16,7 @@ use crate::log::{LogHeader, LogWriter, FORMAT_VERSION};
 /// The message of second `t` of the run, and an event when the state changes then.
 fn messages_at(t: u64, interval_s: u64, seq: &mut u16) -> Vec<Uplink> {
     let mut out = Vec::new();
-    let mut push = |body: UplinkBody, uptime_ms: u64, seq: &mut u16| {
+    let mut push = |body: UplinkBody, uptime_ms: u64| {
         out.push(Uplink {
             seq: *seq,
             uptime_ms,
@@ -24,45 +24,62 @@ fn messages_at(t: u64, interval_s: u64, seq: &mut u16) -> Vec<Uplink> {
         });
         *seq = seq.wrapping_add(1);
     };
+    if let Some(event) = day_change(t, interval_s) {
+        push(UplinkBody::Event(event), t * 1000);
+    }
+    push(
+        UplinkBody::Report(report_at(t, interval_s)),
+        t * 1000 + 1000,
+    );
+    out
+}
+
+/// The invented day: light from 06:00 to 19:00.
+fn is_day(t: u64) -> bool {
     let hour = (t % 86_400) as f64 / 3_600.0;
-    let day = (6.0..19.0).contains(&hour);
+    (6.0..19.0).contains(&hour)
+}
+
+/// The converter's cutoff at dusk or its restart at dawn, when the interval
+/// ending at `t` crossed one.
+fn day_change(t: u64, interval_s: u64) -> Option<Event> {
+    let day = is_day(t);
+    if t == 0 || day == is_day(t.saturating_sub(interval_s)) {
+        return None;
+    }
+    let (from, to, cause) = if day {
+        (
+            ConverterState::CutOff,
+            ConverterState::Harvesting,
+            TransitionCause::Recovered,
+        )
+    } else {
+        (
+            ConverterState::Harvesting,
+            ConverterState::CutOff,
+            TransitionCause::InputBelowHold,
+        )
+    };
+    Some(Event {
+        from,
+        to,
+        cause,
+        trigger_input_uv: 699_000,
+        trigger_output_uv: 3_000_000,
+        input_uv: 700_000,
+        output_uv: 3_000_000,
+    })
+}
+
+/// The report of the interval ending at `t`: a sine of light over the day.
+fn report_at(t: u64, interval_s: u64) -> Report {
+    let hour = (t % 86_400) as f64 / 3_600.0;
+    let day = is_day(t);
     let state = if day {
         ConverterState::Harvesting
     } else {
         ConverterState::CutOff
     };
-    let was_day = {
-        let h = (t.saturating_sub(interval_s) % 86_400) as f64 / 3_600.0;
-        (6.0..19.0).contains(&h)
-    };
-    if t > 0 && day != was_day {
-        let (from, to, cause) = if day {
-            (
-                ConverterState::CutOff,
-                ConverterState::Harvesting,
-                TransitionCause::Recovered,
-            )
-        } else {
-            (
-                ConverterState::Harvesting,
-                ConverterState::CutOff,
-                TransitionCause::InputBelowHold,
-            )
-        };
-        push(
-            UplinkBody::Event(Event {
-                from,
-                to,
-                cause,
-                trigger_input_uv: 699_000,
-                trigger_output_uv: 3_000_000,
-                input_uv: 700_000,
-                output_uv: 3_000_000,
-            }),
-            t * 1000,
-            seq,
-        );
-    }
     let light = if day {
         ((hour - 6.0) / 13.0 * std::f64::consts::PI).sin()
     } else {
@@ -79,7 +96,7 @@ fn messages_at(t: u64, interval_s: u64, seq: &mut u16) -> Vec<Uplink> {
     let ms = (interval_s * 1000) as u32;
     let mut state_ms = StateDurations::default();
     *state_ms.get_mut(state) = ms;
-    let report = Report {
+    Report {
         interval_ms: ms,
         sample_count: (interval_s * 100) as u32,
         input_uv: ChannelStats::from_min_mean_max(
@@ -105,9 +122,7 @@ fn messages_at(t: u64, interval_s: u64, seq: &mut u16) -> Vec<Uplink> {
         load_powered: true,
         load_shed: !day,
         flags: ReportFlags::default(),
-    };
-    push(UplinkBody::Report(report), t * 1000 + 1000, seq);
-    out
+    }
 }
 
 /// The node id of synthetic logs (invented).
