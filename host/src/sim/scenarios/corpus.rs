@@ -177,6 +177,81 @@ fn converter(rng: &mut Pcg64Mcg, start_v: f64, input: &str, storage_f: f64) -> S
     )
 }
 
+/// What a kind of corpus scenario decides: its length, start and settling
+/// time, and its source and converter tables.
+struct KindPart {
+    hours: f64,
+    start_hour: f64,
+    settles_s: f64,
+    body: String,
+}
+
+impl KindPart {
+    /// A run judged from its start.
+    fn judged_whole(hours: f64, start_hour: f64, body: String) -> Self {
+        KindPart {
+            hours,
+            start_hour,
+            settles_s: 0.0,
+            body,
+        }
+    }
+}
+
+/// The source and converter of a scenario of `kind`, drawn from `rng`.
+fn kind_part(kind: CorpusKind, rng: &mut Pcg64Mcg, start_v: f64, fractional: &str) -> KindPart {
+    match kind {
+        CorpusKind::SolarEvening => {
+            let start = rng.random_range(13.0..16.0);
+            let sunset = rng.random_range(17.5..20.0);
+            let storage = rng.random_range(0.05..0.5);
+            let drawn = rng.random_range(60.0..200.0);
+            let source = solar(rng, drawn, sunset);
+            let conv = converter(rng, start_v, fractional, storage);
+            KindPart {
+                hours: 24.0 - start + sunset + 10.0,
+                start_hour: start,
+                settles_s: (24.0 - start + SOLAR_JUDGED_FROM_HOUR) * 3600.0,
+                body: format!("{source}\n{conv}"),
+            }
+        }
+        CorpusKind::CellKnee => {
+            let source = format!(
+                "[source]\nkind = \"cell\"\ncapacity_mah = {}\nfresh_resistance_ohm = 0.15\ninitial_depth = {}\n",
+                rng.random_range(100.0..300.0),
+                rng.random_range(0.85..0.95),
+            );
+            let input = format!(
+                "{{ kind = \"resistive\", ohms = {} }}",
+                rng.random_range(20.0..60.0)
+            );
+            let drawn = rng.random_range(0.02..0.3);
+            let conv = converter(rng, start_v, &input, drawn);
+            KindPart::judged_whole(10.0, 9.0, format!("{source}\n{conv}"))
+        }
+        CorpusKind::CapacitorSource => {
+            let source = format!(
+                "[source]\nkind = \"supercap\"\ncapacitance_f = {}\nseries_ohm = {}\nleakage_ohm = {}\ninitial_v = {}\n",
+                rng.random_range(0.5..3.0),
+                rng.random_range(0.1..0.3),
+                rng.random_range(1e5..1e6),
+                rng.random_range(1.5..2.7),
+            );
+            let drawn = rng.random_range(0.01..0.2);
+            let conv = converter(rng, start_v, fractional, drawn);
+            KindPart::judged_whole(10.0, 20.0, format!("{source}\n{conv}"))
+        }
+        CorpusKind::HeavyLoad => {
+            let start = rng.random_range(9.0..12.0);
+            let drawn = rng.random_range(25.0..60.0);
+            let source = solar(rng, drawn, 19.0);
+            let drawn = rng.random_range(0.05..0.3);
+            let conv = converter(rng, start_v, fractional, drawn);
+            KindPart::judged_whole(6.0, start, format!("{source}\n{conv}"))
+        }
+    }
+}
+
 /// Scenario `index` of the corpus drawn from `seed`.
 pub fn corpus_entry(seed: u64, index: usize) -> Result<CorpusEntry> {
     let kind = CorpusKind::ALL[index % CorpusKind::ALL.len()];
@@ -192,54 +267,12 @@ pub fn corpus_entry(seed: u64, index: usize) -> Result<CorpusEntry> {
     } else {
         0.95
     };
-    let mut settles_s = 0.0;
-    let (hours, start_hour, body) = match kind {
-        CorpusKind::SolarEvening => {
-            let start = rng.random_range(13.0..16.0);
-            let sunset = rng.random_range(17.5..20.0);
-            let storage = rng.random_range(0.05..0.5);
-            let drawn = rng.random_range(60.0..200.0);
-            let source = solar(&mut rng, drawn, sunset);
-            let conv = converter(&mut rng, start_v, &fractional, storage);
-            settles_s = (24.0 - start + SOLAR_JUDGED_FROM_HOUR) * 3600.0;
-            let hours = 24.0 - start + sunset + 10.0;
-            (hours, start, format!("{source}\n{conv}"))
-        }
-        CorpusKind::CellKnee => {
-            let source = format!(
-                "[source]\nkind = \"cell\"\ncapacity_mah = {}\nfresh_resistance_ohm = 0.15\ninitial_depth = {}\n",
-                rng.random_range(100.0..300.0),
-                rng.random_range(0.85..0.95),
-            );
-            let input = format!(
-                "{{ kind = \"resistive\", ohms = {} }}",
-                rng.random_range(20.0..60.0)
-            );
-            let drawn = rng.random_range(0.02..0.3);
-            let conv = converter(&mut rng, start_v, &input, drawn);
-            (10.0, 9.0, format!("{source}\n{conv}"))
-        }
-        CorpusKind::CapacitorSource => {
-            let source = format!(
-                "[source]\nkind = \"supercap\"\ncapacitance_f = {}\nseries_ohm = {}\nleakage_ohm = {}\ninitial_v = {}\n",
-                rng.random_range(0.5..3.0),
-                rng.random_range(0.1..0.3),
-                rng.random_range(1e5..1e6),
-                rng.random_range(1.5..2.7),
-            );
-            let drawn = rng.random_range(0.01..0.2);
-            let conv = converter(&mut rng, start_v, &fractional, drawn);
-            (10.0, 20.0, format!("{source}\n{conv}"))
-        }
-        CorpusKind::HeavyLoad => {
-            let start = rng.random_range(9.0..12.0);
-            let drawn = rng.random_range(25.0..60.0);
-            let source = solar(&mut rng, drawn, 19.0);
-            let drawn = rng.random_range(0.05..0.3);
-            let conv = converter(&mut rng, start_v, &fractional, drawn);
-            (6.0, start, format!("{source}\n{conv}"))
-        }
-    };
+    let KindPart {
+        hours,
+        start_hour,
+        settles_s,
+        body,
+    } = kind_part(kind, &mut rng, start_v, &fractional);
     let load = sensor_load(&mut rng, kind);
     let text = format!(
         "name = \"corpus-{}-{index}\"\ndescription = \"Invented: corpus scenario {index} ({}) drawn from seed {seed}, for judging forecasts.\"\nduration_h = {hours}\nstart_hour = {start_hour}\nsample_period_ms = {CORPUS_SAMPLE_MS}\nseed = {scenario_seed}\n\n{body}\n{load}\n{FRONT_END}\n[node]\nstart_v = {start_v}\nstop_v = 0.7\n{NODE}",
