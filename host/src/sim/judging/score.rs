@@ -13,6 +13,8 @@ use gleaner_firmware::brownout::storage_runout_ms;
 
 use crate::sim::run::engine::VirtualNode;
 use crate::sim::scenarios::corpus::{corpus_entry, CorpusKind};
+use std::fmt::Write;
+
 use crate::sim::GroundTruth;
 
 /// α of the α-accuracy: a forecast within ±20 % of the true remaining time.
@@ -621,13 +623,40 @@ impl CorpusScore {
 
     /// The figures as a table, today's and the new side by side.
     pub fn render(&self) -> String {
-        use std::fmt::Write;
         let mut o = String::new();
         let _ = writeln!(
             o,
             "{} invented scenarios, {:.1} simulated days, {} brown-outs, {} cutoffs",
             self.scenarios, self.days, self.brownouts, self.cutoffs
         );
+        self.render_side_by_side(&mut o);
+        let _ = writeln!(
+            o,
+            "Sagging raised >= 15 min before a cutoff: {:.1} % of cutoffs; false Sagging: {:.2} per simulated day",
+            self.sagging_early_share * 100.0,
+            self.false_sagging_per_day
+        );
+        for k in &self.by_kind {
+            render_kind(&mut o, k.kind.name(), k);
+        }
+        if let Some(k) = &self.first_evening {
+            let _ = writeln!(
+                o,
+                "solar runs judged from noon of their second day; their first afternoon and night, before the node has seen a night:"
+            );
+            render_kind(&mut o, "first evening", k);
+        }
+        if let Some((on, off)) = self.brownout_minutes {
+            let _ = writeln!(
+                o,
+                "load without power: {on:.0} min with load shedding, {off:.0} min without"
+            );
+        }
+        o
+    }
+
+    /// The four figures of each question, protocol 1's and the node's.
+    fn render_side_by_side(&self, o: &mut String) {
         let _ = writeln!(
             o,
             "{:<34} {:>9} {:>9} {:>12} {:>9}   {:>9} {:>9} {:>12} {:>9}",
@@ -641,7 +670,11 @@ impl CorpusScore {
             "median err",
             "flapping"
         );
-        let row = |o: &mut String, name: &str, (a, b): (Metrics, Metrics)| {
+        for (name, (a, b)) in [
+            ("time to brown-out, last 2 h", self.brownout),
+            ("time to cutoff, last 2 h", self.cutoff_2h),
+            ("time to cutoff, last hour", self.cutoff_1h),
+        ] {
             let _ = writeln!(
                 o,
                 "{name:<34} {:>8.1}% {:>8.1}% {:>+11.1}% {:>9.3}   {:>8.1}% {:>8.1}% {:>+11.1}% {:>9.3}",
@@ -654,46 +687,22 @@ impl CorpusScore {
                 b.median_signed_error * 100.0,
                 b.flapping
             );
-        };
-        row(&mut o, "time to brown-out, last 2 h", self.brownout);
-        row(&mut o, "time to cutoff, last 2 h", self.cutoff_2h);
-        row(&mut o, "time to cutoff, last hour", self.cutoff_1h);
-        let _ = writeln!(
-            o,
-            "Sagging raised >= 15 min before a cutoff: {:.1} % of cutoffs; false Sagging: {:.2} per simulated day",
-            self.sagging_early_share * 100.0,
-            self.false_sagging_per_day
-        );
-        let kind_row = |o: &mut String, name: &str, k: &KindScore| {
-            let _ = writeln!(
-                o,
-                "  {name:<17} brown-out {:>5.1}% within, {:>+6.1}% err | cutoff (last hour) {:>5.1}% within, {:>+6.1}% err | Sagging >= 15 min {:>5.1}%, false {:.2}/day",
-                k.brownout.alpha_accuracy * 100.0,
-                k.brownout.median_signed_error * 100.0,
-                k.cutoff.alpha_accuracy * 100.0,
-                k.cutoff.median_signed_error * 100.0,
-                k.sagging_early_share * 100.0,
-                k.false_sagging_per_day
-            );
-        };
-        for k in &self.by_kind {
-            kind_row(&mut o, k.kind.name(), k);
         }
-        if let Some(k) = &self.first_evening {
-            let _ = writeln!(
-                o,
-                "solar runs judged from noon of their second day; their first afternoon and night, before the node has seen a night:"
-            );
-            kind_row(&mut o, "first evening", k);
-        }
-        if let Some((on, off)) = self.brownout_minutes {
-            let _ = writeln!(
-                o,
-                "load without power: {on:.0} min with load shedding, {off:.0} min without"
-            );
-        }
-        o
     }
+}
+
+/// One kind's line: the node's figures.
+fn render_kind(o: &mut String, name: &str, k: &KindScore) {
+    let _ = writeln!(
+        o,
+        "  {name:<17} brown-out {:>5.1}% within, {:>+6.1}% err | cutoff (last hour) {:>5.1}% within, {:>+6.1}% err | Sagging >= 15 min {:>5.1}%, false {:.2}/day",
+        k.brownout.alpha_accuracy * 100.0,
+        k.brownout.median_signed_error * 100.0,
+        k.cutoff.alpha_accuracy * 100.0,
+        k.cutoff.median_signed_error * 100.0,
+        k.sagging_early_share * 100.0,
+        k.false_sagging_per_day
+    );
 }
 
 #[cfg(test)]
