@@ -7,14 +7,13 @@
 //! the node's forecasts, and the protocol 1 forecasts ("today's") are
 //! replayed from the same reports for a side-by-side comparison.
 
-use gleaner_protocol::{ConverterState, Report, Uplink, UplinkBody};
+use std::fmt::Write;
 
 use gleaner_firmware::brownout::storage_runout_ms;
+use gleaner_protocol::{ConverterState, Report, Uplink, UplinkBody};
 
 use crate::sim::run::engine::VirtualNode;
 use crate::sim::scenarios::corpus::{corpus_entry, CorpusKind};
-use std::fmt::Write;
-
 use crate::sim::GroundTruth;
 
 /// α of the α-accuracy: a forecast within ±20 % of the true remaining time.
