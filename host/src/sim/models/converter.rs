@@ -147,6 +147,28 @@ impl Converter {
         }
     }
 
+    /// Starts or stops the converter at `t_s` and finds where its input
+    /// works: (voltage, current, why it is off if it is).
+    fn input_side(&mut self, t_s: f64, source: &Source) -> (f64, f64, Option<OffReason>) {
+        let voc = source.open_circuit_voltage();
+        let fault = self.faulted(t_s);
+        if !self.running && !fault && voc >= self.params.start_v {
+            self.running = true;
+        }
+        if fault {
+            self.running = false;
+            return (voc, 0.0, Some(OffReason::Fault));
+        }
+        if self.running {
+            let (v_in, i_in) = self.operating_point(source);
+            if v_in >= self.params.stop_v {
+                return (v_in, i_in, None);
+            }
+            self.running = false;
+        }
+        (voc, 0.0, Some(OffReason::Starved))
+    }
+
     /// Advances by `dt_s` at time `t_s`.
     pub fn step(
         &mut self,
@@ -157,26 +179,7 @@ impl Converter {
         shed: bool,
         powered: bool,
     ) -> StepOutcome {
-        let voc = source.open_circuit_voltage();
-        let fault = self.faulted(t_s);
-        if !self.running && !fault && voc >= self.params.start_v {
-            self.running = true;
-        }
-        let (mut v_in, mut i_in) = (voc, 0.0);
-        let mut off = None;
-        if fault {
-            self.running = false;
-            off = Some(OffReason::Fault);
-        } else if self.running {
-            (v_in, i_in) = self.operating_point(source);
-            if v_in < self.params.stop_v {
-                self.running = false;
-                (v_in, i_in) = (voc, 0.0);
-            }
-        }
-        if !self.running && off.is_none() {
-            off = Some(OffReason::Starved);
-        }
+        let (mut v_in, mut i_in, off) = self.input_side(t_s, source);
         let p_in = v_in * i_in;
         // Efficiency at the available output power (one fixed-point pass).
         let eta = self.efficiency(v_in, self.efficiency(v_in, p_in) * p_in);
