@@ -111,20 +111,30 @@ impl ScenarioRun {
 }
 
 /// Protocol 1's forecasts, replayed from reports as the node computed them.
-#[derive(Debug, Default)]
+#[derive(Debug)]
 struct OldForecasts {
     trend: std::collections::VecDeque<(f64, f64)>,
+    /// The node's output storage, µF.
+    c_uf: u32,
+    /// The converter's stop voltage, V.
+    hold_v: f64,
+    /// Output-down, µV (what protocol 1 counted down to).
+    down_uv: u32,
 }
 
 impl OldForecasts {
-    fn push(
-        &mut self,
-        t_s: f64,
-        r: &Report,
-        c_uf: u32,
-        hold_v: f64,
-        down_uv: u32,
-    ) -> (Option<f64>, Option<f64>) {
+    /// Replaying for a node configured as `config`.
+    fn new(config: &gleaner_protocol::NodeConfig) -> Self {
+        OldForecasts {
+            trend: std::collections::VecDeque::new(),
+            c_uf: config.output_storage_uf,
+            hold_v: f64::from(config.thresholds.hold_uv) / 1e6,
+            down_uv: config.thresholds.output_down_uv,
+        }
+    }
+
+    fn push(&mut self, t_s: f64, r: &Report) -> (Option<f64>, Option<f64>) {
+        let (c_uf, hold_v, down_uv) = (self.c_uf, self.hold_v, self.down_uv);
         let converting = matches!(
             r.state,
             ConverterState::Harvesting | ConverterState::Sagging
@@ -190,58 +200,35 @@ pub fn run_corpus_scenario(
     shed_pin_wired: bool,
 ) -> anyhow::Result<ScenarioRun> {
     let entry = corpus_entry(seed, index)?;
-    let kind = entry.kind;
-    let settles_s = entry.settles_s;
-    let config = entry.scenario.node_config()?;
-    let c_uf = config.output_storage_uf;
-    let hold_v = f64::from(config.thresholds.hold_uv) / 1e6;
-    let down_uv = config.thresholds.output_down_uv;
-    let mut node = VirtualNode::new(entry.scenario, 1)?;
-    node.wire_shed_pin(shed_pin_wired);
+    let mut old = OldForecasts::new(&entry.scenario.node_config()?);
     let mut run = ScenarioRun {
-        kind,
+        kind: entry.kind,
         points: Vec::new(),
         sagging: Vec::new(),
         truth: GroundTruth::default(),
-        settles_s,
+        settles_s: entry.settles_s,
     };
-    let mut old = OldForecasts::default();
+    let mut node = VirtualNode::new(entry.scenario, 1)?;
+    node.wire_shed_pin(shed_pin_wired);
     let mut bytes = Vec::new();
     let mut stop_at_s = f64::INFINITY;
     while !node.finished() && node.now_us() as f64 / 1e6 < stop_at_s {
         node.step();
         node.drain_frames(&mut bytes);
         for frame in bytes.split_mut(|&b| b == 0).filter(|f| !f.is_empty()) {
-            let Ok(message) = gleaner_protocol::decode_frame::<Uplink>(frame) else {
-                continue;
-            };
-            let t_s = message.uptime_ms as f64 / 1e3;
-            match &message.body {
-                UplinkBody::Report(r) => {
-                    let (old_cutoff_s, old_brownout_s) = old.push(t_s, r, c_uf, hold_v, down_uv);
-                    run.points.push(ForecastPoint {
-                        t_s,
-                        cutoff_s: r.input_cutoff_in_ms.map(|ms| f64::from(ms) / 1e3),
-                        brownout_s: r.brownout_in_ms.map(|ms| f64::from(ms) / 1e3),
-                        old_cutoff_s,
-                        old_brownout_s,
-                    });
-                }
-                UplinkBody::Event(e) if e.to == ConverterState::Sagging => {
-                    run.sagging.push((t_s, Some(true)));
-                }
-                UplinkBody::Event(e) if e.from == ConverterState::Sagging => {
-                    let recovered = e.to == ConverterState::Harvesting;
-                    run.sagging.push((t_s, recovered.then_some(false)));
-                }
-                _ => {}
+            if let Ok(message) = gleaner_protocol::decode_frame::<Uplink>(frame) {
+                run.take(&message, &mut old);
             }
         }
         bytes.clear();
         // Stop 15 minutes after the first brown-out judged: the forecasts
         // before it are what count.
         if stop_at_s.is_infinite() {
-            let judged = node.truth().brownouts_s.iter().find(|&&t| t >= settles_s);
+            let judged = node
+                .truth()
+                .brownouts_s
+                .iter()
+                .find(|&&t| t >= run.settles_s);
             if let Some(&t) = judged {
                 stop_at_s = t + 900.0;
             }
@@ -249,6 +236,33 @@ pub fn run_corpus_scenario(
     }
     run.truth = node.truth().clone();
     Ok(run)
+}
+
+impl ScenarioRun {
+    /// Keeps what `message` says of the forecasts and of Sagging.
+    fn take(&mut self, message: &Uplink, old: &mut OldForecasts) {
+        let t_s = message.uptime_ms as f64 / 1e3;
+        match &message.body {
+            UplinkBody::Report(r) => {
+                let (old_cutoff_s, old_brownout_s) = old.push(t_s, r);
+                self.points.push(ForecastPoint {
+                    t_s,
+                    cutoff_s: r.input_cutoff_in_ms.map(|ms| f64::from(ms) / 1e3),
+                    brownout_s: r.brownout_in_ms.map(|ms| f64::from(ms) / 1e3),
+                    old_cutoff_s,
+                    old_brownout_s,
+                });
+            }
+            UplinkBody::Event(e) if e.to == ConverterState::Sagging => {
+                self.sagging.push((t_s, Some(true)));
+            }
+            UplinkBody::Event(e) if e.from == ConverterState::Sagging => {
+                let recovered = e.to == ConverterState::Harvesting;
+                self.sagging.push((t_s, recovered.then_some(false)));
+            }
+            _ => {}
+        }
+    }
 }
 
 /// One forecast judged against the truth.
