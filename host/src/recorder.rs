@@ -462,12 +462,7 @@ pub fn run_port(
                 Ok(0) => {}
                 Ok(n) => {
                     last_data = Instant::now();
-                    let mut messages = Vec::new();
-                    let host_time_us = now_us();
-                    recorder.on_bytes(host_time_us, &buf[..n], |t| messages.push(t.clone()))?;
-                    for t in &messages {
-                        observer.message(t, host_time_us, recorder.stats());
-                    }
+                    take_bytes(recorder, observer, &buf[..n])?;
                 }
                 Err(e) if crate::link::ports::try_again(&e) => {}
                 Err(e) => {
@@ -478,36 +473,14 @@ pub fn run_port(
                     link = None;
                 }
             },
-            None => {
-                std::thread::sleep(Duration::from_millis(250));
-                if let Ok(p) = open_port(port, baud) {
-                    let at = now_us();
-                    let detail = format!("{port} at {baud} baud{RECONNECTED}");
-                    recorder.mark_at(at, MarkerKind::PortOpened, &detail)?;
-                    observer.link_changed(true, port, at);
-                    link = Some(p);
-                    if let Some(p) = link.as_mut() {
-                        ask_for_hello(p, recorder)?;
-                    }
-                }
-            }
+            None => link = reopen(recorder, observer, port, baud)?,
         }
         if let (Some(p), Some(bytes)) = (link.as_mut(), observer.outgoing()) {
             if let Err(e) = p.write_all(&bytes).and_then(|()| p.flush()) {
                 recorder.mark(MarkerKind::Note, &format!("could not send a command: {e}"))?;
             }
         }
-        match observer.next_log() {
-            Some(NextLog::New(path)) => {
-                recorder.continue_in(&path, port)?;
-                // The new log describes the node too.
-                if let Some(p) = link.as_mut() {
-                    ask_for_hello(p, recorder)?;
-                }
-            }
-            Some(NextLog::Earlier(path)) => recorder.go_on_in_earlier(&path, port)?,
-            None => {}
-        }
+        follow_next_log(recorder, observer, link.as_mut(), port)?;
         if recorder.is_paused() != was_full {
             was_full = recorder.is_paused();
             observer.disk_full(was_full, recorder.frames_not_written());
@@ -515,6 +488,63 @@ pub fn run_port(
         if observer.tick(recorder.stats(), last_data.elapsed()) {
             break;
         }
+    }
+    Ok(())
+}
+
+/// Records bytes read from the port and shows the observer every message in them.
+fn take_bytes(
+    recorder: &mut Recorder,
+    observer: &mut dyn PortObserver,
+    bytes: &[u8],
+) -> Result<()> {
+    let mut messages = Vec::new();
+    let host_time_us = now_us();
+    recorder.on_bytes(host_time_us, bytes, |t| messages.push(t.clone()))?;
+    for t in &messages {
+        observer.message(t, host_time_us, recorder.stats());
+    }
+    Ok(())
+}
+
+/// After a quarter second, tries the lost port again; when it opens, the log
+/// and the observer are told and the node is asked for its `Hello`.
+fn reopen(
+    recorder: &mut Recorder,
+    observer: &mut dyn PortObserver,
+    port: &str,
+    baud: u32,
+) -> Result<Option<Box<dyn serialport::SerialPort>>> {
+    std::thread::sleep(Duration::from_millis(250));
+    let Ok(mut p) = open_port(port, baud) else {
+        return Ok(None);
+    };
+    let at = now_us();
+    let detail = format!("{port} at {baud} baud{RECONNECTED}");
+    recorder.mark_at(at, MarkerKind::PortOpened, &detail)?;
+    observer.link_changed(true, port, at);
+    ask_for_hello(&mut p, recorder)?;
+    Ok(Some(p))
+}
+
+/// Goes on in another log when the observer says so (rotation, a node that
+/// moved here from another port).
+fn follow_next_log(
+    recorder: &mut Recorder,
+    observer: &mut dyn PortObserver,
+    link: Option<&mut Box<dyn serialport::SerialPort>>,
+    port: &str,
+) -> Result<()> {
+    match observer.next_log() {
+        Some(NextLog::New(path)) => {
+            recorder.continue_in(&path, port)?;
+            // The new log describes the node too.
+            if let Some(p) = link {
+                ask_for_hello(p, recorder)?;
+            }
+        }
+        Some(NextLog::Earlier(path)) => recorder.go_on_in_earlier(&path, port)?,
+        None => {}
     }
     Ok(())
 }
