@@ -151,7 +151,6 @@ impl Serve {
     /// Serves until SIGINT or SIGTERM.
     #[cfg(unix)]
     fn run(self) -> Result<()> {
-        use crate::sim::run::port::{Unread, VirtualPort};
         if !(self.speed.is_finite() && self.speed > 0.0 && self.speed <= 1e6) {
             bail!(
                 "--speed must be above 0 and at most 1000000, got {}",
@@ -159,6 +158,42 @@ impl Serve {
             );
         }
         let stop = super::stop_flag()?;
+        let port = self.spawn()?;
+        let mut out = std::io::stdout();
+        let mut replugging = Replugging::on_signals(self.link.clone())?;
+        let mut said_over = false;
+        while !stop.load(std::sync::atomic::Ordering::Relaxed) {
+            std::thread::sleep(std::time::Duration::from_millis(100));
+            if port.finished() && !said_over {
+                said_over = true;
+                writeln!(out, "the scenario is over; the node still answers commands")?;
+                out.flush()?;
+            }
+            if let Some(said) = replugging.follow(&port)? {
+                writeln!(out, "{said}")?;
+                out.flush()?;
+            }
+        }
+        let progress = port.progress();
+        port.stop()?;
+        if let Some(link) = &replugging.link {
+            let _ = std::fs::remove_file(link);
+        }
+        writeln!(
+            out,
+            "frames sent whole {}, not sent {} (unplugged, or nobody reading); {:.1} simulated hours",
+            progress.frames_sent,
+            progress.frames_dropped,
+            progress.simulated_s / 3600.0
+        )?;
+        Ok(())
+    }
+
+    /// Starts the virtual node on its pseudo-terminal (and link) and says
+    /// where it is.
+    #[cfg(unix)]
+    fn spawn(&self) -> Result<crate::sim::run::port::VirtualPort> {
+        use crate::sim::run::port::{Unread, VirtualPort};
         let scenario = Scenario::load(&self.scenario)?;
         let name = scenario.name.clone();
         let mut node = crate::sim::VirtualNode::new(scenario, self.boot_id)?;
@@ -193,33 +228,7 @@ impl Serve {
             port.path()
         )?;
         out.flush()?;
-        let mut replugging = Replugging::on_signals(self.link.clone())?;
-        let mut said_over = false;
-        while !stop.load(std::sync::atomic::Ordering::Relaxed) {
-            std::thread::sleep(std::time::Duration::from_millis(100));
-            if port.finished() && !said_over {
-                said_over = true;
-                writeln!(out, "the scenario is over; the node still answers commands")?;
-                out.flush()?;
-            }
-            if let Some(said) = replugging.follow(&port)? {
-                writeln!(out, "{said}")?;
-                out.flush()?;
-            }
-        }
-        let progress = port.progress();
-        port.stop()?;
-        if let Some(link) = &replugging.link {
-            let _ = std::fs::remove_file(link);
-        }
-        writeln!(
-            out,
-            "frames sent whole {}, not sent {} (unplugged, or nobody reading); {:.1} simulated hours",
-            progress.frames_sent,
-            progress.frames_dropped,
-            progress.simulated_s / 3600.0
-        )?;
-        Ok(())
+        Ok(port)
     }
 }
 
