@@ -95,8 +95,8 @@ impl VirtualPort {
     }
 
     /// As [`VirtualPort::spawn`], choosing what happens to bytes nobody reads.
-    pub fn spawn_with(mut node: VirtualNode, speed: Option<f64>, unread: Unread) -> Result<Self> {
-        let (mut wire, path) = Wire::plugged()?;
+    pub fn spawn_with(node: VirtualNode, speed: Option<f64>, unread: Unread) -> Result<Self> {
+        let (wire, path) = Wire::plugged()?;
         let plug = Arc::new(Mutex::new(Plug {
             path,
             ..Plug::default()
@@ -116,47 +116,13 @@ impl VirtualPort {
         let handle = std::thread::Builder::new()
             .name("virtual-node".into())
             .spawn(move || {
-                let started = Instant::now();
-                let period_s = f64::from(node.scenario().sample_period_ms) / 1000.0;
-                let batch = ((0.25 / period_s).ceil() as u64).max(1);
-                let mut out = Vec::with_capacity(4096);
-                let (mut steps, mut sent, mut dropped) = (0u64, 0u64, 0u64);
-                while !stop_t.load(Ordering::Relaxed) {
-                    if !node.finished() {
-                        node.step();
-                        steps += 1;
-                    }
-                    node.drain_frames(&mut out);
-                    if !out.is_empty() {
-                        let went = match wire.master.as_mut() {
-                            Some(master) => write_all_patiently(master, &out, &stop_t, unread)?,
-                            None => 0, // unplugged: the bytes are lost
-                        };
-                        let (whole, rest) = out.split_at(went.min(out.len()));
-                        (sent, dropped) = (sent + frames_in(whole), dropped + frames_in(rest));
-                        out.clear();
-                    }
-                    if steps.is_multiple_of(batch) || node.finished() {
-                        wire.follow(&plug_t)?;
-                        wire.receive(&mut node);
-                        let simulated = node.now_us() as f64 / 1e6;
-                        if let Ok(mut p) = progress_t.lock() {
-                            p.simulated_s = simulated.min(p.total_s);
-                            p.truth = node.truth().clone();
-                            (p.frames_sent, p.frames_dropped) = (sent, dropped);
-                        }
-                        if node.finished() {
-                            finished_t.store(true, Ordering::Relaxed);
-                            std::thread::sleep(Duration::from_millis(10));
-                        } else if let Some(speed) = speed {
-                            let due = Duration::from_secs_f64(simulated / speed);
-                            if let Some(wait) = due.checked_sub(started.elapsed()) {
-                                std::thread::sleep(wait.min(Duration::from_millis(200)));
-                            }
-                        }
-                    }
-                }
-                Ok(node.truth().clone())
+                let shared = Shared {
+                    stop: stop_t,
+                    finished: finished_t,
+                    progress: progress_t,
+                    plug: plug_t,
+                };
+                serve_node(node, wire, &shared, speed, unread)
             })?;
         Ok(VirtualPort {
             plug,
@@ -207,6 +173,67 @@ impl VirtualPort {
             None => Err(anyhow!("virtual node already stopped")),
         }
     }
+}
+
+/// What the node's thread shares with its [`VirtualPort`].
+struct Shared {
+    stop: Arc<AtomicBool>,
+    finished: Arc<AtomicBool>,
+    progress: Arc<Mutex<Progress>>,
+    plug: Arc<Mutex<Plug>>,
+}
+
+/// The node's thread: steps the node (at `speed` times real time, or as
+/// fast as it goes), writes its frames to the wire, takes what the wire
+/// brings, and follows unplugging, until told to stop.
+fn serve_node(
+    mut node: VirtualNode,
+    mut wire: Wire,
+    shared: &Shared,
+    speed: Option<f64>,
+    unread: Unread,
+) -> Result<crate::sim::GroundTruth> {
+    let started = Instant::now();
+    let period_s = f64::from(node.scenario().sample_period_ms) / 1000.0;
+    let batch = ((0.25 / period_s).ceil() as u64).max(1);
+    let mut out = Vec::with_capacity(4096);
+    let (mut steps, mut sent, mut dropped) = (0u64, 0u64, 0u64);
+    while !shared.stop.load(Ordering::Relaxed) {
+        if !node.finished() {
+            node.step();
+            steps += 1;
+        }
+        node.drain_frames(&mut out);
+        if !out.is_empty() {
+            let went = match wire.master.as_mut() {
+                Some(master) => write_all_patiently(master, &out, &shared.stop, unread)?,
+                None => 0, // unplugged: the bytes are lost
+            };
+            let (whole, rest) = out.split_at(went.min(out.len()));
+            (sent, dropped) = (sent + frames_in(whole), dropped + frames_in(rest));
+            out.clear();
+        }
+        if steps.is_multiple_of(batch) || node.finished() {
+            wire.follow(&shared.plug)?;
+            wire.receive(&mut node);
+            let simulated = node.now_us() as f64 / 1e6;
+            if let Ok(mut p) = shared.progress.lock() {
+                p.simulated_s = simulated.min(p.total_s);
+                p.truth = node.truth().clone();
+                (p.frames_sent, p.frames_dropped) = (sent, dropped);
+            }
+            if node.finished() {
+                shared.finished.store(true, Ordering::Relaxed);
+                std::thread::sleep(Duration::from_millis(10));
+            } else if let Some(speed) = speed {
+                let due = Duration::from_secs_f64(simulated / speed);
+                if let Some(wait) = due.checked_sub(started.elapsed()) {
+                    std::thread::sleep(wait.min(Duration::from_millis(200)));
+                }
+            }
+        }
+    }
+    Ok(node.truth().clone())
 }
 
 /// The node's end of the line: a pseudo-terminal, or nothing while unplugged.
