@@ -247,6 +247,17 @@ pub struct DayBudget {
     pub energy_neutral: bool,
 }
 
+impl DayBudget {
+    /// Whether the day was energy-neutral, in words (text and HTML reports).
+    pub const fn neutrality(&self) -> &'static str {
+        if self.energy_neutral {
+            "energy-neutral"
+        } else {
+            "not energy-neutral"
+        }
+    }
+}
+
 /// A transition as the node reported it.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Transition {

@@ -376,11 +376,7 @@ fn write_days(o: &mut String, r: &RunReport) -> std::fmt::Result {
             energy(d.delivered_j),
             energy(d.stored_j),
             duration(d.outage_s),
-            if d.energy_neutral {
-                "energy-neutral"
-            } else {
-                "not energy-neutral"
-            }
+            d.neutrality()
         )?;
     }
     writeln!(o)?;

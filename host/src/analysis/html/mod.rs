@@ -367,12 +367,7 @@ fn daily_budget(page: &mut String, r: &RunReport) {
                 energy(d.delivered_j),
                 energy(d.stored_j),
                 duration(d.outage_s),
-                if d.energy_neutral {
-                    "energy-neutral"
-                } else {
-                    "not energy-neutral"
-                }
-                .into(),
+                d.neutrality().into(),
             ]
         }),
     );
