@@ -45,19 +45,32 @@ impl Failure {
             .find_map(|cause| cause.downcast_ref::<Classified>())
             .map_or(1, |c| c.kind.code())
     }
+
+    /// The typed error `E` somewhere in `err` (marked with a kind or not):
+    /// what callers and tests match on instead of the message's words.
+    pub fn find<E: std::error::Error + Send + Sync + 'static>(err: &anyhow::Error) -> Option<&E> {
+        err.chain().find_map(|cause| {
+            cause.downcast_ref::<E>().or_else(|| {
+                cause
+                    .downcast_ref::<Classified>()
+                    .and_then(|c| Failure::find::<E>(&c.inner))
+            })
+        })
+    }
 }
 
-/// An error's message (with its causes) and the kind of failure it is.
+/// An error (with its causes) and the kind of failure it is.
 #[derive(Debug)]
 pub struct Classified {
     /// The kind.
     pub kind: Failure,
-    message: String,
+    inner: anyhow::Error,
 }
 
 impl std::fmt::Display for Classified {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str(&self.message)
+        // The whole chain as one message, as the error read before it was marked.
+        write!(f, "{:#}", self.inner)
     }
 }
 
@@ -71,10 +84,7 @@ pub trait FailedAs: Sized {
 
 impl FailedAs for anyhow::Error {
     fn failed_as(self, kind: Failure) -> Self {
-        anyhow::Error::new(Classified {
-            kind,
-            message: format!("{self:#}"),
-        })
+        anyhow::Error::new(Classified { kind, inner: self })
     }
 }
 
@@ -115,6 +125,16 @@ mod tests {
             "while recording: serial port /dev/x not found"
         );
         assert_eq!(Failure::exit_code(&anyhow::anyhow!("other")), 1);
+        // A typed error is found under the mark and the context.
+        let typed = anyhow::Error::new(std::io::Error::other("disk on fire"))
+            .failed_as(Failure::BadInput)
+            .context("while exporting");
+        assert_eq!(
+            Failure::find::<std::io::Error>(&typed).map(|e| e.kind()),
+            Some(std::io::ErrorKind::Other)
+        );
+        assert!(Failure::find::<std::fmt::Error>(&typed).is_none());
+        assert_eq!(format!("{typed:#}"), "while exporting: disk on fire");
         let codes: std::collections::BTreeSet<u8> = Failure::ALL.iter().map(|f| f.code()).collect();
         assert_eq!(codes.len(), Failure::ALL.len());
         assert!(!codes.contains(&0) && !codes.contains(&1));

@@ -9,7 +9,7 @@ pub mod script;
 pub mod session;
 pub mod tracker;
 
-pub use ports::{list_ports, open_port, PortInfo, DEFAULT_BAUD};
+pub use ports::{list_ports, open_port, PortError, PortInfo, DEFAULT_BAUD};
 pub use session::{explain, Session};
 pub use tracker::{LinkStats, LinkTracker, ReadAhead, Tracked};
 

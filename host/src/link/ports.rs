@@ -82,24 +82,60 @@ pub fn list_ports() -> Result<Vec<PortInfo>> {
         .collect())
 }
 
-/// Turns an open failure into a message that says what to do.
-pub fn explain_open_error(port: &str, err: &serialport::Error) -> anyhow::Error {
+/// Why a serial port could not be opened, each with what to do about it.
+#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+pub enum PortError {
+    /// The device is not there (or went away).
+    #[error("serial port {port} does not exist or went away ({detail}); run `gleaner ports` to see the ports present, and check the cable")]
+    NoDevice {
+        /// The port asked for.
+        port: String,
+        /// What the system said.
+        detail: String,
+    },
+    /// No such path.
+    #[error("serial port {port} not found; run `gleaner ports` to see the ports present")]
+    NotFound {
+        /// The port asked for.
+        port: String,
+    },
+    /// The user may not open it.
+    #[error("{}", permission_hint(port))]
+    Forbidden {
+        /// The port asked for.
+        port: String,
+    },
+    /// Another program has it open.
+    #[error("serial port {port} is in use by another program (a serial monitor, another gleaner, a modem manager); close it and try again")]
+    Busy {
+        /// The port asked for.
+        port: String,
+    },
+    /// Anything else the system said.
+    #[error("cannot open serial port {port}: {detail}")]
+    Other {
+        /// The port asked for.
+        port: String,
+        /// What the system said.
+        detail: String,
+    },
+}
+
+/// Turns an open failure into one that says what to do.
+pub fn explain_open_error(port: &str, err: &serialport::Error) -> PortError {
     use serialport::ErrorKind;
     let text = err.to_string();
     let lower = text.to_lowercase();
+    let port = port.to_string();
     match err.kind() {
-        ErrorKind::NoDevice => anyhow!(
-            "serial port {port} does not exist or went away ({text}); run `gleaner ports` to see the ports present, and check the cable"
-        ),
-        ErrorKind::Io(std::io::ErrorKind::NotFound) => anyhow!(
-            "serial port {port} not found; run `gleaner ports` to see the ports present"
-        ),
-        ErrorKind::Io(std::io::ErrorKind::PermissionDenied) => anyhow!(permission_hint(port)),
-        _ if lower.contains("permission denied") => anyhow!(permission_hint(port)),
-        _ if lower.contains("busy") || lower.contains("resource temporarily unavailable") => anyhow!(
-            "serial port {port} is in use by another program (a serial monitor, another gleaner, a modem manager); close it and try again"
-        ),
-        _ => anyhow!("cannot open serial port {port}: {text}"),
+        ErrorKind::NoDevice => PortError::NoDevice { port, detail: text },
+        ErrorKind::Io(std::io::ErrorKind::NotFound) => PortError::NotFound { port },
+        ErrorKind::Io(std::io::ErrorKind::PermissionDenied) => PortError::Forbidden { port },
+        _ if lower.contains("permission denied") => PortError::Forbidden { port },
+        _ if lower.contains("busy") || lower.contains("resource temporarily unavailable") => {
+            PortError::Busy { port }
+        }
+        _ => PortError::Other { port, detail: text },
     }
 }
 
@@ -119,7 +155,8 @@ pub fn open_port(port: &str, baud: u32) -> Result<Box<dyn SerialPort>> {
         .timeout(Duration::from_millis(50))
         .open()
         .map_err(|e| {
-            explain_open_error(port, &e).failed_as(crate::failure::Failure::PortUnavailable)
+            anyhow::Error::new(explain_open_error(port, &e))
+                .failed_as(crate::failure::Failure::PortUnavailable)
         })
 }
 
@@ -142,9 +179,17 @@ mod tests {
     fn a_missing_port_says_how_to_find_the_right_one() {
         let err = open_port("/dev/gleaner-no-such-port", DEFAULT_BAUD)
             .err()
-            .unwrap()
-            .to_string();
-        assert!(err.contains("gleaner ports"), "{err}");
+            .unwrap();
+        assert_eq!(
+            crate::failure::Failure::exit_code(&err),
+            crate::failure::Failure::PortUnavailable.code()
+        );
+        let typed = crate::failure::Failure::find::<PortError>(&err);
+        assert!(
+            matches!(typed, Some(PortError::NoDevice { port, .. } | PortError::NotFound { port }) if port == "/dev/gleaner-no-such-port"),
+            "{typed:?}"
+        );
+        assert!(err.to_string().contains("gleaner ports"), "{err}");
     }
 
     #[test]
@@ -153,7 +198,9 @@ mod tests {
             serialport::ErrorKind::Io(std::io::ErrorKind::PermissionDenied),
             "Permission denied",
         );
-        let msg = explain_open_error("/dev/ttyACM0", &err).to_string();
+        let typed = explain_open_error("/dev/ttyACM0", &err);
+        assert!(matches!(&typed, PortError::Forbidden { port } if port == "/dev/ttyACM0"));
+        let msg = typed.to_string();
         if cfg!(target_os = "linux") {
             assert!(msg.contains("dialout"), "{msg}");
         }
@@ -180,8 +227,8 @@ mod tests {
     #[test]
     fn busy_ports_are_named_as_busy() {
         let err = serialport::Error::new(serialport::ErrorKind::Unknown, "Device or resource busy");
-        assert!(explain_open_error("/dev/ttyUSB0", &err)
-            .to_string()
-            .contains("in use"));
+        let typed = explain_open_error("/dev/ttyUSB0", &err);
+        assert!(matches!(typed, PortError::Busy { .. }), "{typed:?}");
+        assert!(typed.to_string().contains("in use"));
     }
 }
