@@ -115,21 +115,22 @@ mod tests {
     use super::*;
 
     #[test]
-    fn the_default_front_end_gives_the_documented_steps() {
+    fn the_default_front_end_gives_the_documented_steps() -> Result<(), &'static str> {
         // LSB = 3.3 V / 4096 = 805.66 µV (IEEE Std 1241 code width); through
         // 1 Ω at gain 50 that is 16.11 µA; behind a 1:1 divider 1611.3 µV;
         // through 10 Ω at gain 50, 1.611 µA.
-        let cal = DEFAULT_FRONT_END.calibration().unwrap();
+        let cal = DEFAULT_FRONT_END.calibration().ok_or("a calibration")?;
         let per_count = |q20: u64| q20 as f64 / f64::from(1u32 << 20);
         assert!((per_count(cal.input_voltage.units_per_count_q20) - 805.664).abs() < 0.001);
         assert!((per_count(cal.input_current.units_per_count_q20) - 16_113.28).abs() < 0.01);
         assert!((per_count(cal.output_voltage.units_per_count_q20) - 1_611.328).abs() < 0.001);
         assert!((per_count(cal.output_current.units_per_count_q20) - 1_611.328).abs() < 0.001);
         assert_eq!(cal.adc_bits, 12);
+        Ok(())
     }
 
     #[test]
-    fn channels_may_each_have_their_own_scale() {
+    fn channels_may_each_have_their_own_scale() -> Result<(), &'static str> {
         // A 14-bit converter whose current channels are differential (13 bits
         // for the positive half) at a 150 mV span, the voltages single-ended.
         let mut fe = DEFAULT_FRONT_END;
@@ -140,7 +141,7 @@ mod tests {
         };
         fe.input_current.shunt_milliohm = 10_000;
         fe.input_current.gain = 1;
-        let cal = fe.calibration().unwrap();
+        let cal = fe.calibration().ok_or("a calibration")?;
         // 150 mV / 8192 over 10 Ω = 1.831 µA per count.
         let na = cal.input_current.units_per_count_q20 as f64 / f64::from(1u32 << 20);
         assert!((na - 1_831.05).abs() < 0.01, "{na}");
@@ -148,5 +149,6 @@ mod tests {
         // A zero shunt is no front-end.
         fe.output_current.shunt_milliohm = 0;
         assert_eq!(fe.calibration(), None);
+        Ok(())
     }
 }
