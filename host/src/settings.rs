@@ -1,12 +1,63 @@
 //! Node settings as people write them (TOML, volts and seconds), turned into
 //! the wire's [`NodeConfig`] on top of a base configuration.
 
-use anyhow::{bail, Context, Result};
+use anyhow::Result;
 use gleaner_firmware::config::MAX_SCALE_Q20;
 use gleaner_protocol::{Calibration, Channel, ChannelCal, NodeConfig, Thresholds};
 use serde::{Deserialize, Serialize};
 
 use crate::front_end::FrontEndParams;
+
+/// Why settings cannot be applied: each names the key at fault.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum SettingsError {
+    /// Not a settings file: bad TOML, an unknown key, a wrong type.
+    #[error("invalid node settings: {0}")]
+    Syntax(String),
+    /// A value outside what its key accepts.
+    #[error("{key} = {value}{unit} is outside {range}")]
+    OutOfRange {
+        /// The key.
+        key: String,
+        /// The value given.
+        value: f64,
+        /// Its unit, with a leading space (empty for a plain number).
+        unit: &'static str,
+        /// What is accepted, in words.
+        range: String,
+    },
+    /// A node name longer than the wire carries.
+    #[error("name = {name:?} is longer than {max} bytes")]
+    NameTooLong {
+        /// The name given.
+        name: String,
+        /// The longest name, bytes.
+        max: usize,
+    },
+    /// A front-end and two-point corrections in one file.
+    #[error("front_end and two_point cannot be combined: send the front-end first, measure, then send the two-point corrections")]
+    FrontEndWithTrim,
+    /// A front-end with a zero divider, shunt or gain.
+    #[error("front_end: a divider, shunt or gain is zero or the scale overflows")]
+    FrontEndInvalid,
+    /// A two-point correction that cannot be used, and why.
+    #[error("{key}: {problem}")]
+    Trim {
+        /// The key (`two_point.CHANNEL`).
+        key: String,
+        /// What is wrong and what to do.
+        problem: String,
+    },
+}
+
+impl SettingsError {
+    fn trim(key: &str, problem: impl Into<String>) -> Self {
+        SettingsError::Trim {
+            key: key.to_string(),
+            problem: problem.into(),
+        }
+    }
+}
 
 /// Optional overrides of a node's configuration. Absent fields keep the base value.
 #[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
@@ -130,7 +181,7 @@ pub struct TwoPoint {
 
 impl TwoPoint {
     /// The pair in channel units (µV or nA) for a voltage or current channel.
-    fn points(&self, field: &str, voltage: bool) -> Result<([f64; 2], [f64; 2])> {
+    fn points(&self, field: &str, voltage: bool) -> Result<([f64; 2], [f64; 2]), SettingsError> {
         let (reported, actual, unit, other) = if voltage {
             let other = self.reported_ma.or(self.actual_ma);
             (self.reported_v, self.actual_v, "_v", other)
@@ -139,14 +190,23 @@ impl TwoPoint {
             (self.reported_ma, self.actual_ma, "_ma", other)
         };
         if other.is_some() {
-            bail!("{field}: this channel takes reported{unit} and actual{unit}");
+            return Err(SettingsError::trim(
+                field,
+                format!("this channel takes reported{unit} and actual{unit}"),
+            ));
         }
         let (Some(reported), Some(actual)) = (reported, actual) else {
-            bail!("{field}: give both reported{unit} and actual{unit}");
+            return Err(SettingsError::trim(
+                field,
+                format!("give both reported{unit} and actual{unit}"),
+            ));
         };
         let all = reported.iter().chain(&actual);
         if all.clone().any(|v| !v.is_finite() || *v < 0.0) {
-            bail!("{field}: values must be finite and not negative");
+            return Err(SettingsError::trim(
+                field,
+                "values must be finite and not negative",
+            ));
         }
         // V to µV and mA to nA are both a factor of 10^6.
         Ok((reported.map(|v| v * 1e6), actual.map(|v| v * 1e6)))
@@ -161,7 +221,7 @@ pub fn trimmed(
     present: &ChannelCal,
     trim: &TwoPoint,
     voltage: bool,
-) -> Result<ChannelCal> {
+) -> Result<ChannelCal, SettingsError> {
     use gleaner_firmware::calibration::{
         counts_q8_for, two_point, ReferencePoint, COUNT_FRACTION_BITS,
     };
@@ -171,16 +231,16 @@ pub fn trimmed(
     for ((r, a), point) in reported.iter().zip(&actual).zip(&mut points) {
         let whole = |x: f64| {
             u32::try_from(x.round() as i64)
-                .with_context(|| format!("{field}: {x} {unit} is out of range"))
+                .map_err(|_| SettingsError::trim(field, format!("{x} {unit} is out of range")))
         };
-        let counts = counts_q8_for(present, whole(*r)?).with_context(|| {
-            format!("{field}: a reading of {r:.0} {unit} is at or below the channel's zero; use points well above it")
+        let counts = counts_q8_for(present, whole(*r)?).ok_or_else(|| {
+            SettingsError::trim(field, format!("a reading of {r:.0} {unit} is at or below the channel's zero; use points well above it"))
         })?;
         *point = (counts, whole(*a)?);
     }
     let [(c1, a1), (c2, a2)] = points;
     if c1.abs_diff(c2) < 1 << COUNT_FRACTION_BITS {
-        bail!("{field}: the two reported readings are less than one ADC count apart; use points far apart (near 20 % and 80 % of the range)");
+        return Err(SettingsError::trim(field, "the two reported readings are less than one ADC count apart; use points far apart (near 20 % and 80 % of the range)"));
     }
     let ((c1, a1), (c2, a2)) = if c1 < c2 {
         ((c1, a1), (c2, a2))
@@ -188,7 +248,10 @@ pub fn trimmed(
         ((c2, a2), (c1, a1))
     };
     if a2 <= a1 {
-        bail!("{field}: the actual values do not rise with the reported ones");
+        return Err(SettingsError::trim(
+            field,
+            "the actual values do not rise with the reported ones",
+        ));
     }
     let cal = two_point(
         ReferencePoint {
@@ -200,24 +263,43 @@ pub fn trimmed(
             value: a2,
         },
     )
-    .with_context(|| format!("{field}: the corrected scale or offset is out of range"))?;
+    .ok_or_else(|| SettingsError::trim(field, "the corrected scale or offset is out of range"))?;
     if cal.units_per_count_q20 > MAX_SCALE_Q20 {
-        bail!("{field}: the corrected scale is out of range");
+        return Err(SettingsError::trim(
+            field,
+            "the corrected scale is out of range",
+        ));
     }
     Ok(cal)
 }
 
-fn volts_to_uv(field: &str, v: f64) -> Result<u32> {
-    if !(0.0..=4000.0).contains(&v) {
-        bail!("{field} = {v} V is outside 0 to 4000 V");
+/// `value` when it lies in `range`, else the error naming `key`.
+fn within(
+    key: &str,
+    value: f64,
+    unit: &'static str,
+    range: std::ops::RangeInclusive<f64>,
+    words: &str,
+) -> Result<f64, SettingsError> {
+    if range.contains(&value) {
+        Ok(value)
+    } else {
+        Err(SettingsError::OutOfRange {
+            key: key.to_string(),
+            value,
+            unit,
+            range: words.to_string(),
+        })
     }
+}
+
+fn volts_to_uv(field: &str, v: f64) -> Result<u32, SettingsError> {
+    let v = within(field, v, " V", 0.0..=4000.0, "0 to 4000 V")?;
     Ok((v * 1e6).round() as u32)
 }
 
-fn seconds_to_ms(field: &str, s: f64) -> Result<u32> {
-    if !(0.0..=4.0e6).contains(&s) {
-        bail!("{field} = {s} s is outside 0 to 4,000,000 s");
-    }
+fn seconds_to_ms(field: &str, s: f64) -> Result<u32, SettingsError> {
+    let s = within(field, s, " s", 0.0..=4.0e6, "0 to 4,000,000 s")?;
     Ok((s * 1e3).round() as u32)
 }
 
@@ -256,13 +338,13 @@ impl NodeSettings {
     }
 
     /// Reads settings from TOML text; errors name the field and line.
-    pub fn from_toml(text: &str) -> Result<Self> {
-        toml::from_str(text).context("invalid node settings")
+    pub fn from_toml(text: &str) -> Result<Self, SettingsError> {
+        toml::from_str(text).map_err(|e| SettingsError::Syntax(e.to_string()))
     }
 
     /// Applies the overrides to `base`. Unit and range errors name the field;
     /// the node itself checks the rules between fields.
-    pub fn apply(&self, base: &NodeConfig) -> Result<NodeConfig> {
+    pub fn apply(&self, base: &NodeConfig) -> Result<NodeConfig, SettingsError> {
         let mut c = base.clone();
         if let Some(v) = self.report_interval_ms {
             c.report_interval_ms = v;
@@ -272,10 +354,10 @@ impl NodeSettings {
         self.apply_converter_model(&mut c)?;
         if let Some(name) = &self.name {
             c.name = gleaner_protocol::NodeName::try_from(name.as_str()).map_err(|_| {
-                anyhow::anyhow!(
-                    "name = {name:?} is longer than {} bytes",
-                    gleaner_protocol::NODE_NAME_LEN
-                )
+                SettingsError::NameTooLong {
+                    name: name.clone(),
+                    max: gleaner_protocol::NODE_NAME_LEN,
+                }
             })?;
         }
         self.apply_calibration(&mut c.calibration)?;
@@ -283,7 +365,7 @@ impl NodeSettings {
     }
 
     /// The converter's voltages, timings and forecast horizon.
-    fn apply_converter_thresholds(&self, t: &mut Thresholds) -> Result<()> {
+    fn apply_converter_thresholds(&self, t: &mut Thresholds) -> Result<(), SettingsError> {
         if let Some(v) = self.start_v {
             t.start_uv = volts_to_uv("start_v", v)?;
         }
@@ -309,9 +391,7 @@ impl NodeSettings {
             t.forecast_horizon_ms = seconds_to_ms("forecast_horizon_s", v)?;
         }
         if let Some(v) = self.input_floor_ua {
-            if !(0.0..=4.0e6).contains(&v) {
-                bail!("input_floor_ua = {v} µA is outside 0 to 4,000,000 µA");
-            }
+            let v = within("input_floor_ua", v, " µA", 0.0..=4.0e6, "0 to 4,000,000 µA")?;
             t.input_idle_na = (v * 1e3).round() as u32;
         }
         Ok(())
@@ -319,7 +399,7 @@ impl NodeSettings {
 
     /// The load: its storage, minimum and restart voltages, brown-out
     /// horizon and shedding.
-    fn apply_load(&self, c: &mut NodeConfig) -> Result<()> {
+    fn apply_load(&self, c: &mut NodeConfig) -> Result<(), SettingsError> {
         if let Some(v) = self.output_storage_uf {
             c.output_storage_uf = v;
         }
@@ -337,22 +417,18 @@ impl NodeSettings {
         }
         if let Some(v) = self.shed_load_ua {
             let max_ua = f64::from(gleaner_protocol::MAX_SHED_LOAD_NA) / 1e3;
-            if !(0.0..=max_ua).contains(&v) {
-                bail!("shed_load_ua = {v} µA is outside 0 to {max_ua} µA");
-            }
+            let words = format!("0 to {max_ua} µA");
+            let v = within("shed_load_ua", v, " µA", 0.0..=max_ua, &words)?;
             c.shed_load_na = (v * 1e3).round() as u32;
         }
         Ok(())
     }
 
     /// How the converter treats its input and output.
-    fn apply_converter_model(&self, c: &mut NodeConfig) -> Result<()> {
+    fn apply_converter_model(&self, c: &mut NodeConfig) -> Result<(), SettingsError> {
         if let Some(f) = self.mppt_fraction {
-            if !(0.0..=1.0).contains(&f) {
-                bail!(
-                    "mppt_fraction = {f} is outside 0 to 1 (a share of the open-circuit voltage)"
-                );
-            }
+            let words = "0 to 1 (a share of the open-circuit voltage)";
+            let f = within("mppt_fraction", f, "", 0.0..=1.0, words)?;
             c.converter.mppt_fraction_ppm = (f * 1e6).round() as u32;
         }
         if let Some(regulated) = self.output_regulated {
@@ -362,14 +438,12 @@ impl NodeSettings {
     }
 
     /// A new front-end, or two-point corrections of the present calibration.
-    fn apply_calibration(&self, cal: &mut Calibration) -> Result<()> {
+    fn apply_calibration(&self, cal: &mut Calibration) -> Result<(), SettingsError> {
         if let Some(fe) = &self.front_end {
             if self.two_point.is_some() {
-                bail!("front_end and two_point cannot be combined: send the front-end first, measure, then send the two-point corrections");
+                return Err(SettingsError::FrontEndWithTrim);
             }
-            *cal = fe
-                .calibration()
-                .context("front_end: a divider, shunt or gain is zero or the scale overflows")?;
+            *cal = fe.calibration().ok_or(SettingsError::FrontEndInvalid)?;
         }
         let Some(trims) = &self.two_point else {
             return Ok(());
@@ -450,6 +524,20 @@ mod tests {
             .apply(&default_config())
             .unwrap_err();
         assert!(err.to_string().contains("shed_load_ua = -3"), "{err}");
+        // Callers match on the kind and the key, not the words.
+        assert!(
+            matches!(&err, SettingsError::OutOfRange { key, value, .. } if key == "shed_load_ua" && *value == -3.0),
+            "{err:?}"
+        );
+        let err = NodeSettings::from_toml("name = \"a name far too long for the wire\"")
+            .unwrap()
+            .apply(&default_config())
+            .unwrap_err();
+        assert!(matches!(err, SettingsError::NameTooLong { .. }), "{err:?}");
+        assert!(matches!(
+            NodeSettings::from_toml("hold_volts = 0.6"),
+            Err(SettingsError::Syntax(_))
+        ));
     }
 
     #[test]
@@ -503,14 +591,23 @@ mod tests {
         assert!(e.contains("do not rise"), "{e}");
         let e = err("[two_point.input_voltage]\nreported_v = [0.2, 0.9]");
         assert!(e.contains("both"), "{e}");
+        let typed = NodeSettings::from_toml("[two_point.output_current]\nreported_ma = [1.0]")
+            .map(|s| s.apply(&base));
+        assert!(matches!(typed, Err(SettingsError::Syntax(_))), "{typed:?}");
+        let typed = NodeSettings::from_toml("[two_point.output_current]\nreported_ma = [1.0, 2.0]")
+            .unwrap()
+            .apply(&base);
+        assert!(
+            matches!(&typed, Err(SettingsError::Trim { key, .. }) if key == "two_point.output_current"),
+            "{typed:?}"
+        );
         let mut s = NodeSettings::from_toml(
             "[two_point.input_voltage]\nreported_v = [0.2, 0.9]\nactual_v = [0.2, 0.9]",
         )
         .unwrap();
         s.front_end = Some(FrontEndParams::default_board());
-        assert!(s
-            .apply(&base)
-            .unwrap_err()
+        assert_eq!(s.apply(&base), Err(SettingsError::FrontEndWithTrim));
+        assert!(SettingsError::FrontEndWithTrim
             .to_string()
             .contains("cannot be combined"));
     }

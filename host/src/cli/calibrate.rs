@@ -133,7 +133,10 @@ impl Calibrate {
             two_point: Some(trims.clone()),
             ..NodeSettings::default()
         };
-        let updated = settings.apply(&present).failed_as(Failure::BadInput)?;
+        let updated = settings
+            .apply(&present)
+            .map_err(anyhow::Error::new)
+            .failed_as(Failure::BadInput)?;
         for channel in Channel::ALL {
             if let Some(trim) = trims.channel(channel) {
                 show_result(

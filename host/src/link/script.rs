@@ -131,7 +131,7 @@ impl CommandScript {
                         Command::SetConfig(config)
                     }
                     Err(e) => {
-                        self.errors.push(e);
+                        self.errors.push(e.into());
                         return self.outgoing();
                     }
                 },

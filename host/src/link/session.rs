@@ -81,13 +81,14 @@ impl Session {
     /// script every client uses; returns the configuration sent.
     pub fn apply_settings(&mut self, settings: &NodeSettings) -> Result<NodeConfig> {
         let steps = vec![Step::Configure(Box::new(settings.clone()))];
+        let started = Instant::now();
         let mut script = self.run(CommandScript::new(steps, self.timeout).at_once())?;
         if let Some(e) = script.errors.pop() {
             return Err(e.failed_as(Failure::BadInput));
         }
         match script.results.last() {
             Some((Step::Configure(_), Some(outcome))) => explain(*outcome)?,
-            _ => return Err(self.no_answer(self.timeout)),
+            _ => return Err(self.no_answer(started.elapsed())),
         }
         script.configured.context("the configuration was not sent")
     }
