@@ -380,26 +380,42 @@ fn several_logs_with_a_bad_one_report_the_good_and_name_the_bad() {
     assert!(!page.exists());
 }
 
-/// The Python with the reference libraries (made by `.ci/run`).
-fn reference_python() -> std::path::PathBuf {
+/// The Python with the reference libraries (made by `.ci/run`), or None
+/// after saying on stderr that the test is skipped. Under `.ci/run`
+/// (`GLEANER_REQUIRE_TOOLS=1`) a missing Python fails instead, as in the
+/// end-to-end tests' tiers.
+fn reference_python() -> Option<std::path::PathBuf> {
     let workspace = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
         .parent()
         .unwrap()
         .to_path_buf();
-    std::env::var_os("GLEANER_PYTHON")
+    let python = std::env::var_os("GLEANER_PYTHON")
         .map(std::path::PathBuf::from)
-        .unwrap_or_else(|| workspace.join(".venv/bin/python"))
+        .unwrap_or_else(|| workspace.join(".venv/bin/python"));
+    if python.exists() {
+        return Some(python);
+    }
+    let required = std::env::var_os("GLEANER_REQUIRE_TOOLS").is_some_and(|v| v == "1");
+    assert!(
+        !required,
+        "no Python at {}: run `bash .ci/run` once",
+        python.display()
+    );
+    use std::io::Write;
+    let _ = writeln!(
+        std::io::stderr(),
+        "skipped: no Python with the reference libraries at {} (run `bash .ci/run` once)",
+        python.display()
+    );
+    None
 }
 
 #[test]
 fn a_served_virtual_node_answers_an_independent_client() {
     use std::io::BufRead;
-    let python = reference_python();
-    assert!(
-        python.exists(),
-        "no Python with the reference libraries at {}: run `bash .ci/run` once",
-        python.display()
-    );
+    let Some(python) = reference_python() else {
+        return;
+    };
     let mut serve = gleaner()
         .args(["sim", "serve", "stalled-converter", "--speed", "20"])
         .stdout(std::process::Stdio::piped())
@@ -811,8 +827,9 @@ fn long_jobs_print_no_progress_when_stderr_is_not_a_terminal() {
 
 #[test]
 fn the_live_stream_reads_in_python_while_the_virtual_node_runs() {
-    let python = reference_python();
-    assert!(python.exists(), "run `bash .ci/run` once for {python:?}");
+    let Some(python) = reference_python() else {
+        return;
+    };
     let served = Served::start("greenhouse-day");
     let dir = tempfile::tempdir().unwrap();
     let log = dir.path().join("streamed.gleanlog");
