@@ -289,17 +289,7 @@ fn write_tables(logs: &[PathBuf], progress: &ProgressBar, place: &Place<'_>) -> 
             }
         }
         progress.inc(reader.offset().saturating_sub(shown));
-        if reader
-            .warnings()
-            .iter()
-            .any(|w| matches!(w, crate::log::ReadWarning::NotALog))
-        {
-            use crate::failure::FailedAs;
-            return Err(
-                anyhow::anyhow!("{}: {}", log.display(), crate::log::ReadWarning::NotALog)
-                    .failed_as(crate::failure::Failure::BadInput),
-            );
-        }
+        reader.read_whole(&log.display().to_string())?;
     }
     tables.finish()
 }

@@ -7,18 +7,64 @@
 use std::io::Write;
 use std::path::{Path, PathBuf};
 
-use anyhow::{Context, Result};
 use gleaner_protocol::UplinkBody;
 
 use crate::columns;
 use crate::files::{AtomicFile, Input};
 use crate::link::LinkTracker;
-use crate::log::{LogReader, RecordBody};
+use crate::log::{LogError, LogReader, RecordBody};
 use indicatif::ProgressBar;
+
+/// Why an export failed; a table file appears only when complete, so
+/// nothing half-written is left behind.
+#[derive(Debug, thiserror::Error)]
+pub enum ExportError {
+    /// A log could not be read as a whole.
+    #[error(transparent)]
+    Log(#[from] LogError),
+    /// An output could not be written (a full disk, a closed pipe).
+    #[error("cannot write {what}")]
+    Unwritable {
+        /// The file, or the table on a stream.
+        what: String,
+        /// Why.
+        #[source]
+        source: std::io::Error,
+    },
+    /// An input could not be opened or an output file created.
+    #[error(transparent)]
+    Files(#[from] anyhow::Error),
+}
+
+impl ExportError {
+    /// The log error inside, if that is what stopped the export.
+    pub fn log_error(&self) -> Option<&LogError> {
+        match self {
+            ExportError::Log(e) => Some(e),
+            _ => None,
+        }
+    }
+}
+
+/// The result of an export step.
+type Result<T> = std::result::Result<T, ExportError>;
+
+/// `Unwritable` for an I/O error while writing `what`.
+fn unwritable(what: &str) -> impl Fn(std::io::Error) -> ExportError + '_ {
+    move |source| ExportError::Unwritable {
+        what: what.to_string(),
+        source,
+    }
+}
 
 /// The columns every CSV row starts with (the message's envelope); the
 /// rest come from [`crate::columns`].
 const CSV_ENVELOPE: &str = "boot,seq,uptime_ms,host_time_us";
+
+/// The reports table, as errors name it.
+const REPORTS: &str = "the reports table";
+/// The events table, as errors name it.
+const EVENTS: &str = "the events table";
 
 /// The header of the reports file.
 pub fn report_header() -> String {
@@ -50,25 +96,11 @@ fn suffixed(prefix: &Path, suffix: &str) -> PathBuf {
     PathBuf::from(name)
 }
 
-/// An error when what was read is not a log (so nothing is written for it).
-fn refuse_non_log<R: std::io::Read>(reader: &LogReader<R>, name: &str) -> Result<()> {
-    use crate::failure::FailedAs;
-    if reader
-        .warnings()
-        .iter()
-        .any(|w| matches!(w, crate::log::ReadWarning::NotALog))
-    {
-        return Err(
-            anyhow::anyhow!("{name}: {}", crate::log::ReadWarning::NotALog)
-                .failed_as(crate::failure::Failure::BadInput),
-        );
-    }
-    Ok(())
-}
-
 /// Opens the logs at `logs` (`-`: standard input), gzipped or not.
 pub fn open_logs(logs: &[PathBuf]) -> Result<Vec<Input>> {
-    logs.iter().map(|log| crate::files::open_log(log)).collect()
+    logs.iter()
+        .map(|log| crate::files::open_log(log).map_err(ExportError::Files))
+        .collect()
 }
 
 /// Writes `PREFIX-reports.csv` and `PREFIX-events.csv` from the logs at
@@ -84,7 +116,7 @@ pub fn export_csv(logs: &[PathBuf], prefix: &Path, progress: &ProgressBar) -> Re
     for (out, path) in [(reports_out, &reports_path), (events_out, &events_path)] {
         out.into_inner()
             .map_err(|e| e.into_error())
-            .with_context(|| format!("cannot write {}", path.display()))?
+            .map_err(unwritable(&path.display().to_string()))?
             .commit()?;
     }
     Ok(Exported {
@@ -104,8 +136,8 @@ pub fn write_csv(
     events_out: &mut dyn Write,
     progress: &ProgressBar,
 ) -> Result<(u64, u64)> {
-    writeln!(reports_out, "{}", report_header())?;
-    writeln!(events_out, "{}", event_header())?;
+    writeln!(reports_out, "{}", report_header()).map_err(unwritable(REPORTS))?;
+    writeln!(events_out, "{}", event_header()).map_err(unwritable(EVENTS))?;
     let mut tracker = LinkTracker::new();
     let mut rows = (0, 0);
     let mut done_before = 0;
@@ -121,10 +153,10 @@ pub fn write_csv(
             at,
         )?;
         done_before += reader.offset();
-        refuse_non_log(&reader, &input.name)?;
+        reader.read_whole(&input.name)?;
     }
-    reports_out.flush()?;
-    events_out.flush()?;
+    reports_out.flush().map_err(unwritable(REPORTS))?;
+    events_out.flush().map_err(unwritable(EVENTS))?;
     Ok(rows)
 }
 
@@ -158,15 +190,17 @@ fn write_csv_rows<R: std::io::Read>(
         );
         match &t.message.body {
             UplinkBody::Report(r) => {
-                write!(reports_out, "{boot},{seq},{up},{host}")?;
-                columns::write_csv_cells(reports_out, &columns::REPORT, r)?;
-                writeln!(reports_out)?;
+                write!(reports_out, "{boot},{seq},{up},{host}")
+                    .and_then(|()| columns::write_csv_cells(reports_out, &columns::REPORT, r))
+                    .and_then(|()| writeln!(reports_out))
+                    .map_err(unwritable(REPORTS))?;
                 *reports += 1;
             }
             UplinkBody::Event(e) => {
-                write!(events_out, "{boot},{seq},{up},{host}")?;
-                columns::write_csv_cells(events_out, &columns::EVENT, e)?;
-                writeln!(events_out)?;
+                write!(events_out, "{boot},{seq},{up},{host}")
+                    .and_then(|()| columns::write_csv_cells(events_out, &columns::EVENT, e))
+                    .and_then(|()| writeln!(events_out))
+                    .map_err(unwritable(EVENTS))?;
                 *events += 1;
             }
             _ => {}
@@ -182,6 +216,46 @@ pub fn export_parquet(
     logs: &[PathBuf],
     prefix: &Path,
     progress: &ProgressBar,
-) -> Result<crate::dataset::Exported> {
+) -> anyhow::Result<crate::dataset::Exported> {
     crate::dataset::export_files(logs, prefix, progress)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::io::Read;
+
+    /// A gzipped log whose stream is cut short (a copy that stopped, say)
+    /// fails the export as bad input, and no table file is left.
+    #[test]
+    fn a_truncated_gzip_log_fails_the_export_and_writes_nothing() {
+        let mut log = Vec::new();
+        crate::sim::scenarios::synthetic::SyntheticLog::new(6 * 3600, 10)
+            .read_to_end(&mut log)
+            .unwrap();
+        let mut gz = flate2::write::GzEncoder::new(Vec::new(), flate2::Compression::fast());
+        gz.write_all(&log).unwrap();
+        let gz = gz.finish().unwrap();
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("cut.gleanlog.gz");
+        std::fs::write(&path, &gz[..gz.len() / 2]).unwrap();
+        let prefix = dir.path().join("out");
+        let hidden = ProgressBar::hidden();
+        let err = export_csv(std::slice::from_ref(&path), &prefix, &hidden).unwrap_err();
+        let Some(LogError::Unreadable { offset, .. }) = err.log_error() else {
+            panic!("{err:?}");
+        };
+        assert!(*offset > 0 && *offset < log.len() as u64, "{offset}");
+        assert!(err.log_error().is_some_and(LogError::is_bad_input));
+        assert_eq!(
+            crate::failure::Failure::exit_code(&anyhow::Error::new(err)),
+            crate::failure::Failure::BadInput.code()
+        );
+        let left: Vec<_> = std::fs::read_dir(dir.path()).unwrap().collect();
+        assert_eq!(left.len(), 1, "only the input remains");
+        // The whole file exports.
+        std::fs::write(&path, &gz).unwrap();
+        let done = export_csv(std::slice::from_ref(&path), &prefix, &hidden).unwrap();
+        assert_eq!(done.reports, 6 * 360);
+    }
 }

@@ -39,11 +39,30 @@ impl Failure {
         }
     }
 
-    /// The exit code for `err`: the kind it was marked with, or 1.
+    /// The exit code for `err`: the kind it was marked with, else the kind
+    /// a typed error in it implies, else 1.
     pub fn exit_code(err: &anyhow::Error) -> u8 {
         err.chain()
-            .find_map(|cause| cause.downcast_ref::<Classified>())
-            .map_or(1, |c| c.kind.code())
+            .find_map(|cause| cause.downcast_ref::<Classified>().map(|c| c.kind))
+            .or_else(|| err.chain().find_map(Failure::implied_by))
+            .map_or(1, Failure::code)
+    }
+
+    /// The kind a typed library error stands for, whoever passed it on: the
+    /// one place that maps the library's errors to exit codes.
+    fn implied_by(cause: &(dyn std::error::Error + 'static)) -> Option<Failure> {
+        let log_error = cause.downcast_ref::<crate::log::LogError>().or_else(|| {
+            cause
+                .downcast_ref::<crate::export::ExportError>()
+                .and_then(crate::export::ExportError::log_error)
+        });
+        if let Some(e) = log_error {
+            return e.is_bad_input().then_some(Failure::BadInput);
+        }
+        if let Some(e) = cause.downcast_ref::<crate::sim::scenarios::scenario::ScenarioError>() {
+            return e.in_a_file().then_some(Failure::BadInput);
+        }
+        None
     }
 
     /// The typed error `E` somewhere in `err` (marked with a kind or not):
@@ -134,6 +153,16 @@ mod tests {
             Some(std::io::ErrorKind::Other)
         );
         assert!(Failure::find::<std::fmt::Error>(&typed).is_none());
+        // A typed error implies its kind unmarked, under any context.
+        let not_a_log = anyhow::Error::new(crate::log::LogError::NotALog { name: "x".into() })
+            .context("while exporting");
+        assert_eq!(Failure::exit_code(&not_a_log), Failure::BadInput.code());
+        let failing_disk = anyhow::Error::new(crate::log::LogError::Unreadable {
+            name: "x".into(),
+            offset: 7,
+            source: std::io::Error::other("EIO"),
+        });
+        assert_eq!(Failure::exit_code(&failing_disk), 1);
         assert_eq!(format!("{typed:#}"), "while exporting: disk on fire");
         let codes: std::collections::BTreeSet<u8> = Failure::ALL.iter().map(|f| f.code()).collect();
         assert_eq!(codes.len(), Failure::ALL.len());

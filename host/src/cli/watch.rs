@@ -160,6 +160,12 @@ pub fn replay(
         for w in reader.warnings() {
             eprintln!("warning: {name}{w}");
         }
+        // Not a log was said above; a read that stopped early is an error.
+        if let Err(e @ crate::log::LogError::Unreadable { .. }) =
+            reader.read_whole(&path.display().to_string())
+        {
+            return Err(e.into());
+        }
         if over {
             break;
         }

@@ -18,7 +18,7 @@ pub mod split;
 mod writer;
 
 pub use format::{LogHeader, MarkerKind, Record, RecordBody, FORMAT_VERSION, MAGIC, MAX_BODY_LEN};
-pub use reader::{LogReader, ReadWarning, RecordRef};
+pub use reader::{LogError, LogReader, ReadWarning, RecordRef};
 pub use writer::{DiskFull, LogStore, LogWriter};
 
 /// Microseconds since the Unix epoch, now.

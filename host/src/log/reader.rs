@@ -37,6 +37,46 @@ pub enum ReadWarning {
     },
 }
 
+/// Why a log could not be read as a whole: for readers that must not stop
+/// short silently (exports, replays).
+#[derive(Debug, Error)]
+pub enum LogError {
+    /// The input is not a log at all.
+    #[error("{name}: {}", ReadWarning::NotALog)]
+    NotALog {
+        /// The file (`-`: standard input).
+        name: String,
+    },
+    /// Reading stopped early on an I/O error (a failing disk, a truncated
+    /// or corrupt gzip stream).
+    #[error("{name}: reading stopped at offset {offset}")]
+    Unreadable {
+        /// The file.
+        name: String,
+        /// Bytes read before the error.
+        offset: u64,
+        /// The error.
+        #[source]
+        source: std::io::Error,
+    },
+}
+
+impl LogError {
+    /// True when the input, not the machine, is at fault: not a log, or a
+    /// compressed stream that does not decode.
+    pub fn is_bad_input(&self) -> bool {
+        match self {
+            LogError::NotALog { .. } => true,
+            LogError::Unreadable { source, .. } => matches!(
+                source.kind(),
+                std::io::ErrorKind::InvalidData
+                    | std::io::ErrorKind::InvalidInput
+                    | std::io::ErrorKind::UnexpectedEof
+            ),
+        }
+    }
+}
+
 /// A streaming log reader; an iterator of records.
 pub struct LogReader<R> {
     input: R,
@@ -145,6 +185,24 @@ impl<R: Read> LogReader<R> {
     /// An I/O error that ended reading early, if any.
     pub fn take_io_error(&mut self) -> Option<std::io::Error> {
         self.io_error.take()
+    }
+
+    /// After the last record: Ok when what was read is a log, read to its
+    /// end; else why not (`name` names the input in the error).
+    pub fn read_whole(&mut self, name: &str) -> Result<(), LogError> {
+        if self.warnings.contains(&ReadWarning::NotALog) {
+            return Err(LogError::NotALog {
+                name: name.to_string(),
+            });
+        }
+        match self.io_error.take() {
+            Some(source) => Err(LogError::Unreadable {
+                name: name.to_string(),
+                offset: self.offset,
+                source,
+            }),
+            None => Ok(()),
+        }
     }
 
     /// Bytes consumed so far (the file offset, for a reader that resumed).

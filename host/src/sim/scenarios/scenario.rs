@@ -2,12 +2,10 @@
 //! time, written in TOML. The built-in ones live in `host/scenarios/` and are
 //! invented for settings of our own; they double as examples of the format.
 
-use anyhow::{bail, Context, Result};
 use serde::{Deserialize, Serialize};
 
-use crate::failure::FailedAs;
 use crate::front_end::FrontEndParams;
-use crate::settings::NodeSettings;
+use crate::settings::{NodeSettings, SettingsError};
 use crate::sim::models::cell::CellParams;
 use crate::sim::models::converter::{ConverterParams, InputMode};
 use crate::sim::models::environment::{DaylightParams, PipeParams};
@@ -80,35 +78,140 @@ pub const BUILTIN: &[(&str, &str)] = &[
 /// The scenario the demo runs when none is named.
 pub const DEFAULT_SCENARIO: &str = "greenhouse-day";
 
-fn positive(field: &str, value: f64) -> Result<()> {
+/// Why a scenario cannot be used: each names the field at fault.
+#[derive(Debug, thiserror::Error)]
+pub enum ScenarioError {
+    /// Neither a file nor a built-in name.
+    #[error("no built-in scenario named '{name}'; choose one of: {known}")]
+    Unknown {
+        /// The name given.
+        name: String,
+        /// The built-in names, comma separated.
+        known: String,
+    },
+    /// A scenario file that exists but cannot be read.
+    #[error("cannot read scenario file {}", path.display())]
+    Unreadable {
+        /// The file.
+        path: std::path::PathBuf,
+        /// Why.
+        #[source]
+        source: std::io::Error,
+    },
+    /// Not a scenario: bad TOML, an unknown key, a wrong type.
+    #[error("invalid scenario: {0}")]
+    Syntax(String),
+    /// A number that must be positive and is not.
+    #[error("{field} must be a positive number, got {value}")]
+    NotPositive {
+        /// The field.
+        field: String,
+        /// The value given.
+        value: f64,
+    },
+    /// A number outside its range.
+    #[error("{field} must be between {low} and {high}, got {value}")]
+    OutOfRange {
+        /// The field.
+        field: String,
+        /// The value given.
+        value: f64,
+        /// The lowest accepted.
+        low: f64,
+        /// The highest accepted.
+        high: f64,
+    },
+    /// The converter's stop voltage at or above its start voltage.
+    #[error("converter.stop_v ({stop_v}) must be below converter.start_v ({start_v})")]
+    StopNotBelowStart {
+        /// The stop voltage, V.
+        stop_v: f64,
+        /// The start voltage, V.
+        start_v: f64,
+    },
+    /// A front-end with a zero divider, shunt or gain.
+    #[error("front_end: a divider, shunt or gain is zero or the scale overflows")]
+    FrontEndInvalid,
+    /// The `[node]` settings cannot be applied.
+    #[error("[node] settings")]
+    Settings(#[source] SettingsError),
+    /// The node's own rules refuse the configuration.
+    #[error("[node] settings are refused by the node: {0}")]
+    Refused(gleaner_protocol::Refusal),
+    /// An error in a named scenario or file (`what` says which).
+    #[error("{what}")]
+    In {
+        /// `built-in scenario 'NAME'` or `scenario file PATH`.
+        what: String,
+        /// The error in it.
+        #[source]
+        source: Box<ScenarioError>,
+    },
+}
+
+impl ScenarioError {
+    /// True when the fault is in a file the user gave (an exit code of its own).
+    pub fn in_a_file(&self) -> bool {
+        match self {
+            ScenarioError::Unreadable { .. } => true,
+            ScenarioError::In { what, .. } => what.starts_with("scenario file"),
+            _ => false,
+        }
+    }
+
+    /// The innermost error, past the names of the scenario or file.
+    pub fn innermost(&self) -> &ScenarioError {
+        match self {
+            ScenarioError::In { source, .. } => source.innermost(),
+            other => other,
+        }
+    }
+
+    fn within(what: String) -> impl FnOnce(ScenarioError) -> ScenarioError {
+        move |source| ScenarioError::In {
+            what,
+            source: Box::new(source),
+        }
+    }
+}
+
+fn positive(field: &str, value: f64) -> Result<(), ScenarioError> {
     if !(value.is_finite() && value > 0.0) {
-        bail!("{field} must be a positive number, got {value}");
+        return Err(ScenarioError::NotPositive {
+            field: field.to_string(),
+            value,
+        });
     }
     Ok(())
 }
 
-fn within(field: &str, value: f64, lo: f64, hi: f64) -> Result<()> {
-    if !(value.is_finite() && (lo..=hi).contains(&value)) {
-        bail!("{field} must be between {lo} and {hi}, got {value}");
+fn within(field: &str, value: f64, low: f64, high: f64) -> Result<(), ScenarioError> {
+    if !(value.is_finite() && (low..=high).contains(&value)) {
+        return Err(ScenarioError::OutOfRange {
+            field: field.to_string(),
+            value,
+            low,
+            high,
+        });
     }
     Ok(())
 }
 
 impl Scenario {
     /// A built-in scenario by name.
-    pub fn builtin(name: &str) -> Result<Self> {
+    pub fn builtin(name: &str) -> Result<Self, ScenarioError> {
         let Some((_, text)) = BUILTIN.iter().find(|(n, _)| *n == name) else {
             let names: Vec<&str> = BUILTIN.iter().map(|(n, _)| *n).collect();
-            bail!(
-                "no built-in scenario named '{name}'; choose one of: {}",
-                names.join(", ")
-            );
+            return Err(ScenarioError::Unknown {
+                name: name.to_string(),
+                known: names.join(", "),
+            });
         };
-        Self::from_toml(text).with_context(|| format!("built-in scenario '{name}'"))
+        Self::from_toml(text).map_err(ScenarioError::within(format!("built-in scenario '{name}'")))
     }
 
     /// Reads a built-in name, or a path to a TOML file.
-    pub fn load(name_or_path: &str) -> Result<Self> {
+    pub fn load(name_or_path: &str) -> Result<Self, ScenarioError> {
         if BUILTIN.iter().any(|(n, _)| *n == name_or_path) {
             return Self::builtin(name_or_path);
         }
@@ -116,23 +219,26 @@ impl Scenario {
         if !path.exists() {
             return Self::builtin(name_or_path);
         }
-        let text = std::fs::read_to_string(path)
-            .with_context(|| format!("cannot read scenario file {}", path.display()))
-            .failed_as(crate::failure::Failure::BadInput)?;
-        Self::from_toml(&text)
-            .with_context(|| format!("scenario file {}", path.display()))
-            .failed_as(crate::failure::Failure::BadInput)
+        let text = std::fs::read_to_string(path).map_err(|source| ScenarioError::Unreadable {
+            path: path.to_path_buf(),
+            source,
+        })?;
+        Self::from_toml(&text).map_err(ScenarioError::within(format!(
+            "scenario file {}",
+            path.display()
+        )))
     }
 
     /// Parses and validates TOML text; errors name the field.
-    pub fn from_toml(text: &str) -> Result<Self> {
-        let scenario: Scenario = toml::from_str(text).context("invalid scenario")?;
+    pub fn from_toml(text: &str) -> Result<Self, ScenarioError> {
+        let scenario: Scenario =
+            toml::from_str(text).map_err(|e| ScenarioError::Syntax(e.to_string()))?;
         scenario.validate()?;
         Ok(scenario)
     }
 
     /// Checks every number for sense; the error names the field.
-    pub fn validate(&self) -> Result<()> {
+    pub fn validate(&self) -> Result<(), ScenarioError> {
         positive("duration_h", self.duration_h)?;
         within("duration_h", self.duration_h, 0.0, 24.0 * 366.0)?;
         within("start_hour", self.start_hour, 0.0, 24.0)?;
@@ -159,16 +265,15 @@ impl Scenario {
         Ok(())
     }
 
-    fn validate_converter(&self) -> Result<()> {
+    fn validate_converter(&self) -> Result<(), ScenarioError> {
         let c = &self.converter;
         positive("converter.start_v", c.start_v)?;
         positive("converter.stop_v", c.stop_v)?;
         if c.stop_v >= c.start_v {
-            bail!(
-                "converter.stop_v ({}) must be below converter.start_v ({})",
-                c.stop_v,
-                c.start_v
-            );
+            return Err(ScenarioError::StopNotBelowStart {
+                stop_v: c.stop_v,
+                start_v: c.start_v,
+            });
         }
         match c.input {
             InputMode::Resistive { ohms } => positive("converter.input.ohms", ohms)?,
@@ -199,7 +304,7 @@ impl Scenario {
         Ok(())
     }
 
-    fn validate_load(&self) -> Result<()> {
+    fn validate_load(&self) -> Result<(), ScenarioError> {
         match self.load {
             LoadParams::SensorNode {
                 sleep_a,
@@ -224,7 +329,7 @@ impl Scenario {
         Ok(())
     }
 
-    fn validate_front_end(&self) -> Result<()> {
+    fn validate_front_end(&self) -> Result<(), ScenarioError> {
         within(
             "front_end.adc_bits",
             f64::from(self.front_end.adc_bits),
@@ -273,15 +378,18 @@ impl Scenario {
             }
         }
         if self.front_end.calibration().is_none() {
-            bail!("front_end: a divider, shunt or gain is zero or the scale overflows");
+            return Err(ScenarioError::FrontEndInvalid);
         }
         Ok(())
     }
 
     /// The configuration this scenario gives its node, checked by the node's own rules.
-    pub fn node_config(&self) -> Result<gleaner_protocol::NodeConfig> {
+    pub fn node_config(&self) -> Result<gleaner_protocol::NodeConfig, ScenarioError> {
         let mut base = gleaner_firmware::config::default_config();
-        base.calibration = self.front_end.calibration().context("front_end")?;
+        base.calibration = self
+            .front_end
+            .calibration()
+            .ok_or(ScenarioError::FrontEndInvalid)?;
         // The node is told the storage on the output and the load's own
         // supply window, unless [node] says otherwise, ...
         base.output_storage_uf = (self.converter.output_capacitance_f * 1e6).round() as u32;
@@ -299,10 +407,8 @@ impl Scenario {
             },
             output_regulated: self.converter.regulation_v.is_some(),
         };
-        let config = self.node.apply(&base).context("[node] settings")?;
-        gleaner_firmware::config::validate(&config).map_err(|reason| {
-            anyhow::anyhow!("[node] settings are refused by the node: {reason}")
-        })?;
+        let config = self.node.apply(&base).map_err(ScenarioError::Settings)?;
+        gleaner_firmware::config::validate(&config).map_err(ScenarioError::Refused)?;
         Ok(config)
     }
 
@@ -325,14 +431,18 @@ impl Scenario {
     }
 }
 
-fn validate_cell(cell: &CellParams) -> Result<()> {
+fn validate_cell(cell: &CellParams) -> Result<(), ScenarioError> {
     positive("source.capacity_mah", cell.capacity_mah)?;
     positive("source.fresh_resistance_ohm", cell.fresh_resistance_ohm)?;
     within("source.initial_depth", cell.initial_depth, 0.0, 1.2)?;
     Ok(())
 }
 
-fn validate_solar(cell: &PvCell, daylight: &DaylightParams, cell_celsius: f64) -> Result<()> {
+fn validate_solar(
+    cell: &PvCell,
+    daylight: &DaylightParams,
+    cell_celsius: f64,
+) -> Result<(), ScenarioError> {
     positive("source.cell.photocurrent_ref_a", cell.photocurrent_ref_a)?;
     positive(
         "source.cell.saturation_current_ref_a",
@@ -380,7 +490,7 @@ fn validate_solar(cell: &PvCell, daylight: &DaylightParams, cell_celsius: f64) -
     Ok(())
 }
 
-fn validate_supercap(cap: &SupercapParams) -> Result<()> {
+fn validate_supercap(cap: &SupercapParams) -> Result<(), ScenarioError> {
     positive("source.capacitance_f", cap.capacitance_f)?;
     positive("source.series_ohm", cap.series_ohm)?;
     positive("source.leakage_ohm", cap.leakage_ohm)?;
@@ -388,7 +498,7 @@ fn validate_supercap(cap: &SupercapParams) -> Result<()> {
     Ok(())
 }
 
-fn validate_teg(generator: &TegParams, pipe: &PipeParams) -> Result<()> {
+fn validate_teg(generator: &TegParams, pipe: &PipeParams) -> Result<(), ScenarioError> {
     positive(
         "source.generator.seebeck_v_per_k",
         generator.seebeck_v_per_k,
@@ -431,8 +541,19 @@ mod tests {
         let text = BUILTIN[0].1.replacen("stop_v = 0.7", "stop_v = 0.99", 1);
         let err = Scenario::from_toml(&text).unwrap_err();
         assert!(format!("{err:#}").contains("converter.stop_v"), "{err:#}");
+        assert!(
+            matches!(err, ScenarioError::StopNotBelowStart { stop_v, start_v } if stop_v == 0.99 && start_v < stop_v),
+            "{err:?}"
+        );
         let text = BUILTIN[0].1.replace("start_v = 0.9\n", "start_v = 0.6\n");
         let err = Scenario::from_toml(&text).unwrap_err();
+        assert!(
+            matches!(
+                err,
+                ScenarioError::Refused(gleaner_protocol::Refusal::HoldNotBelowStart)
+            ),
+            "{err:?}"
+        );
         assert!(
             format!("{err:#}")
                 .contains("[node] settings are refused by the node: the stop voltage"),
@@ -451,13 +572,38 @@ mod tests {
             format!("{err:#}").contains("front_end.channel_adc.input_current.bits"),
             "{err:#}"
         );
+        assert!(
+            matches!(&err, ScenarioError::OutOfRange { field, value, .. } if field.ends_with("input_current.bits") && *value == 30.0),
+            "{err:?}"
+        );
         let text = format!("{}\nbogus = 1\n", BUILTIN[0].1);
         let err = Scenario::from_toml(&text).unwrap_err();
         assert!(format!("{err:#}").contains("bogus"), "{err:#}");
-        assert!(Scenario::builtin("nope")
-            .unwrap_err()
-            .to_string()
-            .contains("greenhouse-day"));
+        assert!(matches!(err, ScenarioError::Syntax(_)), "{err:?}");
+        let err = Scenario::builtin("nope").unwrap_err();
+        assert!(err.to_string().contains("greenhouse-day"));
+        assert!(matches!(err, ScenarioError::Unknown { ref name, .. } if name == "nope"));
+        assert!(!err.in_a_file());
+    }
+
+    #[test]
+    fn a_fault_in_a_file_names_the_file_and_is_marked_as_such() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("mine.toml");
+        let text = BUILTIN[0].1.replacen("stop_v = 0.7", "stop_v = 0.99", 1);
+        std::fs::write(&path, text).unwrap();
+        let err = Scenario::load(path.to_str().unwrap()).unwrap_err();
+        assert!(err.in_a_file());
+        assert!(matches!(
+            err.innermost(),
+            ScenarioError::StopNotBelowStart { .. }
+        ));
+        let shown = format!("{:#}", anyhow::Error::new(err));
+        assert!(shown.starts_with("scenario file "), "{shown}");
+        assert!(
+            shown.contains(": converter.stop_v (0.99) must be below converter.start_v"),
+            "{shown}"
+        );
     }
 
     #[test]
