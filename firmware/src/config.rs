@@ -2,27 +2,13 @@
 
 use gleaner_protocol::{
     Calibration, Channel, ChannelCal, ConverterModel, NodeConfig, NodeName, Refusal, Thresholds,
-    MAX_SHED_LOAD_NA,
 };
 
 use crate::front_end::DEFAULT_FRONT_END;
 
-/// Shortest accepted report interval.
-pub const MIN_REPORT_INTERVAL_MS: u32 = 100;
-/// Longest accepted report interval (one hour).
-pub const MAX_REPORT_INTERVAL_MS: u32 = 3_600_000;
-/// Longest accepted debounce time.
-pub const MAX_DEBOUNCE_MS: u32 = 60_000;
-/// Longest accepted timeout or horizon (one day).
-pub const MAX_TIMEOUT_MS: u32 = 86_400_000;
-/// Largest accepted sag margin (1 V).
-pub const MAX_SAG_MARGIN_UV: u32 = 1_000_000;
-/// Largest accepted storage capacitance (1000 F).
-pub const MAX_STORAGE_UF: u32 = 1_000_000_000;
-/// Highest accepted load voltage threshold (60 V).
-pub const MAX_LOAD_UV: u32 = 60_000_000;
-/// Largest accepted channel scale: 10^9 units per count, in Q20.
-pub const MAX_SCALE_Q20: u64 = 1_000_000_000 << 20;
+/// The limits the rules below enforce, written once in the protocol crate
+/// (its refusal texts are formatted from them).
+pub use gleaner_protocol::limits::*;
 
 /// The calibration of the default front-end, worked out at compile time.
 pub const DEFAULT_CALIBRATION: Calibration = match DEFAULT_FRONT_END.calibration() {
@@ -94,7 +80,7 @@ pub fn name_is_valid(name: &str) -> bool {
 /// Checks every rule; the first broken one is returned as the refusal reason.
 pub fn validate(config: &NodeConfig) -> Result<(), Refusal> {
     let cal = &config.calibration;
-    if !(8..=24).contains(&cal.adc_bits) {
+    if !(MIN_ADC_BITS..=MAX_ADC_BITS).contains(&cal.adc_bits) {
         return Err(Refusal::AdcBitsOutOfRange);
     }
     for channel in Channel::ALL {

@@ -144,10 +144,6 @@ pub struct ConverterModel {
     pub output_regulated: bool,
 }
 
-/// Largest shed load a node accepts, nA (1 A: far above any load a
-/// harvesting node switches, so a larger value is a unit mistake).
-pub const MAX_SHED_LOAD_NA: u32 = 1_000_000_000;
-
 impl ConverterModel {
     /// Lowest MPPT fraction a node accepts (5 %; 0 says there is none).
     pub const MIN_MPPT_FRACTION_PPM: u32 = 50_000;

@@ -5,9 +5,6 @@ use serde::{Deserialize, Serialize};
 
 use crate::config::NodeConfig;
 
-/// Longest burst a node accepts, in samples.
-pub const MAX_BURST_SAMPLES: u32 = 1_000_000;
-
 /// One command from the host, tagged with an id the node echoes in its `Reply`.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
@@ -32,7 +29,7 @@ pub enum Command {
     ResetEnergy,
     /// Stream this many samples at the full sampling rate.
     StartBurst {
-        /// Number of samples, 1 to [`MAX_BURST_SAMPLES`].
+        /// Number of samples, 1 to [`crate::limits::MAX_BURST_SAMPLES`].
         samples: u32,
     },
 }

@@ -77,6 +77,7 @@ mod decoder;
 mod downlink;
 mod error;
 mod frame;
+pub mod limits;
 mod uplink;
 pub mod v1;
 pub mod v2;
@@ -86,15 +87,16 @@ mod version;
 pub use compat::{decode_uplink_any, parse_uplink_any, OLDER_MAJORS};
 pub use config::{
     Calibration, Channel, ChannelCal, ConverterModel, NodeConfig, NodeName, Thresholds,
-    MAX_SHED_LOAD_NA, NODE_NAME_LEN,
+    NODE_NAME_LEN,
 };
 pub use decoder::{Decoder, DecoderStats, FrameSplitter};
-pub use downlink::{Command, Downlink, MAX_BURST_SAMPLES};
+pub use downlink::{Command, Downlink};
 pub use error::{EncodeError, FrameError};
 pub use frame::{
     decode_frame, encode_frame, frame_crc, max_frame_len, open_frame, parse_body, Message,
     MAX_DOWNLINK_FRAME_LEN, MAX_UPLINK_FRAME_LEN, MAX_UPLINK_PAYLOAD_LEN,
 };
+pub use limits::{MAX_BURST_SAMPLES, MAX_SHED_LOAD_NA};
 pub use uplink::{
     ChannelStats, ConfigSource, ConverterState, EnergyTotals, Event, Hello, LoadCause, LoadEvent,
     Outcome, Refusal, Reply, Report, ReportFlags, Sample, SampleBlock, SlotHarvest, StateDurations,

@@ -429,23 +429,23 @@ pub enum Refusal {
     OutputThresholdsInverted,
     /// A channel's scale is zero or too large.
     ChannelScaleOutOfRange(Channel),
-    /// The ADC resolution is not between 8 and 24 bits.
+    /// The ADC resolution is outside [`crate::limits::MIN_ADC_BITS`] to [`crate::limits::MAX_ADC_BITS`].
     AdcBitsOutOfRange,
-    /// The report interval is not between 100 ms and 1 hour.
+    /// The report interval is outside [`crate::limits::MIN_REPORT_INTERVAL_MS`] to [`crate::limits::MAX_REPORT_INTERVAL_MS`].
     ReportIntervalOutOfRange,
-    /// The debounce time is longer than 60 s.
+    /// The debounce time is longer than [`crate::limits::MAX_DEBOUNCE_MS`].
     DebounceOutOfRange,
-    /// A timeout or horizon is zero or longer than a day.
+    /// A timeout or horizon is zero or longer than [`crate::limits::MAX_TIMEOUT_MS`].
     TimeoutOutOfRange,
-    /// The sag margin is larger than the hold threshold or 1 V.
+    /// The sag margin is larger than the hold threshold or [`crate::limits::MAX_SAG_MARGIN_UV`].
     SagMarginOutOfRange,
-    /// The burst length is zero or above the maximum.
+    /// The burst length is zero or above [`crate::limits::MAX_BURST_SAMPLES`].
     BurstLengthOutOfRange,
     /// A burst is already running.
     BurstInProgress,
     /// The configuration could not be written to non-volatile storage.
     StorageWriteFailed,
-    /// The storage capacitance is above 1000 F.
+    /// The storage capacitance is above [`crate::limits::MAX_STORAGE_UF`].
     StorageCapacitanceOutOfRange,
     /// The load's restart voltage is not above its minimum, or either is out of range.
     LoadThresholdsOutOfRange,
@@ -454,50 +454,73 @@ pub enum Refusal {
     /// The converter's MPPT fraction is neither 0 nor between
     /// [`crate::ConverterModel::MIN_MPPT_FRACTION_PPM`] and its maximum.
     MpptFractionOutOfRange,
-    /// The shed load is above [`crate::MAX_SHED_LOAD_NA`].
+    /// The shed load is above [`crate::limits::MAX_SHED_LOAD_NA`].
     ShedLoadOutOfRange,
 }
 
-impl Refusal {
-    /// A one-line explanation for people.
-    pub const fn describe(self) -> &'static str {
-        match self {
-            Refusal::HoldNotBelowStart => "the stop voltage must be below the start voltage",
-            Refusal::OutputThresholdsInverted => {
-                "the output-lost voltage must be below the output-good voltage"
-            }
-            Refusal::ChannelScaleOutOfRange(_) => "a channel scale is zero or too large",
-            Refusal::AdcBitsOutOfRange => "ADC resolution must be 8 to 24 bits",
-            Refusal::ReportIntervalOutOfRange => "report interval must be 100 ms to 1 hour",
-            Refusal::DebounceOutOfRange => "debounce time must be at most 60 s",
-            Refusal::TimeoutOutOfRange => "timeouts and horizons must be 1 ms to 1 day",
-            Refusal::SagMarginOutOfRange => {
-                "the warning band must be at most the stop voltage and at most 1 V"
-            }
-            Refusal::BurstLengthOutOfRange => "burst length must be 1 to 1,000,000 samples",
-            Refusal::BurstInProgress => "a burst is already running",
-            Refusal::StorageWriteFailed => "the node could not store the configuration",
-            Refusal::StorageCapacitanceOutOfRange => "storage capacitance must be at most 1000 F",
-            Refusal::LoadThresholdsOutOfRange => {
-                "the load's restart voltage must be above its minimum voltage, both at most 60 V"
-            }
-            Refusal::NodeNameInvalid => {
-                "the node name may hold only letters, digits, spaces and - _ . : (no leading or trailing space)"
-            }
-            Refusal::MpptFractionOutOfRange => {
-                "the converter's MPPT fraction must be 0 (none) or within the accepted share of open circuit"
-            }
-            Refusal::ShedLoadOutOfRange => "the shed load's current is above the accepted maximum",
-        }
-    }
-}
-
 impl core::fmt::Display for Refusal {
+    /// A one-line explanation for people; every number comes from
+    /// [`crate::limits`] or [`crate::ConverterModel`].
     fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        use crate::limits::*;
         match self {
-            Refusal::ChannelScaleOutOfRange(channel) => {
-                write!(f, "{} (channel {})", self.describe(), channel.name())
+            Refusal::HoldNotBelowStart => {
+                f.write_str("the stop voltage must be below the start voltage")
             }
+            Refusal::OutputThresholdsInverted => {
+                f.write_str("the output-lost voltage must be below the output-good voltage")
+            }
+            Refusal::ChannelScaleOutOfRange(channel) => write!(
+                f,
+                "a channel scale is zero or above {} units per count (channel {})",
+                MAX_SCALE_Q20 >> 20,
+                channel.name()
+            ),
+            Refusal::AdcBitsOutOfRange => write!(
+                f,
+                "ADC resolution must be {MIN_ADC_BITS} to {MAX_ADC_BITS} bits"
+            ),
+            Refusal::ReportIntervalOutOfRange => write!(
+                f,
+                "report interval must be {MIN_REPORT_INTERVAL_MS} ms to {} s",
+                MAX_REPORT_INTERVAL_MS / 1000
+            ),
+            Refusal::DebounceOutOfRange => write!(
+                f,
+                "debounce time must be at most {} s",
+                MAX_DEBOUNCE_MS / 1000
+            ),
+            Refusal::TimeoutOutOfRange => write!(
+                f,
+                "timeouts and horizons must be 1 ms to {} s",
+                MAX_TIMEOUT_MS / 1000
+            ),
+            Refusal::SagMarginOutOfRange => write!(
+                f,
+                "the warning band must be at most the stop voltage and at most {} mV",
+                MAX_SAG_MARGIN_UV / 1000
+            ),
+            Refusal::BurstLengthOutOfRange => write!(
+                f,
+                "burst length must be 1 to {MAX_BURST_SAMPLES} samples"
+            ),
+            Refusal::BurstInProgress => f.write_str("a burst is already running"),
+            Refusal::StorageWriteFailed => {
+                f.write_str("the node could not store the configuration")
+            }
+            Refusal::StorageCapacitanceOutOfRange => write!(
+                f,
+                "storage capacitance must be at most {} F",
+                MAX_STORAGE_UF / 1_000_000
+            ),
+            Refusal::LoadThresholdsOutOfRange => write!(
+                f,
+                "the load's restart voltage must be above its minimum voltage, both at most {} V",
+                MAX_LOAD_UV / 1_000_000
+            ),
+            Refusal::NodeNameInvalid => f.write_str(
+                "the node name may hold only letters, digits, spaces and - _ . : (no leading or trailing space)",
+            ),
             Refusal::MpptFractionOutOfRange => write!(
                 f,
                 "the converter's MPPT fraction must be 0 (none) or {} % to {} % of open circuit",
@@ -507,9 +530,8 @@ impl core::fmt::Display for Refusal {
             Refusal::ShedLoadOutOfRange => write!(
                 f,
                 "the shed load's current must be at most {} mA",
-                crate::MAX_SHED_LOAD_NA / 1_000_000
+                MAX_SHED_LOAD_NA / 1_000_000
             ),
-            other => f.write_str(other.describe()),
         }
     }
 }

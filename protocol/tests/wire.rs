@@ -651,3 +651,68 @@ fn a_refusal_of_the_mppt_fraction_names_the_accepted_range() {
         "the shed load's current must be at most 1000 mA"
     );
 }
+
+#[test]
+fn every_refusal_with_a_limit_states_the_limit_the_node_checks() {
+    use gleaner_protocol::limits::*;
+    // Each text, and the number in it, from the constant (not restated here).
+    let cases = [
+        (Refusal::AdcBitsOutOfRange, MAX_ADC_BITS.to_string()),
+        (Refusal::AdcBitsOutOfRange, MIN_ADC_BITS.to_string()),
+        (
+            Refusal::ReportIntervalOutOfRange,
+            format!("{MIN_REPORT_INTERVAL_MS} ms"),
+        ),
+        (
+            Refusal::ReportIntervalOutOfRange,
+            format!("{} s", MAX_REPORT_INTERVAL_MS / 1000),
+        ),
+        (
+            Refusal::DebounceOutOfRange,
+            format!("{} s", MAX_DEBOUNCE_MS / 1000),
+        ),
+        (
+            Refusal::TimeoutOutOfRange,
+            format!("{} s", MAX_TIMEOUT_MS / 1000),
+        ),
+        (
+            Refusal::SagMarginOutOfRange,
+            format!("{} mV", MAX_SAG_MARGIN_UV / 1000),
+        ),
+        (
+            Refusal::BurstLengthOutOfRange,
+            format!("{MAX_BURST_SAMPLES} samples"),
+        ),
+        (
+            Refusal::StorageCapacitanceOutOfRange,
+            format!("{} F", MAX_STORAGE_UF / 1_000_000),
+        ),
+        (
+            Refusal::LoadThresholdsOutOfRange,
+            format!("{} V", MAX_LOAD_UV / 1_000_000),
+        ),
+        (
+            Refusal::ChannelScaleOutOfRange(Channel::OutputCurrent),
+            format!(
+                "{} units per count (channel output_na)",
+                MAX_SCALE_Q20 >> 20
+            ),
+        ),
+    ];
+    for (refusal, limit) in cases {
+        let text = refusal.to_string();
+        assert!(
+            text.contains(&limit),
+            "{refusal:?}: {text:?} lacks {limit:?}"
+        );
+    }
+    // Worked by hand from the present limits (1 hour, 1 day, 1 V).
+    assert_eq!(
+        Refusal::ReportIntervalOutOfRange.to_string(),
+        "report interval must be 100 ms to 3600 s"
+    );
+    assert_eq!(
+        Refusal::TimeoutOutOfRange.to_string(),
+        "timeouts and horizons must be 1 ms to 86400 s"
+    );
+}

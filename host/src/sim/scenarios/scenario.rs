@@ -330,11 +330,12 @@ impl Scenario {
     }
 
     fn validate_front_end(&self) -> Result<(), ScenarioError> {
+        use gleaner_protocol::limits::{MAX_ADC_BITS, MIN_ADC_BITS};
         within(
             "front_end.adc_bits",
             f64::from(self.front_end.adc_bits),
-            8.0,
-            24.0,
+            f64::from(MIN_ADC_BITS),
+            f64::from(MAX_ADC_BITS),
         )?;
         positive("front_end.reference_v", self.front_end.reference_v)?;
         within("front_end.noise_lsb", self.front_end.noise_lsb, 0.0, 1000.0)?;
