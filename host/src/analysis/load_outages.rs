@@ -4,6 +4,7 @@
 use gleaner_protocol::{LoadCause, LoadEvent};
 use serde::Serialize;
 
+use super::spans::Spans;
 use super::text::duration;
 
 /// One time the load was without power.
@@ -34,8 +35,7 @@ pub struct LoadOutage {
 /// Collects load outages from load events.
 #[derive(Debug, Default)]
 pub struct LoadOutages {
-    open: Option<LoadOutage>,
-    done: Vec<LoadOutage>,
+    outages: Spans<LoadOutage>,
 }
 
 /// The words of a cause chain.
@@ -73,7 +73,7 @@ impl LoadOutages {
             self.close_at(t_s, false);
             return;
         }
-        if self.open.is_some() {
+        if self.outages.is_open() {
             return;
         }
         let stopped_s = match e.cause {
@@ -82,7 +82,7 @@ impl LoadOutages {
             }
             _ => None,
         };
-        self.open = Some(LoadOutage {
+        self.outages.open(LoadOutage {
             start_s: t_s,
             end_s: t_s,
             duration_s: 0.0,
@@ -98,18 +98,12 @@ impl LoadOutages {
 
     /// Closes an open outage at `t_s` (a reboot, or the end of the log).
     pub fn close_at(&mut self, t_s: f64, ongoing: bool) {
-        if let Some(mut outage) = self.open.take() {
-            outage.end_s = t_s.max(outage.start_s);
-            outage.duration_s = outage.end_s - outage.start_s;
-            outage.ongoing = ongoing;
-            self.done.push(outage);
-        }
+        self.outages.close_at(t_s, ongoing);
     }
 
     /// Every outage, the open one closed at `end_s` as ongoing.
-    pub fn finish(mut self, end_s: f64) -> Vec<LoadOutage> {
-        self.close_at(end_s, true);
-        self.done
+    pub fn finish(self, end_s: f64) -> Vec<LoadOutage> {
+        self.outages.finish(end_s)
     }
 }
 

@@ -22,6 +22,7 @@ pub mod outages;
 pub mod report;
 pub mod series;
 pub mod sizing;
+pub mod spans;
 pub mod states;
 #[cfg(test)]
 mod testing;

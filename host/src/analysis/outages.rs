@@ -6,6 +6,7 @@
 use gleaner_protocol::{ConverterState, Event};
 
 use super::report::{Outage, OutageCause, Transition};
+use super::spans::Spans;
 
 /// Transitions listed before the rest are only counted.
 pub const MAX_TRANSITIONS: usize = 10_000;
@@ -14,8 +15,7 @@ pub const MAX_TRANSITIONS: usize = 10_000;
 #[derive(Debug, Clone, Default)]
 pub struct ConverterOutages {
     state: Option<ConverterState>,
-    open: Option<Outage>,
-    done: Vec<Outage>,
+    outages: Spans<Outage>,
     transitions: Vec<Transition>,
     not_listed: u64,
     /// The last report's mean input and output voltage, V.
@@ -64,12 +64,7 @@ impl ConverterOutages {
     /// The node rebooted (or the log ended) at `t_s`: an open outage ends
     /// there, and the next state is learned afresh.
     pub fn close_at(&mut self, t_s: f64, ongoing: bool) {
-        if let Some(mut outage) = self.open.take() {
-            outage.end_s = t_s.max(outage.start_s);
-            outage.duration_s = outage.end_s - outage.start_s;
-            outage.ongoing = ongoing;
-            self.done.push(outage);
-        }
+        self.outages.close_at(t_s, ongoing);
     }
 
     /// Forgets the state (a new boot starts from its first message).
@@ -88,8 +83,8 @@ impl ConverterOutages {
         } else {
             self.not_listed += 1;
         }
-        if to.is_outage() && self.open.is_none() {
-            self.open = Some(Outage {
+        if to.is_outage() && !self.outages.is_open() {
+            self.outages.open(Outage {
                 start_s: t_s,
                 end_s: t_s,
                 duration_s: 0.0,
@@ -110,10 +105,9 @@ impl ConverterOutages {
     }
 
     /// Ends the run at `end_s` (an outage still open is ongoing).
-    pub fn finish(mut self, end_s: f64) -> OutageList {
-        self.close_at(end_s, true);
+    pub fn finish(self, end_s: f64) -> OutageList {
         OutageList {
-            outages: self.done,
+            outages: self.outages.finish(end_s),
             transitions: self.transitions,
             not_listed: self.not_listed,
         }
