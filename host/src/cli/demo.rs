@@ -57,39 +57,8 @@ impl Cmd {
             Ok(page) => crate::files::write_atomic(&html_path, page.as_bytes())?,
             Err(e) => eprintln!("warning: the HTML report could not be drawn: {e}"),
         }
-        say!()?;
-        say!("SIMULATOR GROUND TRUTH (what really happened)")?;
-        say!(
-            "  drawn {}, delivered {}, storage change {}, efficiency {}",
-            text::energy(truth.drawn_j),
-            text::energy(truth.delivered_j),
-            text::energy(truth.storage_now_j - truth.storage_start_j),
-            truth
-                .efficiency()
-                .map_or("-".into(), |e| format!("{:.1} %", e * 100.0))
-        )?;
-        if truth.drawn_j > 0.0 {
-            say!(
-                "  the node's drawn energy is within {:.2} % of the truth, delivered within {:.2} %",
-                (report.energy.drawn_j - truth.drawn_j).abs() / truth.drawn_j * 100.0,
-                (report.energy.delivered_j - truth.delivered_j).abs() / truth.delivered_j.max(1e-12) * 100.0
-            )?;
-        }
-        say!()?;
-        say!("Log:  {}", log_path.display())?;
-        say!(
-            "Page: {} (open it in a browser; it needs no network)",
-            html_path.display()
-        )?;
-        say!(
-            "Next: gleaner report {}       (the same report again, or --json)",
-            log_path.display()
-        )?;
-        say!(
-            "      gleaner watch --replay {}   (watch it again)",
-            log_path.display()
-        )?;
-        say!("      gleaner demo --scenario crate-beacon   (other scenarios: gleaner sim list)")?;
+        say_truth(&report, &truth)?;
+        say_next(&log_path, &html_path)?;
         Ok(())
     }
 
@@ -187,4 +156,48 @@ impl Cmd {
         progress.finish_and_clear();
         Ok(truth)
     }
+}
+
+/// The simulator's ground truth beside what the node metered.
+fn say_truth(report: &crate::analysis::RunReport, truth: &crate::sim::GroundTruth) -> Result<()> {
+    say!()?;
+    say!("SIMULATOR GROUND TRUTH (what really happened)")?;
+    say!(
+        "  drawn {}, delivered {}, storage change {}, efficiency {}",
+        text::energy(truth.drawn_j),
+        text::energy(truth.delivered_j),
+        text::energy(truth.storage_now_j - truth.storage_start_j),
+        truth
+            .efficiency()
+            .map_or("-".into(), |e| format!("{:.1} %", e * 100.0))
+    )?;
+    if truth.drawn_j > 0.0 {
+        say!(
+            "  the node's drawn energy is within {:.2} % of the truth, delivered within {:.2} %",
+            (report.energy.drawn_j - truth.drawn_j).abs() / truth.drawn_j * 100.0,
+            (report.energy.delivered_j - truth.delivered_j).abs() / truth.delivered_j.max(1e-12)
+                * 100.0
+        )?;
+    }
+    Ok(())
+}
+
+/// Where the log and page are, and what to run next.
+fn say_next(log_path: &std::path::Path, html_path: &std::path::Path) -> Result<()> {
+    say!()?;
+    say!("Log:  {}", log_path.display())?;
+    say!(
+        "Page: {} (open it in a browser; it needs no network)",
+        html_path.display()
+    )?;
+    say!(
+        "Next: gleaner report {}       (the same report again, or --json)",
+        log_path.display()
+    )?;
+    say!(
+        "      gleaner watch --replay {}   (watch it again)",
+        log_path.display()
+    )?;
+    say!("      gleaner demo --scenario crate-beacon   (other scenarios: gleaner sim list)")?;
+    Ok(())
 }

@@ -271,7 +271,6 @@ fn burst(session: &mut Session, samples: u32, out: &std::path::Path) -> Result<(
 
 /// Prints a `Hello` for people.
 pub fn print_hello(h: &Hello) -> std::io::Result<()> {
-    let t = &h.config.thresholds;
     say!(
         "node {:016x}{}",
         h.node_id,
@@ -289,7 +288,19 @@ pub fn print_hello(h: &Hello) -> std::io::Result<()> {
         h.sample_period_us
     )?;
     say!("configuration from {:?}", h.config_source)?;
-    say!("  report interval   {} ms", h.config.report_interval_ms)?;
+    print_config(&h.config)?;
+    say!(
+        "totals since reset: drawn {} nJ, delivered {} nJ, stored {} nJ",
+        h.totals.drawn_nj,
+        h.totals.delivered_nj,
+        h.totals.stored_nj
+    )
+}
+
+/// Prints a configuration's settings, one group per line.
+fn print_config(config: &gleaner_protocol::NodeConfig) -> std::io::Result<()> {
+    let t = &config.thresholds;
+    say!("  report interval   {} ms", config.report_interval_ms)?;
     say!(
         "  start / stop      {:.3} V / {:.3} V (warning band {:.3} V)",
         f64::from(t.start_uv) / 1e6,
@@ -310,14 +321,14 @@ pub fn print_hello(h: &Hello) -> std::io::Result<()> {
     )?;
     say!(
         "  output storage    {} µF, load restored after {} ms, shed load {}",
-        h.config.output_storage_uf,
-        h.config.load_restore_ms,
-        match h.config.shed_load_na {
+        config.output_storage_uf,
+        config.load_restore_ms,
+        match config.shed_load_na {
             0 => "not stated".to_owned(),
             na => format!("{:.1} µA", f64::from(na) / 1e3),
         }
     )?;
-    let converter = &h.config.converter;
+    let converter = &config.converter;
     say!(
         "  converter         {}",
         crate::analysis::converter_words(
@@ -325,10 +336,5 @@ pub fn print_hello(h: &Hello) -> std::io::Result<()> {
             converter.output_regulated
         )
     )?;
-    say!(
-        "totals since reset: drawn {} nJ, delivered {} nJ, stored {} nJ",
-        h.totals.drawn_nj,
-        h.totals.delivered_nj,
-        h.totals.stored_nj
-    )
+    Ok(())
 }

@@ -319,13 +319,7 @@ impl Cmd {
                     .failed_as(Failure::Usage);
                 }
                 write_status(&board, &dir);
-                let deadline = Instant::now() + RESCAN;
-                let over = || limit.is_some_and(|l| started.elapsed() >= l);
-                while Instant::now() < deadline && !stop.load(Ordering::Relaxed) && !over() {
-                    std::thread::sleep(Duration::from_millis(100));
-                }
-                if stop.load(Ordering::Relaxed) || over() {
-                    stop.store(true, Ordering::Relaxed);
+                if until_rescan(&stop, started, limit) {
                     return Ok(());
                 }
             }
@@ -498,4 +492,20 @@ fn say_how_each_ended(ended: Vec<(String, PathBuf, Result<LinkStats>)>) -> Resul
         .failed_as(Failure::PortUnavailable);
     }
     Ok(())
+}
+
+/// Waits until the next look for new ports ([`RESCAN`]); true (with `stop`
+/// set, so every port's thread ends) when the recording is over: stopped,
+/// or `limit` after `started`.
+fn until_rescan(stop: &AtomicBool, started: Instant, limit: Option<Duration>) -> bool {
+    let deadline = Instant::now() + RESCAN;
+    let over = || limit.is_some_and(|l| started.elapsed() >= l);
+    while Instant::now() < deadline && !stop.load(Ordering::Relaxed) && !over() {
+        std::thread::sleep(Duration::from_millis(100));
+    }
+    if stop.load(Ordering::Relaxed) || over() {
+        stop.store(true, Ordering::Relaxed);
+        return true;
+    }
+    false
 }

@@ -179,40 +179,28 @@ impl Converter {
         shed: bool,
         powered: bool,
     ) -> StepOutcome {
+        let load = LoadDuring {
+            load,
+            t_s: t_s + dt_s,
+            dt_s,
+            shed,
+            powered,
+        };
         let (mut v_in, mut i_in, off) = self.input_side(t_s, source);
         let p_in = v_in * i_in;
         // Efficiency at the available output power (one fixed-point pass).
         let eta = self.efficiency(v_in, self.efficiency(v_in, p_in) * p_in);
         let mut p_out = eta * p_in;
-
-        // Output node, backward Euler: C (v - v0) / dt = P / max(v, vin) - I_load(v).
-        let c = self.params.output_capacitance_f;
         let v0 = self.output_v;
-        let t_next = t_s + dt_s;
-        let balance = |v: f64, p: f64| {
-            let supply = if p > 0.0 {
-                p / v.max(v_in).max(0.05)
-            } else {
-                0.0
-            };
-            c * (v - v0) / dt_s - supply + load.current_at(v, t_next, dt_s, shed, powered)
-        };
-        let mut v_out = bisect(0.0, v0.max(v_in).max(1.0) * 4.0 + 10.0, |v| {
-            balance(v, p_out)
-        });
-        if let Some(v_reg) = self.params.regulation_v {
-            if v_out > v_reg {
-                v_out = v_reg;
-                let needed = v_reg
-                    * (c * (v_reg - v0) / dt_s
-                        + load.current_at(v_reg, t_next, dt_s, shed, powered));
-                p_out = needed.max(0.0);
-                // Throttle the input to what the output needs.
-                let p_in_needed = if eta > 0.0 { p_out / eta } else { 0.0 };
-                if p_in_needed < p_in && i_in > 0.0 {
-                    v_in = source.voltage_for_power(v_in, p_in_needed);
-                    i_in = source.current_at(v_in).max(0.0);
-                }
+        let mut v_out = self.solve_output(v_in, p_out, &load);
+        if let Some(v_reg) = self.params.regulation_v.filter(|&v_reg| v_out > v_reg) {
+            v_out = v_reg;
+            p_out = self.power_to_hold(v_reg, &load);
+            // Throttle the input to what the output needs.
+            let p_in_needed = if eta > 0.0 { p_out / eta } else { 0.0 };
+            if p_in_needed < p_in && i_in > 0.0 {
+                v_in = source.voltage_for_power(v_in, p_in_needed);
+                i_in = source.current_at(v_in).max(0.0);
             }
         }
         self.output_v = v_out.max(0.0);
@@ -223,9 +211,9 @@ impl Converter {
         } else {
             0.0
         };
-        let into_storage = c * (self.output_v - v0) / dt_s;
+        let into_storage = self.params.output_capacitance_f * (self.output_v - v0) / dt_s;
         let load_a = load
-            .current_at(self.output_v, t_next, dt_s, shed, powered)
+            .current_at(self.output_v)
             .min((supplied - into_storage).max(0.0));
         StepOutcome {
             input_v: v_in,
@@ -235,6 +223,47 @@ impl Converter {
             converted_w: p_out,
             off,
         }
+    }
+
+    /// The output voltage after one step delivering `p_out` from an input at
+    /// `v_in`, by backward Euler on the output node:
+    /// C (v - v0) / dt = P / max(v, vin) - I_load(v).
+    fn solve_output(&self, v_in: f64, p_out: f64, load: &LoadDuring) -> f64 {
+        let c = self.params.output_capacitance_f;
+        let v0 = self.output_v;
+        let balance = |v: f64| {
+            let supply = if p_out > 0.0 {
+                p_out / v.max(v_in).max(0.05)
+            } else {
+                0.0
+            };
+            c * (v - v0) / load.dt_s - supply + load.current_at(v)
+        };
+        bisect(0.0, v0.max(v_in).max(1.0) * 4.0 + 10.0, balance)
+    }
+
+    /// The output power that holds the output at `v_reg` through one step.
+    fn power_to_hold(&self, v_reg: f64, load: &LoadDuring) -> f64 {
+        let c = self.params.output_capacitance_f;
+        let needed = v_reg * (c * (v_reg - self.output_v) / load.dt_s + load.current_at(v_reg));
+        needed.max(0.0)
+    }
+}
+
+/// The load as the output sees it during one step (at the step's end).
+struct LoadDuring<'a> {
+    load: &'a LoadParams,
+    t_s: f64,
+    dt_s: f64,
+    shed: bool,
+    powered: bool,
+}
+
+impl LoadDuring<'_> {
+    /// The load's current at output voltage `v`.
+    fn current_at(&self, v: f64) -> f64 {
+        self.load
+            .current_at(v, self.t_s, self.dt_s, self.shed, self.powered)
     }
 }
 
