@@ -57,6 +57,51 @@ fn range(values: impl Iterator<Item = f64>) -> (f64, f64) {
 /// A line of a time plot: legend, colour, value of a point.
 pub type LineSpec<'a> = (&'a str, RGBColor, fn(&Point) -> f64);
 
+/// The drawing area of one plot.
+type Area<'a> = DrawingArea<SVGBackend<'a>, plotters::coord::Shift>;
+
+/// What a plot's drawing returns.
+type Painted = Result<(), Box<dyn std::error::Error>>;
+
+/// One plot as SVG text: a white page `height` tall, painted by `paint`.
+fn svg(height: u32, paint: impl FnOnce(&Area) -> Painted) -> Drawn {
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (WIDTH, height)).into_drawing_area();
+        root.fill(&WHITE)?;
+        paint(&root)?;
+        root.present()?;
+    }
+    Ok(svg)
+}
+
+/// A chart with the page's caption, margin and axis areas (`y_label_width`
+/// for the labels on the left).
+fn chart_on<'a, 'b>(
+    root: &'a Area<'b>,
+    title: &str,
+    y_label_width: u32,
+) -> ChartBuilder<'a, 'b, SVGBackend<'b>> {
+    let mut builder = ChartBuilder::on(root);
+    builder
+        .caption(title, ("sans-serif", 18))
+        .margin(10)
+        .x_label_area_size(35)
+        .y_label_area_size(y_label_width);
+    builder
+}
+
+/// The legend box of the series drawn with labels.
+fn legend<'a, DB: DrawingBackend + 'a, CT: CoordTranslate>(
+    chart: &mut ChartContext<'a, DB, CT>,
+) -> Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
+    chart
+        .configure_series_labels()
+        .background_style(WHITE.mix(0.8))
+        .border_style(BLACK)
+        .draw()
+}
+
 /// Lines over time (hours from the start), optionally on state bands.
 pub fn time_plot(
     r: &RunReport,
@@ -69,16 +114,8 @@ pub fn time_plot(
     let t0 = pts.first().map_or(0.0, |p| p.t_s);
     let (x0, x1) = range(pts.iter().map(|p| hours(p.t_s, t0)));
     let (y0, y1) = range(lines.iter().flat_map(|(_, _, f)| pts.iter().map(f)));
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, (WIDTH, HEIGHT)).into_drawing_area();
-        root.fill(&WHITE)?;
-        let mut chart = ChartBuilder::on(&root)
-            .caption(title, ("sans-serif", 18))
-            .margin(10)
-            .x_label_area_size(35)
-            .y_label_area_size(60)
-            .build_cartesian_2d(x0..x1, y0..y1)?;
+    svg(HEIGHT, |root| {
+        let mut chart = chart_on(root, title, 60).build_cartesian_2d(x0..x1, y0..y1)?;
         chart
             .configure_mesh()
             .x_desc("hours from start")
@@ -104,14 +141,9 @@ pub fn time_plot(
                     PathElement::new(vec![(x, y), (x + 18, y)], colour.stroke_width(2))
                 });
         }
-        chart
-            .configure_series_labels()
-            .background_style(WHITE.mix(0.8))
-            .border_style(BLACK)
-            .draw()?;
-        root.present()?;
-    }
-    Ok(svg)
+        legend(&mut chart)?;
+        Ok(())
+    })
 }
 
 /// One row per state, a bar wherever the converter was in it.
@@ -120,16 +152,8 @@ pub fn state_timeline(r: &RunReport, title: &str) -> Drawn {
     let t0 = pts.first().map_or(0.0, |p| p.t_s);
     let (x0, x1) = range(pts.iter().map(|p| hours(p.t_s, t0)));
     let rows = ConverterState::ALL.len() as f64;
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, (WIDTH, 220)).into_drawing_area();
-        root.fill(&WHITE)?;
-        let mut chart = ChartBuilder::on(&root)
-            .caption(title, ("sans-serif", 18))
-            .margin(10)
-            .x_label_area_size(35)
-            .y_label_area_size(90)
-            .build_cartesian_2d(x0..x1, 0.0..rows)?;
+    svg(220, |root| {
+        let mut chart = chart_on(root, title, 90).build_cartesian_2d(x0..x1, 0.0..rows)?;
         chart
             .configure_mesh()
             .disable_y_mesh()
@@ -154,9 +178,8 @@ pub fn state_timeline(r: &RunReport, title: &str) -> Drawn {
                 state_colour(w[0].state).filled(),
             )
         }))?;
-        root.present()?;
-    }
-    Ok(svg)
+        Ok(())
+    })
 }
 
 /// Energy drawn and delivered per day as paired bars, with the storage change.
@@ -169,15 +192,8 @@ pub fn daily_budget(r: &RunReport, title: &str) -> Drawn {
         .max(1e-9)
         * 1.1;
     let bottom = days.iter().map(|d| d.stored_j).fold(0.0f64, f64::min) * 1.1;
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, (WIDTH, HEIGHT)).into_drawing_area();
-        root.fill(&WHITE)?;
-        let mut chart = ChartBuilder::on(&root)
-            .caption(title, ("sans-serif", 18))
-            .margin(10)
-            .x_label_area_size(35)
-            .y_label_area_size(60)
+    svg(HEIGHT, |root| {
+        let mut chart = chart_on(root, title, 60)
             .build_cartesian_2d(0.0..(days.len().max(1) as f64), bottom..top)?;
         chart
             .configure_mesh()
@@ -203,14 +219,9 @@ pub fn daily_budget(r: &RunReport, title: &str) -> Drawn {
                     Rectangle::new([(x, y - 5), (x + 12, y + 5)], colour.filled())
                 });
         }
-        chart
-            .configure_series_labels()
-            .background_style(WHITE.mix(0.8))
-            .border_style(BLACK)
-            .draw()?;
-        root.present()?;
-    }
-    Ok(svg)
+        legend(&mut chart)?;
+        Ok(())
+    })
 }
 
 /// Efficiency (line, left axis) and hours spent converting (bars, right
@@ -222,15 +233,9 @@ pub fn efficiency_by_input(r: &RunReport, title: &str) -> Drawn {
         most_hours,
         points,
     } = EfficiencyPlot::of(r);
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, (WIDTH, HEIGHT)).into_drawing_area();
-        root.fill(&WHITE)?;
-        let mut chart = ChartBuilder::on(&root)
-            .caption(title, ("sans-serif", 18))
-            .margin(10)
-            .x_label_area_size(35)
-            .y_label_area_size(60)
+    let grey = RGBColor(180, 180, 180);
+    svg(HEIGHT, |root| {
+        let mut chart = chart_on(root, title, 60)
             .right_y_label_area_size(60)
             .build_cartesian_2d(x0..x1, 0.0..100.0)?
             .set_secondary_coord(x0..x1, 0.0..most_hours);
@@ -247,16 +252,11 @@ pub fn efficiency_by_input(r: &RunReport, title: &str) -> Drawn {
             .draw_secondary_series(bins.iter().map(|b| {
                 Rectangle::new(
                     [(b.input_v_low, 0.0), (b.input_v_high, b.seconds / 3600.0)],
-                    RGBColor(180, 180, 180).mix(0.5).filled(),
+                    grey.mix(0.5).filled(),
                 )
             }))?
             .label("hours in the bin")
-            .legend(|(x, y)| {
-                Rectangle::new(
-                    [(x, y - 5), (x + 12, y + 5)],
-                    RGBColor(180, 180, 180).filled(),
-                )
-            });
+            .legend(move |(x, y)| Rectangle::new([(x, y - 5), (x + 12, y + 5)], grey.filled()));
         chart
             .draw_series(LineSeries::new(
                 points.iter().copied(),
@@ -269,14 +269,9 @@ pub fn efficiency_by_input(r: &RunReport, title: &str) -> Drawn {
                 .iter()
                 .map(|&(x, y)| Circle::new((x, y), 3, BLUE.filled())),
         )?;
-        chart
-            .configure_series_labels()
-            .background_style(WHITE.mix(0.8))
-            .border_style(BLACK)
-            .draw()?;
-        root.present()?;
-    }
-    Ok(svg)
+        legend(&mut chart)?;
+        Ok(())
+    })
 }
 
 /// What the efficiency plot draws: the bins with time in them, the voltage
