@@ -10,7 +10,7 @@ use std::fmt::Write;
 use super::text::{duration, energy, power, Section};
 use super::RunReport;
 
-pub use plots::STATE_COLOURS;
+pub use plots::state_colour;
 
 /// Titles of the plots, in page order.
 pub const PLOT_TITLES: [&str; 6] = [
@@ -201,10 +201,8 @@ fn boots(page: &mut String, r: &RunReport) {
 /// The colours of the state bands.
 fn state_legend(page: &mut String) {
     page.push_str("<p class=\"legend\">");
-    for (state, colour) in gleaner_protocol::ConverterState::ALL
-        .iter()
-        .zip(STATE_COLOURS)
-    {
+    for state in gleaner_protocol::ConverterState::ALL {
+        let colour = state_colour(state);
         let _ = write!(
             page,
             "<span style=\"background:rgb({},{},{})\">{}</span>",

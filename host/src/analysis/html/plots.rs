@@ -15,22 +15,26 @@ pub type Drawn = Result<String, Box<dyn std::error::Error>>;
 const WIDTH: u32 = 900;
 const HEIGHT: u32 = 320;
 
-/// Colours of the states, in wire order (one per [`ConverterState::ALL`]).
-pub const STATE_COLOURS: [RGBColor; ConverterState::ALL.len()] = [
-    RGBColor(200, 200, 200), // idle
-    RGBColor(170, 200, 240), // cold start
-    RGBColor(190, 235, 190), // harvesting
-    RGBColor(250, 225, 150), // sagging
-    RGBColor(245, 170, 170), // cut off
-    RGBColor(210, 160, 230), // stalled
-];
+/// The colour of a state's band and legend.
+pub fn state_colour(state: ConverterState) -> RGBColor {
+    match state {
+        ConverterState::Idle => RGBColor(200, 200, 200),
+        ConverterState::ColdStart => RGBColor(170, 200, 240),
+        ConverterState::Harvesting => RGBColor(190, 235, 190),
+        ConverterState::Sagging => RGBColor(250, 225, 150),
+        ConverterState::CutOff => RGBColor(245, 170, 170),
+        ConverterState::Stalled => RGBColor(210, 160, 230),
+    }
+}
 
-/// The colour of a state given by its wire index (grey for an unknown one).
-fn state_colour(index: u8) -> RGBColor {
-    STATE_COLOURS
+/// The colour of a state given by its wire index (idle's grey for an
+/// unknown one).
+fn band_colour(index: u8) -> RGBColor {
+    ConverterState::ALL
         .get(usize::from(index))
-        .copied()
-        .unwrap_or(RGBColor(200, 200, 200))
+        .map_or(state_colour(ConverterState::Idle), |&state| {
+            state_colour(state)
+        })
 }
 
 fn hours(t: f64, t0: f64) -> f64 {
@@ -125,7 +129,7 @@ pub fn time_plot(
             chart.draw_series(pts.windows(2).map(|w| {
                 Rectangle::new(
                     [(hours(w[0].t_s, t0), y0), (hours(w[1].t_s, t0), y1)],
-                    state_colour(w[0].state).mix(0.5).filled(),
+                    band_colour(w[0].state).mix(0.5).filled(),
                 )
             }))?;
         }
@@ -175,7 +179,7 @@ pub fn state_timeline(r: &RunReport, title: &str) -> Drawn {
                     (hours(w[0].t_s, t0), row + 0.15),
                     (hours(w[1].t_s, t0), row + 0.85),
                 ],
-                state_colour(w[0].state).filled(),
+                band_colour(w[0].state).filled(),
             )
         }))?;
         Ok(())
