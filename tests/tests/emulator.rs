@@ -77,8 +77,9 @@ fn wait(child: &mut Child, limit: Duration) -> bool {
     false
 }
 
-/// Stack the emulated node may use, our own budget: with its 8 bytes of
-/// static RAM it then fits beside a radio stack on parts with 24 KiB of RAM.
+/// Stack the emulated node may use, our own budget: with its static RAM
+/// (the executor's task, which holds the `Node`, about 4 KiB) it then fits
+/// beside a radio stack on parts with 24 KiB of RAM.
 const STACK_BUDGET: usize = 10 * 1024;
 
 /// Runs the node to its end with the UART into a file; returns the bytes and

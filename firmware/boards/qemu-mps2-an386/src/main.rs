@@ -1,23 +1,26 @@
-//! The Gleaner node on an emulated Cortex-M4F (QEMU `mps2-an386`).
+//! The Gleaner node on an emulated Cortex-M4F (QEMU `mps2-an386`), on the
+//! embassy executor as the real boards are.
 //!
-//! SysTick paces sampling at 100 Hz; a stand-in signal source (a draining
-//! cell) gives the counts; the real `Node` does everything else and talks over
-//! UART0, receiving commands on the same UART. After the cell has run out and
+//! One task: an embassy-time `Ticker` paces sampling at 100 Hz (the clock is
+//! SysTick, `clock.rs`), and between samples the task sleeps until a command
+//! byte arrives on UART0 (`uart.rs`). A stand-in signal source (a draining
+//! cell) gives the counts; the real `Node` does everything else and answers
+//! on the same UART. After the cell has run out and
 //! [`RUN_AFTER_CUTOFF_S`] more seconds have passed, it exits QEMU through
 //! semihosting with success. A panic exits with failure.
 
 #![no_std]
 #![no_main]
 
+mod clock;
 mod stack;
 mod stand_in;
 mod uart;
 
-use core::sync::atomic::{AtomicU32, Ordering};
-
-use cortex_m::peripheral::syst::SystClkSource;
-use cortex_m_rt::{entry, exception};
 use cortex_m_semihosting::debug;
+use embassy_executor::Spawner;
+use embassy_futures::select::{select, Either};
+use embassy_time::{Duration, Ticker};
 use gleaner_firmware::config::default_config;
 use gleaner_firmware::config_store::{MemoryStorage, STORE_LEN};
 use gleaner_firmware::load_shed::NoPin;
@@ -35,13 +38,6 @@ const RUN_AT_MOST_S: u64 = 300;
 const BAUD: u32 = 115_200;
 /// The emulated node's fixed identity (the emulator has no factory id).
 const EMULATED_NODE_ID: u64 = 0x0E4D_0000_0000_0001;
-
-static TICKS: AtomicU32 = AtomicU32::new(0);
-
-#[exception]
-fn SysTick() {
-    TICKS.fetch_add(1, Ordering::Relaxed);
-}
 
 fn exit(success: bool) -> ! {
     debug::exit(if success {
@@ -83,18 +79,13 @@ fn panic(_: &core::panic::PanicInfo) -> ! {
     exit(false)
 }
 
-#[entry]
-fn main() -> ! {
+#[embassy_executor::main]
+async fn main(_spawner: Spawner) {
     let stack = stack::StackWatch::paint();
-    let Some(mut core) = cortex_m::Peripherals::take() else {
+    let Some(core) = cortex_m::Peripherals::take() else {
         exit(false)
     };
-    core.SYST.set_clock_source(SystClkSource::Core);
-    core.SYST
-        .set_reload(uart::SYSTEM_CLOCK_HZ / 1_000_000 * SAMPLE_PERIOD_US - 1);
-    core.SYST.clear_current();
-    core.SYST.enable_interrupt();
-    core.SYST.enable_counter();
+    clock::start(core.SYST, uart::SYSTEM_CLOCK_HZ);
 
     let mut serial = uart::Uart0::new(BAUD);
     let config = default_config();
@@ -111,24 +102,22 @@ fn main() -> ! {
     });
     let _ = node.write_pending(&mut serial);
 
-    let mut done_ticks = 0u32;
+    let mut ticker = Ticker::every(Duration::from_micros(u64::from(SAMPLE_PERIOD_US)));
     let mut cutoff_at_us: Option<u64> = None;
     loop {
-        while TICKS.load(Ordering::Relaxed) == done_ticks {
-            if let Some(byte) = serial.read_byte() {
-                node.on_received(&[byte]);
-            } else {
-                cortex_m::asm::wfi();
-            }
+        let byte = match select(ticker.next(), serial.received()).await {
+            Either::First(()) => None,
+            Either::Second(byte) => Some(byte),
+        };
+        if let Some(byte) = byte {
+            node.on_received(&[byte]);
+            let _ = node.write_pending(&mut serial);
+            continue;
         }
-        done_ticks = done_ticks.wrapping_add(1);
         let t_us = source.now_us();
         match source.sample() {
             Ok(raw) => node.on_sample(t_us, &raw),
             Err(_) => node.on_sampler_error(t_us),
-        }
-        while let Some(byte) = serial.read_byte() {
-            node.on_received(&[byte]);
         }
         let _ = node.write_pending(&mut serial);
         if cutoff_at_us.is_none() && node.state() == ConverterState::CutOff {

@@ -4,7 +4,17 @@
 //! CTRL 0x8 (bit 0 TX enable, bit 1 RX enable), BAUDDIV 0x10. QEMU drops TX
 //! bytes unless TX is enabled.
 
+use core::future::poll_fn;
 use core::ptr::{read_volatile, write_volatile};
+use core::task::Poll;
+
+use embassy_sync::waitqueue::AtomicWaker;
+
+/// Woken when a byte may have arrived. This board leaves the UART's own
+/// receive interrupt unwired (no device vector table); the clock's tick wakes
+/// it instead, and QEMU holds input back while the one-byte buffer is full,
+/// so nothing is lost.
+pub static RECEIVED: AtomicWaker = AtomicWaker::new();
 
 const BASE: usize = 0x4000_4000;
 const DATA: *mut u32 = BASE as *mut u32;
@@ -51,6 +61,16 @@ impl Uart0 {
                 None
             }
         }
+    }
+
+    /// The next received byte, waiting (asleep) until one comes.
+    pub async fn received(&mut self) -> u8 {
+        poll_fn(|cx| {
+            // Registered before looking, so a tick in between is not missed.
+            RECEIVED.register(cx.waker());
+            self.read_byte().map_or(Poll::Pending, Poll::Ready)
+        })
+        .await
     }
 
     fn write_byte(&mut self, byte: u8) {
