@@ -1,11 +1,15 @@
-//! The Gleaner node on an nRF52840 (pin-out of the nRF52840 DK).
+//! The Gleaner node on an nRF52840 (pin-out of the nRF52840 DK), on the
+//! embassy executor and embassy-nrf.
 //!
-//! RTC1 wakes the core about 100 times a second; each wake converts the four
-//! channels on the SAADC ([`adc`]) and hands them to the firmware's `Node`,
-//! which does the metering, the cutoff state machine, the forecast and the
-//! framing. Frames go to the host on UARTE0 ([`link`]); commands come back on
-//! the same UART. Between samples the core sleeps in `WFE`. Accepted
-//! configurations are kept in the last two flash pages and survive resets.
+//! One task: an embassy-time `Ticker` (RTC1, running while the core sleeps)
+//! paces sampling at 100 Hz; each tick converts the four channels on the
+//! SAADC ([`adc`]) with the core asleep, and hands them to the firmware's
+//! `Node`, which does the metering, the cutoff state machine, the forecasts
+//! and the framing. Between ticks the task waits for command bytes from the
+//! host on UARTE0 (`BufferedUarte`: received by EasyDMA into a ring, no work
+//! per byte); frames out go into its transmit ring and leave by EasyDMA while
+//! sampling goes on. Accepted configurations are kept in the last two flash
+//! pages (NVMC) and survive resets.
 //!
 //! The wiring and the front-end values are in `docs/nrf52840-front-end.md`
 //! and [`front_end`].
@@ -14,34 +18,42 @@
 #![no_main]
 
 mod adc;
-mod clock;
 mod front_end;
-mod link;
 
 #[cfg(feature = "defmt")]
 use defmt_rtt as _;
 
-use cortex_m_rt::entry;
+use embassy_executor::Spawner;
+use embassy_futures::select::{select, Either};
+use embassy_nrf::buffered_uarte::{self, BufferedUarte};
+use embassy_nrf::gpio::{Level, Output, OutputDrive};
+use embassy_nrf::nvmc::Nvmc;
+use embassy_nrf::rng::Rng;
+use embassy_nrf::uarte::{self, Baudrate};
+use embassy_nrf::{bind_interrupts, peripherals};
+use embassy_time::{Duration, Ticker};
+use embedded_io_async::Write;
 use gleaner_firmware::config_store;
 use gleaner_firmware::flash_slots::FlashSlots;
-use gleaner_firmware::sampler::Sampler;
 use gleaner_firmware::{Node, NodeParts};
-use gleaner_protocol::ConfigSource;
-use nrf52840_hal::clocks::{Clocks, LfOscConfiguration};
-use nrf52840_hal::gpio::{p0, p1, Level};
-use nrf52840_hal::nvmc::Nvmc;
-use nrf52840_hal::pac;
-use nrf52840_hal::Rng;
+use gleaner_protocol::{ConfigSource, MAX_UPLINK_FRAME_LEN};
 
-use crate::adc::FourChannelAdc;
-use crate::clock::{SampleClock, SAMPLE_PERIOD_US};
+use crate::adc::{AdcPins, FourChannelAdc};
 
+bind_interrupts!(struct Irqs {
+    UARTE0 => buffered_uarte::InterruptHandler<peripherals::UARTE0>;
+});
+
+/// Time between samples.
+const SAMPLE_PERIOD_US: u32 = 10_000;
 /// First byte of the two configuration pages; memory.x keeps code out of them.
-const CONFIG_PAGES: usize = 0x000F_E000;
-/// Two 4 KiB pages.
-const CONFIG_PAGES_LEN: usize = 2 * 4096;
-/// How often the SAADC's offset is measured again, µs.
-const OFFSET_CALIBRATION_PERIOD_US: u64 = 600_000_000;
+const CONFIG_PAGES: u32 = 0x000F_E000;
+/// How often the SAADC's offset is measured again, in samples (10 minutes).
+const OFFSET_CALIBRATION_EVERY: u32 = 600_000_000 / SAMPLE_PERIOD_US;
+/// Bytes of the receive ring: a few of the longest command frames.
+const RX_RING: usize = 256;
+/// Bytes of the transmit ring: a few of the longest frames.
+const TX_RING: usize = 4 * MAX_UPLINK_FRAME_LEN;
 
 /// Stops here for good: only reached if the board's own constants are wrong,
 /// which the first run on a bench shows at once.
@@ -62,38 +74,49 @@ fn panic(_: &core::panic::PanicInfo) -> ! {
     cortex_m::peripheral::SCB::sys_reset()
 }
 
-/// The configuration pages as the flash driver wants them.
-fn config_pages() -> &'static mut [u8] {
-    // SAFETY: memory.x leaves these pages out of FLASH, so no code or data
-    // lives there, and `main` calls this once, so the slice has no alias. The
-    // NVMC driver only reads it directly and writes it through the NVMC.
-    unsafe { core::slice::from_raw_parts_mut(CONFIG_PAGES as *mut u8, CONFIG_PAGES_LEN) }
+/// Crystal clocks (accurate baud rate and sample times) and the DC/DC
+/// regulator (the DK has its inductor: half the current of the LDO).
+fn chip_config() -> embassy_nrf::config::Config {
+    use embassy_nrf::config::{Config, HfclkSource, LfclkSource};
+    let mut config = Config::default();
+    config.hfclk_source = HfclkSource::ExternalXtal;
+    config.lfclk_source = LfclkSource::ExternalXtal;
+    config.dcdc.reg1 = true;
+    config
 }
 
-#[entry]
-fn main() -> ! {
-    let (Some(p), Some(mut core)) = (pac::Peripherals::take(), pac::CorePeripherals::take()) else {
-        halt()
-    };
-    // The DK has the inductor for the DC/DC regulator: half the current of the LDO.
-    p.POWER.dcdcen.write(|w| w.dcdcen().enabled());
-    // Crystal clocks: accurate baud rate and sample times.
-    let _clocks = Clocks::new(p.CLOCK)
-        .enable_ext_hfosc()
-        .set_lfclk_src_external(LfOscConfiguration::NoExternalNoBypass)
-        .start_lfclk();
+/// The factory-programmed device id (FICR DEVICEID, two words).
+fn device_id() -> u64 {
+    let ficr = nrf_pac::FICR;
+    (u64::from(ficr.deviceid(1).read()) << 32) | u64::from(ficr.deviceid(0).read())
+}
 
-    let port0 = p0::Parts::new(p.P0);
-    let port1 = p1::Parts::new(p.P1);
-    let txd = port0.p0_06.into_push_pull_output(Level::High).degrade();
-    let rxd = port0.p0_08.into_floating_input().degrade();
-    let Some(mut to_host) = link::start(p.UARTE0, txd, rxd) else {
-        halt()
-    };
+#[embassy_executor::main]
+async fn main(_spawner: Spawner) {
+    let p = embassy_nrf::init(chip_config());
+
+    let mut uart_config = uarte::Config::default();
+    uart_config.baudrate = Baudrate::Baud115200;
+    let (mut rx_ring, mut tx_ring) = ([0u8; RX_RING], [0u8; TX_RING]);
+    // RX on P0.08, TX on P0.06: the DK's USB virtual COM port.
+    let uart = BufferedUarte::new(
+        p.UARTE0,
+        p.TIMER0,
+        p.PPI_CH0,
+        p.PPI_CH1,
+        p.PPI_GROUP0,
+        p.P0_08,
+        p.P0_06,
+        Irqs,
+        uart_config,
+        &mut rx_ring,
+        &mut tx_ring,
+    );
+    let (mut from_host, mut to_host) = uart.split();
     // High = load on; the node drops it when the storage is forecast to run out.
-    let load_pin = port1.p1_08.into_push_pull_output(Level::High).degrade();
+    let load_pin = Output::new(p.P1_08, Level::High, OutputDrive::Standard);
 
-    let Some(mut storage) = FlashSlots::new(Nvmc::new(p.NVMC, config_pages()), 0) else {
+    let Some(mut storage) = FlashSlots::new(Nvmc::new(p.NVMC), CONFIG_PAGES) else {
         halt()
     };
     let loaded = config_store::load(&mut storage);
@@ -101,73 +124,66 @@ fn main() -> ! {
     if loaded.source == ConfigSource::Defaults {
         config.calibration = front_end::CALIBRATION;
     }
-    let boot_id = Rng::new(p.RNG).random_u32();
-    // The factory-programmed device id (FICR DEVICEID, two words): the node's identity.
-    let node_id = (u64::from(p.FICR.deviceid[1].read().bits()) << 32)
-        | u64::from(p.FICR.deviceid[0].read().bits());
+    let boot_id = Rng::new_blocking(p.RNG).blocking_next_u32();
 
-    let mut adc = FourChannelAdc::new(p.SAADC);
-    let Some(mut clock) = SampleClock::start(p.RTC1) else {
-        halt()
-    };
-    // Pending interrupts (never enabled in the NVIC) wake WFE.
-    core.SCB.set_sevonpend();
+    let mut adc = FourChannelAdc::new(
+        p.SAADC,
+        AdcPins {
+            input_voltage: p.P0_02,
+            input_shunt: (p.P0_03, p.P0_04),
+            output_voltage: p.P0_28,
+            output_shunt: (p.P0_30, p.P0_31),
+        },
+    );
 
     #[cfg(feature = "defmt")]
     defmt::info!(
-        "gleaner node: boot {=u32:#010x}, configuration {}",
+        "gleaner node: boot {=u32:#010x}, stored configuration {=bool}",
         boot_id,
-        loaded.source
+        loaded.source == ConfigSource::Stored
     );
     let mut node = Node::new(NodeParts {
         config,
         config_source: loaded.source,
-        node_id,
+        node_id: device_id(),
         boot_id,
         sample_period_us: SAMPLE_PERIOD_US,
         load_pin,
         storage,
     });
-    let mut next_offset_calibration_us = OFFSET_CALIBRATION_PERIOD_US;
-    #[cfg(feature = "defmt")]
-    let (mut last_state, mut last_lost) = (node.state(), 0u32);
 
+    // The ticker runs on RTC1 and catches up after a late tick, so the n-th
+    // tick is at n sample periods: the sample's time, without clock reads.
+    let mut ticker = Ticker::every(Duration::from_micros(u64::from(SAMPLE_PERIOD_US)));
+    let mut samples: u64 = 0;
+    let mut until_calibration: u32 = 0;
+    let mut received = [0u8; 64];
+    let mut frame = [0u8; MAX_UPLINK_FRAME_LEN];
     loop {
-        while let Some(byte) = link::take() {
-            node.on_received(&[byte]);
-        }
-        if clock.sample_due() {
-            let t_us = clock.now_us();
-            match adc.sample() {
-                Ok(raw) => node.on_sample(t_us, &raw),
-                Err(_error) => {
-                    #[cfg(feature = "defmt")]
-                    defmt::warn!("sampling failed: {}", _error);
-                    node.on_sampler_error(t_us);
+        match select(ticker.next(), from_host.read(&mut received)).await {
+            Either::First(()) => {
+                // The first tick, and every ten minutes: the SAADC's offset
+                // (it drifts with temperature).
+                if until_calibration == 0 {
+                    adc.calibrate_offset().await;
+                    until_calibration = OFFSET_CALIBRATION_EVERY;
                 }
+                until_calibration -= 1;
+                samples += 1;
+                let raw = adc.sample().await;
+                node.on_sample(samples * u64::from(SAMPLE_PERIOD_US), &raw);
             }
-            if t_us >= next_offset_calibration_us {
-                let _ = adc.calibrate_offset();
-                next_offset_calibration_us = t_us.saturating_add(OFFSET_CALIBRATION_PERIOD_US);
+            Either::Second(Ok(n)) => node.on_received(received.get(..n).unwrap_or(&[])),
+            // A framing or overrun error loses those bytes; the host's
+            // command times out and is sent again.
+            Either::Second(Err(_)) => {}
+        }
+        // Frames wait in the transmit ring while sampling goes on. A failed
+        // transfer loses that frame; its sequence number tells the host.
+        while let Some(bytes) = node.next_frame(&mut frame) {
+            if to_host.write_all(bytes).await.is_err() {
+                break;
             }
         }
-        // A failed transfer loses that frame; its sequence number tells the host.
-        let _ = node.write_pending(&mut to_host);
-        #[cfg(feature = "defmt")]
-        {
-            let state = node.state();
-            if state != last_state {
-                defmt::info!("state {} -> {}", last_state, state);
-                last_state = state;
-            }
-            let lost = link::overflowed();
-            if lost != last_lost {
-                defmt::warn!("receive queue full: {=u32} bytes lost", lost);
-                last_lost = lost;
-            }
-        }
-        // Asleep until the next sample tick or a received byte. A wake-up that
-        // came while working is latched, so WFE returns at once and nothing waits.
-        cortex_m::asm::wfe();
     }
 }
