@@ -31,7 +31,7 @@ use embassy_nrf::nvmc::Nvmc;
 use embassy_nrf::rng::Rng;
 use embassy_nrf::uarte::{self, Baudrate};
 use embassy_nrf::{bind_interrupts, peripherals};
-use embassy_time::{Duration, Ticker};
+use embassy_time::{Duration, Ticker, TICK_HZ};
 use embedded_io_async::Write;
 use gleaner_firmware::config_store;
 use gleaner_firmware::flash_slots::FlashSlots;
@@ -44,8 +44,11 @@ bind_interrupts!(struct Irqs {
     UARTE0 => buffered_uarte::InterruptHandler<peripherals::UARTE0>;
 });
 
-/// Time between samples.
-const SAMPLE_PERIOD_US: u32 = 10_000;
+/// Time between samples in ticks of RTC1, embassy-time's clock (32,768 Hz):
+/// 328 ticks, the nearest to 10 ms.
+const SAMPLE_PERIOD_TICKS: u64 = 328;
+/// The same to the nearest microsecond, for `Hello` (10,010 µs).
+const SAMPLE_PERIOD_US: u32 = ((SAMPLE_PERIOD_TICKS * 1_000_000 + TICK_HZ / 2) / TICK_HZ) as u32;
 /// First byte of the two configuration pages; memory.x keeps code out of them.
 const CONFIG_PAGES: u32 = 0x000F_E000;
 /// How often the SAADC's offset is measured again, in samples (10 minutes).
@@ -153,8 +156,9 @@ async fn main(_spawner: Spawner) {
     });
 
     // The ticker runs on RTC1 and catches up after a late tick, so the n-th
-    // tick is at n sample periods: the sample's time, without clock reads.
-    let mut ticker = Ticker::every(Duration::from_micros(u64::from(SAMPLE_PERIOD_US)));
+    // tick is at n sample periods: the sample's time, exact to the
+    // microsecond, without clock reads (TICK_HZ is a power of two).
+    let mut ticker = Ticker::every(Duration::from_ticks(SAMPLE_PERIOD_TICKS));
     let mut samples: u64 = 0;
     let mut until_calibration: u32 = 0;
     let mut received = [0u8; 64];
@@ -171,7 +175,7 @@ async fn main(_spawner: Spawner) {
                 until_calibration -= 1;
                 samples += 1;
                 let raw = adc.sample().await;
-                node.on_sample(samples * u64::from(SAMPLE_PERIOD_US), &raw);
+                node.on_sample(samples * SAMPLE_PERIOD_TICKS * 1_000_000 / TICK_HZ, &raw);
             }
             Either::Second(Ok(n)) => node.on_received(received.get(..n).unwrap_or(&[])),
             // A framing or overrun error loses those bytes; the host's
