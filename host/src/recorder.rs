@@ -267,8 +267,9 @@ fn copy_log_into(short: &Path, earlier: &Path, port: &str) -> Result<LogWriter> 
     let mut writer = LogWriter::append_to(earlier)?;
     let copy = |writer: &mut LogWriter| -> Result<()> {
         let file = std::fs::File::open(short)?;
+        let mut reader = crate::log::LogReader::new(file);
         let mut first = true;
-        for record in crate::log::LogReader::new(file) {
+        for record in reader.by_ref() {
             if first {
                 first = false;
                 writer.append_marker(
@@ -290,6 +291,9 @@ fn copy_log_into(short: &Path, earlier: &Path, port: &str) -> Result<LogWriter> 
                 crate::log::RecordBody::Header(_) | crate::log::RecordBody::Unknown(_) => {}
             }
         }
+        // A read that stopped early must not pass for the whole log: the
+        // short log is removed once copied.
+        reader.read_whole(&short.display().to_string())?;
         writer.sync()
     };
     if let Err(e) = copy(&mut writer) {
@@ -547,4 +551,59 @@ fn follow_next_log(
         None => {}
     }
     Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::log::{LogHeader, LogReader, RecordBody};
+
+    fn header() -> LogHeader {
+        LogHeader {
+            format_version: 1,
+            writer: "recorder test".into(),
+            host: "bench".into(),
+            started: "now".into(),
+            source: "none".into(),
+        }
+    }
+
+    /// A log of `frames` frames of 12 bytes, at host times from `t0` on.
+    fn log_with(path: &Path, t0: u64, frames: u64) {
+        let mut w = LogWriter::create(path, &header()).unwrap();
+        for i in 0..frames {
+            w.append_frame(t0 + i, &[i as u8 + 1; 12]).unwrap();
+        }
+        w.sync().unwrap();
+    }
+
+    fn frames_in(path: &Path) -> Vec<u64> {
+        LogReader::new(std::fs::File::open(path).unwrap())
+            .filter(|r| matches!(r.body, RecordBody::Frame(_)))
+            .map(|r| r.host_time_us)
+            .collect()
+    }
+
+    #[test]
+    fn a_moved_nodes_log_goes_on_in_its_earlier_one_whole_or_not_at_all() {
+        let dir = tempfile::tempdir().unwrap();
+        let (earlier, short) = (dir.path().join("a.gleanlog"), dir.path().join("b.gleanlog"));
+        log_with(&earlier, 100, 3);
+        log_with(&short, 500, 4);
+        let before = std::fs::read(&earlier).unwrap();
+        // The short log's frames follow the earlier ones, after a note.
+        drop(copy_log_into(&short, &earlier, "/dev/ttyB").unwrap());
+        assert_eq!(frames_in(&earlier), [100, 101, 102, 500, 501, 502, 503]);
+        // A "log" that cannot be read to its end (here a folder: reading it
+        // fails) is not continued, and the earlier log is as it was.
+        std::fs::write(&earlier, &before).unwrap();
+        let Err(err) = copy_log_into(dir.path(), &earlier, "/dev/ttyB") else {
+            panic!("a folder was copied as a log");
+        };
+        assert!(
+            crate::failure::Failure::find::<crate::log::LogError>(&err).is_some(),
+            "{err:#}"
+        );
+        assert_eq!(std::fs::read(&earlier).unwrap(), before);
+    }
 }
