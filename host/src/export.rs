@@ -12,17 +12,16 @@ use gleaner_protocol::UplinkBody;
 use crate::columns;
 use crate::files::{AtomicFile, Input};
 use crate::link::LinkTracker;
-use crate::log::{LogError, LogReader, RecordBody};
+use crate::log::{LogReader, RecordBody};
 use indicatif::ProgressBar;
 
-/// Why an export failed; a table file appears only when complete, so
-/// nothing half-written is left behind.
+/// Why an export could not write its output (a full disk, a closed pipe).
+/// A table file appears only when complete, so nothing half-written is left
+/// behind. A log that cannot be read as a whole fails with its
+/// [`LogError`]; opening files fails as [`crate::files`] says.
 #[derive(Debug, thiserror::Error)]
 pub enum ExportError {
-    /// A log could not be read as a whole.
-    #[error(transparent)]
-    Log(#[from] LogError),
-    /// An output could not be written (a full disk, a closed pipe).
+    /// An output could not be written.
     #[error("cannot write {what}")]
     Unwritable {
         /// The file, or the table on a stream.
@@ -31,23 +30,12 @@ pub enum ExportError {
         #[source]
         source: std::io::Error,
     },
-    /// An input could not be opened or an output file created.
-    #[error(transparent)]
-    Files(#[from] anyhow::Error),
 }
 
-impl ExportError {
-    /// The log error inside, if that is what stopped the export.
-    pub fn log_error(&self) -> Option<&LogError> {
-        match self {
-            ExportError::Log(e) => Some(e),
-            _ => None,
-        }
-    }
-}
-
-/// The result of an export step.
-type Result<T> = std::result::Result<T, ExportError>;
+/// The result of an export step: the typed errors above travel in an
+/// `anyhow::Error` beside the file helpers' own, whose exit-code marks they
+/// keep.
+type Result<T> = anyhow::Result<T>;
 
 /// `Unwritable` for an I/O error while writing `what`.
 fn unwritable(what: &str) -> impl Fn(std::io::Error) -> ExportError + '_ {
@@ -98,9 +86,7 @@ fn suffixed(prefix: &Path, suffix: &str) -> PathBuf {
 
 /// Opens the logs at `logs` (`-`: standard input), gzipped or not.
 pub fn open_logs(logs: &[PathBuf]) -> Result<Vec<Input>> {
-    logs.iter()
-        .map(|log| crate::files::open_log(log).map_err(ExportError::Files))
-        .collect()
+    logs.iter().map(|log| crate::files::open_log(log)).collect()
 }
 
 /// Writes `PREFIX-reports.csv` and `PREFIX-events.csv` from the logs at
@@ -242,14 +228,18 @@ mod tests {
         let prefix = dir.path().join("out");
         let hidden = ProgressBar::hidden();
         let err = export_csv(std::slice::from_ref(&path), &prefix, &hidden).unwrap_err();
-        let Some(LogError::Unreadable { offset, .. }) = err.log_error() else {
+        use crate::failure::Failure;
+        use crate::log::LogError;
+        let Some(LogError::Unreadable { offset, .. }) = Failure::find::<LogError>(&err) else {
             panic!("{err:?}");
         };
         assert!(*offset > 0 && *offset < log.len() as u64, "{offset}");
-        assert!(err.log_error().is_some_and(LogError::is_bad_input));
+        assert_eq!(Failure::exit_code(&err), Failure::BadInput.code());
+        // A log that is not there keeps the exit code its opening gives.
+        let missing = export_csv(&[dir.path().join("none.gleanlog")], &prefix, &hidden);
         assert_eq!(
-            crate::failure::Failure::exit_code(&anyhow::Error::new(err)),
-            crate::failure::Failure::BadInput.code()
+            missing.map_err(|e| Failure::exit_code(&e)).err(),
+            Some(Failure::BadInput.code())
         );
         let left: Vec<_> = std::fs::read_dir(dir.path()).unwrap().collect();
         assert_eq!(left.len(), 1, "only the input remains");

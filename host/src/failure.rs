@@ -51,12 +51,7 @@ impl Failure {
     /// The kind a typed library error stands for, whoever passed it on: the
     /// one place that maps the library's errors to exit codes.
     fn implied_by(cause: &(dyn std::error::Error + 'static)) -> Option<Failure> {
-        let log_error = cause.downcast_ref::<crate::log::LogError>().or_else(|| {
-            cause
-                .downcast_ref::<crate::export::ExportError>()
-                .and_then(crate::export::ExportError::log_error)
-        });
-        if let Some(e) = log_error {
+        if let Some(e) = cause.downcast_ref::<crate::log::LogError>() {
             return e.is_bad_input().then_some(Failure::BadInput);
         }
         if let Some(e) = cause.downcast_ref::<crate::sim::scenarios::scenario::ScenarioError>() {
