@@ -18,7 +18,7 @@ use indicatif::ProgressBar;
 /// Why an export could not write its output (a full disk, a closed pipe).
 /// A table file appears only when complete, so nothing half-written is left
 /// behind. A log that cannot be read as a whole fails with its
-/// [`LogError`]; opening files fails as [`crate::files`] says.
+/// [`crate::log::LogError`]; opening files fails as [`crate::files`] says.
 #[derive(Debug, thiserror::Error)]
 pub enum ExportError {
     /// An output could not be written.
