@@ -7,6 +7,7 @@
 //! differential, the internal reference 0.6 V; and from Ohm's law and the
 //! divider ratio for the resistors.
 
+mod board_front_end;
 #[allow(dead_code)]
 #[path = "../../firmware/boards/nrf52840-node/src/front_end.rs"]
 mod front_end;
@@ -46,18 +47,9 @@ fn nominal_readings_come_back_in_channel_units() {
 #[test]
 fn one_code_is_the_documented_resolution() {
     let cal = front_end::CALIBRATION;
-    let lsb = |q20: u64| q20 as f64 / f64::from(1u32 << 20);
     // 1.2 V / 2^14, 150 mV / 2^13 / 10 Ω, 2 * 2.4 V / 2^14, 150 mV / 2^13 / 10 Ω.
     let expected = [73.2421875, 1831.0546875, 292.96875, 1831.0546875];
-    let got = [
-        lsb(cal.input_voltage.units_per_count_q20),
-        lsb(cal.input_current.units_per_count_q20),
-        lsb(cal.output_voltage.units_per_count_q20),
-        lsb(cal.output_current.units_per_count_q20),
-    ];
-    for (g, e) in got.iter().zip(expected) {
-        assert!((g - e).abs() / e < 1e-6, "{got:?} vs {expected:?}");
-    }
+    board_front_end::assert_one_code(&cal, expected);
 }
 
 #[test]
@@ -93,17 +85,7 @@ fn limits_and_reverse_current_are_mapped_for_the_node() {
 fn the_settings_block_of_the_guide_gives_the_firmware_calibration() {
     // The guide's `[front_end]` block, as a user would paste it.
     let guide = include_str!("../../docs/nrf52840-front-end.md");
-    let section = guide
-        .split("## The same front-end in a settings file")
-        .nth(1)
-        .expect("the guide has the settings section");
-    let block = section
-        .split("```toml\n")
-        .nth(1)
-        .and_then(|rest| rest.split("```").next())
-        .expect("a toml block in the section");
-    let settings = gleaner::settings::NodeSettings::from_toml(block).unwrap();
-    let params = settings.front_end.expect("a front_end table");
+    let params = board_front_end::guide_front_end(guide);
     assert_eq!(params.calibration(), Some(front_end::CALIBRATION));
     // And the firmware's description, written in that form, is the same.
     let written = gleaner::front_end::FrontEndParams::from_front_end(&front_end::FRONT_END);

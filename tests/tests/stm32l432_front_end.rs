@@ -10,6 +10,7 @@
 //! reference manual's formula, from memory). The amplifier gain, the shunts
 //! and the divider follow Ohm's law.
 
+mod board_front_end;
 #[allow(dead_code)]
 #[path = "../../firmware/boards/stm32l432-nucleo/src/front_end.rs"]
 mod front_end;
@@ -80,19 +81,10 @@ fn nominal_readings_come_back_in_channel_units_whatever_the_supply() {
 #[test]
 fn one_code_is_the_documented_resolution() {
     let cal = front_end::CALIBRATION;
-    let lsb = |q20: u64| q20 as f64 / f64::from(1u32 << 20);
     // 3.3 V / 2^14; 3.3 V / 2^14 / 50 / 10 Ω; 2 x 3.3 V / 2^14;
     // 3.3 V / 2^14 / 50 / 1 Ω.
     let expected = [201.416015625, 402.83203125, 402.83203125, 4028.3203125];
-    let got = [
-        lsb(cal.input_voltage.units_per_count_q20),
-        lsb(cal.input_current.units_per_count_q20),
-        lsb(cal.output_voltage.units_per_count_q20),
-        lsb(cal.output_current.units_per_count_q20),
-    ];
-    for (g, e) in got.iter().zip(expected) {
-        assert!((g - e).abs() / e < 1e-6, "{got:?} vs {expected:?}");
-    }
+    board_front_end::assert_one_code(&cal, expected);
 }
 
 #[test]
@@ -145,17 +137,7 @@ fn a_result_at_the_top_is_flagged_and_a_rescaled_one_never_passes_it() {
 fn the_settings_block_of_the_guide_gives_the_firmware_calibration() {
     // The guide's `[front_end]` block, as a user would paste it.
     let guide = include_str!("../../docs/stm32l432-front-end.md");
-    let section = guide
-        .split("## The same front-end in a settings file")
-        .nth(1)
-        .expect("the guide has the settings section");
-    let block = section
-        .split("```toml\n")
-        .nth(1)
-        .and_then(|rest| rest.split("```").next())
-        .expect("a toml block in the section");
-    let settings = gleaner::settings::NodeSettings::from_toml(block).unwrap();
-    let params = settings.front_end.expect("a front_end table");
+    let params = board_front_end::guide_front_end(guide);
     assert_eq!(params.calibration(), Some(front_end::CALIBRATION));
     let written = gleaner::front_end::FrontEndParams::from_front_end(&front_end::FRONT_END);
     assert_eq!(written.front_end(), front_end::FRONT_END);
