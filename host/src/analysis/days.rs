@@ -12,7 +12,7 @@ use super::report::DayBudget;
 /// Seconds in a budget day.
 pub const DAY_S: f64 = 86_400.0;
 
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, serde::Serialize, serde::Deserialize)]
 struct Day {
     covered_s: f64,
     drawn_nj: u128,
@@ -22,7 +22,7 @@ struct Day {
 }
 
 /// Sums each day's reports.
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, serde::Serialize, serde::Deserialize)]
 pub struct DailyBudgets {
     days: BTreeMap<u32, Day>,
 }

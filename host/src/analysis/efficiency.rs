@@ -16,7 +16,7 @@ pub const EFFICIENCY_BIN_V: f64 = EFFICIENCY_BIN_UV as f64 / 1e6;
 /// host/sql/efficiency_by_input.sql does).
 pub const EFFICIENCY_BIN_UV: u32 = 50_000;
 
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, serde::Serialize, serde::Deserialize)]
 struct Bin {
     seconds: f64,
     drawn_nj: u128,
@@ -25,7 +25,7 @@ struct Bin {
 
 /// Energy drawn and converted per input-voltage bin, over intervals spent
 /// at least 90 % converting (`Harvesting` or `Sagging`) that drew energy.
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, serde::Serialize, serde::Deserialize)]
 pub struct EfficiencyBins {
     bins: BTreeMap<i64, Bin>,
 }

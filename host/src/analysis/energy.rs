@@ -7,7 +7,7 @@ use gleaner_protocol::Report;
 use super::report::EnergyTotals;
 
 /// Sums the energy of every report, exactly (integer nanojoules).
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, serde::Serialize, serde::Deserialize)]
 pub struct EnergySums {
     drawn_nj: u128,
     delivered_nj: u128,

@@ -3,13 +3,13 @@
 //! energy-neutral duty cycle it sustains.
 
 use gleaner_protocol::SlotHarvest;
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 /// Slots kept for the report (a month of hours); the errors count them all.
 pub const MAX_SLOTS_LISTED: usize = 24 * 31;
 
 /// One slot of harvest.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct SlotRow {
     /// End of the slot, s of run time.
     pub t_s: f64,
@@ -39,7 +39,7 @@ pub struct HarvestForecast {
 }
 
 /// Collects slot messages.
-#[derive(Debug, Default)]
+#[derive(Debug, Default, serde::Serialize, serde::Deserialize)]
 pub struct HarvestSlots {
     slots: Vec<SlotRow>,
     ewma_errors: (f64, u64),

@@ -2,13 +2,13 @@
 //! minimum), why, and the chain of what led there.
 
 use gleaner_protocol::{LoadCause, LoadEvent};
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use super::spans::Spans;
 use super::text::duration;
 
 /// One time the load was without power.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct LoadOutage {
     /// Brown-out, s of run time.
     pub start_s: f64,
@@ -33,7 +33,7 @@ pub struct LoadOutage {
 }
 
 /// Collects load outages from load events.
-#[derive(Debug, Default)]
+#[derive(Debug, Default, serde::Serialize, serde::Deserialize)]
 pub struct LoadOutages {
     outages: Spans<LoadOutage>,
 }

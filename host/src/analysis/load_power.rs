@@ -7,7 +7,7 @@ use super::days::outage_s;
 
 /// The load's power figures over the supplied intervals (no cutoff or
 /// stalled time, an output voltage), and the highest output voltage seen.
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, serde::Serialize, serde::Deserialize)]
 pub struct LoadPower {
     supplied_s: f64,
     supplied_delivered_j: f64,

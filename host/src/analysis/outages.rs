@@ -12,7 +12,7 @@ use super::spans::Spans;
 pub const MAX_TRANSITIONS: usize = 10_000;
 
 /// Follows the converter's state through events and reports.
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, serde::Serialize, serde::Deserialize)]
 pub struct ConverterOutages {
     state: Option<ConverterState>,
     outages: Spans<Outage>,

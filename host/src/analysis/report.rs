@@ -3,7 +3,7 @@
 
 use std::collections::BTreeMap;
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use super::harvest::HarvestForecast;
 use super::load_outages::LoadOutage;
@@ -42,7 +42,7 @@ pub const NAMES_RENAMED_SINCE_V1: [(&str, &str); 6] = [
 ];
 
 /// One node boot as its `Hello` describes it.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct BootInfo {
     /// 0 for the first boot in the log.
     pub index: u32,
@@ -157,7 +157,7 @@ pub struct StateShare {
 }
 
 /// Why the load lost its supply.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum OutageCause {
     /// The converter stopped for lack of input (`CutOff`).
@@ -177,7 +177,7 @@ impl OutageCause {
 }
 
 /// One outage.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Outage {
     /// Start, s of run time.
     pub start_s: f64,
@@ -259,7 +259,7 @@ impl DayBudget {
 }
 
 /// A transition as the node reported it.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Transition {
     /// When, s of run time.
     pub t_s: f64,

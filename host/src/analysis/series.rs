@@ -3,7 +3,7 @@
 //! however long the run.
 
 use gleaner_protocol::ConverterState;
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 /// Most buckets kept.
 pub const MAX_BUCKETS: usize = 2048;
@@ -35,7 +35,8 @@ pub struct Point {
 }
 
 /// The bounded series.
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(into = "Kept", from = "Kept")]
 pub struct Series {
     points: Vec<Point>,
     width_s: f64,
@@ -63,6 +64,66 @@ pub struct Sample {
     pub delivered_total_j: f64,
     /// Seconds in each state during the report.
     pub state_s: [f64; ConverterState::COUNT],
+}
+
+/// A bucket as a checkpoint keeps it: every field, the weights the report
+/// leaves out too.
+type KeptPoint = ([f64; 7], u8, f64, [f64; ConverterState::COUNT]);
+
+/// The series as a checkpoint keeps it.
+#[derive(Serialize, Deserialize)]
+struct Kept {
+    points: Vec<KeptPoint>,
+    width_s: f64,
+    origin_s: Option<f64>,
+}
+
+impl From<Series> for Kept {
+    fn from(series: Series) -> Self {
+        let keep = |p: &Point| {
+            let shown = [
+                p.t_s,
+                p.input_v,
+                p.output_v,
+                p.input_w,
+                p.output_w,
+                p.drawn_total_j,
+                p.delivered_total_j,
+            ];
+            (shown, p.state, p.weight_s, p.state_s)
+        };
+        Kept {
+            points: series.points.iter().map(keep).collect(),
+            width_s: series.width_s,
+            origin_s: series.origin_s,
+        }
+    }
+}
+
+impl From<Kept> for Series {
+    fn from(kept: Kept) -> Self {
+        let restore = |(shown, state, weight_s, state_s): KeptPoint| {
+            let [t_s, input_v, output_v, input_w, output_w, drawn_total_j, delivered_total_j] =
+                shown;
+            Point {
+                t_s,
+                input_v,
+                output_v,
+                input_w,
+                output_w,
+                drawn_total_j,
+                delivered_total_j,
+                state,
+                weight_s,
+                state_s,
+            }
+        };
+        Series {
+            points: kept.points.into_iter().map(restore).collect(),
+            width_s: kept.width_s,
+            origin_s: kept.origin_s,
+        }
+    }
 }
 
 fn merge(a: &mut Point, b: &Point) {

@@ -27,7 +27,7 @@ macro_rules! span_with_fields {
 span_with_fields!(super::report::Outage, super::load_outages::LoadOutage);
 
 /// The span under way, if any, and those ended, in order.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Spans<T> {
     open: Option<T>,
     done: Vec<T>,

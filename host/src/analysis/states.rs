@@ -5,7 +5,7 @@ use gleaner_protocol::{ConverterState, Report};
 use super::report::StateShare;
 
 /// Sums the time of each state from the reports' per-state durations.
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, serde::Serialize, serde::Deserialize)]
 pub struct StateTimes {
     seconds: [f64; ConverterState::COUNT],
 }

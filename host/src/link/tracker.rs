@@ -6,10 +6,10 @@ use gleaner_protocol::{
     open_frame, parse_uplink_any, FrameError, ProtocolVersion, Uplink, UplinkBody, VersionMismatch,
     OLDER_MAJORS, PROTOCOL_VERSION,
 };
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 /// Counters of a link.
-#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, Deserialize)]
 pub struct LinkStats {
     /// Frames decoded.
     pub frames: u64,
@@ -81,7 +81,7 @@ impl<'a> ReadAhead<'a> {
 }
 
 /// Follows sequence numbers, uptime and boot ids across frames.
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, serde::Serialize, serde::Deserialize)]
 pub struct LinkTracker {
     stats: LinkStats,
     boot_id: Option<u32>,
