@@ -11,6 +11,7 @@
 //! text, JSON ([`REPORT_SCHEMA`]) or an HTML page with SVG plots. Memory
 //! stays flat however long the log.
 
+pub mod checkpoint;
 pub mod days;
 pub mod efficiency;
 pub mod energy;
@@ -52,7 +53,7 @@ pub const CLOCK_JUMP_MIN_S: f64 = 60.0;
 /// [`CLOCK_JUMP_MIN_S`] and twice the node time between them is the host
 /// clock jumping (an NTP correction, a computer without a clock battery
 /// booting in 1970). It is noted, and left out of placing later boots.
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, serde::Serialize, serde::Deserialize)]
 struct RunClock {
     boot_base_s: f64,
     current_boot: Option<u32>,
@@ -113,7 +114,7 @@ impl RunClock {
 }
 
 /// Streams a run's records into a [`RunReport`].
-#[derive(Default)]
+#[derive(Default, serde::Serialize, serde::Deserialize)]
 pub struct Analyzer {
     tracker: LinkTracker,
     header: Option<LogHeader>,
@@ -360,34 +361,65 @@ impl Analyzer {
 
 /// Analyses a log file (`-`: standard input), streaming, on every core.
 pub fn analyze_file(path: &std::path::Path) -> anyhow::Result<RunReport> {
-    analyze_file_with(path, crate::parallel::workers(), &crate::progress::none())
+    analyze_file_with(path, &Reading::default(), &crate::progress::none())
 }
 
-/// As [`analyze_file`], reading on up to `workers` threads and advancing
-/// `progress` by the bytes read.
+/// How logs are read for a report.
+#[derive(Debug, Clone, Copy)]
+pub struct Reading {
+    /// Threads to read on.
+    pub workers: usize,
+    /// Go on from the log's last checkpoint ([`checkpoint`]) when it can be
+    /// trusted, instead of reading every record (the report is the same).
+    pub checkpoints: bool,
+}
+
+impl Default for Reading {
+    fn default() -> Self {
+        Reading {
+            workers: crate::parallel::workers(),
+            checkpoints: true,
+        }
+    }
+}
+
+/// As [`analyze_file`], read as `reading` says, advancing `progress` by the
+/// bytes read.
 pub fn analyze_file_with(
     path: &std::path::Path,
-    workers: usize,
+    reading: &Reading,
     progress: &indicatif::ProgressBar,
 ) -> anyhow::Result<RunReport> {
-    analyze_as_one_run(&[path.to_path_buf()], workers, progress)
+    analyze_as_one_run(&[path.to_path_buf()], reading, progress)
 }
 
 /// Analyses `paths`, in the order given, as one run: a recording rotated
-/// into several logs. Warnings name their log when there are several.
+/// into several logs. Warnings name their log when there are several. Only
+/// the first log's checkpoint can stand for what came before it.
 pub fn analyze_as_one_run(
     paths: &[std::path::PathBuf],
-    workers: usize,
+    reading: &Reading,
     progress: &indicatif::ProgressBar,
 ) -> anyhow::Result<RunReport> {
     let mut analyzer = Analyzer::new();
     let mut why_empty = None;
-    for path in paths {
+    for (i, path) in paths.iter().enumerate() {
+        let resumed = (i == 0 && reading.checkpoints)
+            .then(|| checkpoint::resume(path, reading.workers))
+            .flatten();
+        let from = resumed.map_or(0, |resumed| {
+            analyzer = resumed.analyzer;
+            progress.inc(resumed.offset);
+            resumed.offset
+        });
         // Several logs may advance one bar from several threads: add what was read.
-        let summary =
-            crate::log::split::read_log(path, workers, &mut |n| progress.inc(n), |item| {
-                analyzer.add_item(item)
-            })?;
+        let summary = crate::log::split::read_log_from(
+            path,
+            from,
+            reading.workers,
+            &mut |n| progress.inc(n),
+            |item| analyzer.add_item(item),
+        )?;
         let name = log_name(path);
         let tell = |what: String| {
             if paths.len() > 1 {

@@ -6,7 +6,7 @@ use std::path::PathBuf;
 use anyhow::{Context, Result};
 use clap::Args;
 
-use crate::analysis::{analyze_as_one_run, analyze_file_with, html, text, RunReport};
+use crate::analysis::{analyze_as_one_run, analyze_file_with, html, text, Reading, RunReport};
 use crate::failure::{FailedAs, Failure};
 
 /// Report on one or more recorded runs: duration and coverage, time in each
@@ -27,6 +27,10 @@ pub struct Cmd {
     /// into several files (`record --rotate`, SIGHUP).
     #[arg(long)]
     pub one_run: bool,
+    /// Read every record, passing over the checkpoints a recording leaves in
+    /// its log (the report is the same; only slower on a long log).
+    #[arg(long)]
+    pub read_all: bool,
 }
 
 impl Cmd {
@@ -37,7 +41,11 @@ impl Cmd {
                 crate::progress::total_size(self.logs.iter().map(PathBuf::as_path)),
                 &format!("reading {} logs as one run", self.logs.len()),
             );
-            let report = analyze_as_one_run(&self.logs, crate::parallel::workers(), &progress);
+            let reading = Reading {
+                checkpoints: !self.read_all,
+                ..Reading::default()
+            };
+            let report = analyze_as_one_run(&self.logs, &reading, &progress);
             progress.finish_and_clear();
             let name = self.logs.first().cloned().unwrap_or_default();
             return self.write(&[(name, report?)]);
@@ -60,9 +68,12 @@ impl Cmd {
         // Every core: one log per worker, or one log read in parts by all;
         // the results in the order given.
         let workers = crate::parallel::workers();
-        let per_log = workers.div_ceil(self.logs.len()).max(1);
+        let reading = Reading {
+            workers: workers.div_ceil(self.logs.len()).max(1),
+            checkpoints: !self.read_all,
+        };
         let analysed = crate::parallel::map_in_order(self.logs.len(), workers, |i| {
-            analyze_file_with(&self.logs[i], per_log, &progress)
+            analyze_file_with(&self.logs[i], &reading, &progress)
         });
         for (log, result) in self.logs.iter().zip(analysed) {
             match result {

@@ -16,6 +16,8 @@ pub const BODY_PREFIX_LEN: usize = 9;
 pub(crate) const KIND_HEADER: u8 = 1;
 pub(crate) const KIND_FRAME: u8 = 2;
 pub(crate) const KIND_MARKER: u8 = 3;
+/// A part of a checkpoint of the analysis ([`crate::analysis::checkpoint`]).
+pub(crate) const KIND_CHECKPOINT: u8 = 4;
 
 /// The header record: what wrote the file, where and when.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]

@@ -269,8 +269,7 @@ impl<R: Read> LogReader<R> {
         }
         let body = &self.buf[self.start + RECORD_PREFIX_LEN..self.start + RECORD_PREFIX_LEN + len];
         // A frame's content is never judged here; other kinds must parse.
-        let valid =
-            frame_crc(body) == crc && (body[0] == KIND_FRAME || Self::parse(body).is_some());
+        let valid = frame_crc(body) == crc && (body[0] == KIND_FRAME || parse_body(body).is_some());
         if valid {
             Probe::Valid(len)
         } else {
@@ -331,52 +330,54 @@ impl<R: Read> LogReader<R> {
                     self.end_damage();
                     let at = self.start + RECORD_PREFIX_LEN;
                     self.consume(RECORD_PREFIX_LEN + len);
-                    return Some(Self::lend(&mut self.buf[at..at + len]));
+                    return Some(lend_body(&mut self.buf[at..at + len]));
                 }
             }
         }
     }
+}
 
-    /// A valid body as a record, a frame's bytes lent.
-    fn lend(body: &mut [u8]) -> RecordRef<'_> {
-        if body[0] == KIND_FRAME {
-            let (prefix, bytes) = body.split_at_mut(BODY_PREFIX_LEN);
-            let mut time = [0u8; 8];
-            time.copy_from_slice(&prefix[1..]);
-            let host_time_us = u64::from_le_bytes(time);
-            return RecordRef::Frame {
-                host_time_us,
-                bytes,
-            };
+/// A valid non-frame body as a record (None: it does not parse, damage).
+pub(crate) fn parse_body(body: &[u8]) -> Option<Record> {
+    let (&kind, rest) = body.split_first()?;
+    let time: [u8; 8] = rest.get(..8)?.try_into().ok()?;
+    let host_time_us = u64::from_le_bytes(time);
+    let payload = rest.get(8..)?;
+    let body = match kind {
+        KIND_HEADER => RecordBody::Header(serde_json::from_slice::<LogHeader>(payload).ok()?),
+        KIND_FRAME => RecordBody::Frame(payload.to_vec()),
+        KIND_MARKER => {
+            let (&code, detail) = payload.split_first()?;
+            RecordBody::Marker {
+                kind: MarkerKind::from_code(code),
+                detail: String::from_utf8_lossy(detail).into_owned(),
+            }
         }
-        match Self::parse(body) {
-            Some(record) => RecordRef::Other(record),
-            // probe() parsed it already.
-            None => RecordRef::Other(Record {
-                host_time_us: 0,
-                body: RecordBody::Unknown(body[0]),
-            }),
-        }
-    }
+        other => RecordBody::Unknown(other),
+    };
+    Some(Record { host_time_us, body })
+}
 
-    fn parse(body: &[u8]) -> Option<Record> {
-        let (&kind, rest) = body.split_first()?;
-        let time: [u8; 8] = rest.get(..8)?.try_into().ok()?;
+/// A valid record's body as a record, a frame's bytes lent: what every
+/// reader, and the writer's checkpoint keeper, makes of a body.
+pub(crate) fn lend_body(body: &mut [u8]) -> RecordRef<'_> {
+    if body.first() == Some(&KIND_FRAME) && body.len() >= BODY_PREFIX_LEN {
+        let (prefix, bytes) = body.split_at_mut(BODY_PREFIX_LEN);
+        let mut time = [0u8; 8];
+        time.copy_from_slice(&prefix[1..]);
         let host_time_us = u64::from_le_bytes(time);
-        let payload = rest.get(8..)?;
-        let body = match kind {
-            KIND_HEADER => RecordBody::Header(serde_json::from_slice::<LogHeader>(payload).ok()?),
-            KIND_FRAME => RecordBody::Frame(payload.to_vec()),
-            KIND_MARKER => {
-                let (&code, detail) = payload.split_first()?;
-                RecordBody::Marker {
-                    kind: MarkerKind::from_code(code),
-                    detail: String::from_utf8_lossy(detail).into_owned(),
-                }
-            }
-            other => RecordBody::Unknown(other),
+        return RecordRef::Frame {
+            host_time_us,
+            bytes,
         };
-        Some(Record { host_time_us, body })
+    }
+    match parse_body(body) {
+        Some(record) => RecordRef::Other(record),
+        // probe() parsed it already.
+        None => RecordRef::Other(Record {
+            host_time_us: 0,
+            body: RecordBody::Unknown(body.first().copied().unwrap_or(0)),
+        }),
     }
 }
 

@@ -189,6 +189,18 @@ pub fn read_log(
     progress: &mut dyn FnMut(u64),
     sink: impl FnMut(LogItem<'_>),
 ) -> anyhow::Result<ReadSummary> {
+    read_log_from(path, 0, workers, progress, sink)
+}
+
+/// As [`read_log`], from the record at byte `from` of an uncompressed log
+/// file (0: the whole log, which may be compressed or standard input).
+pub fn read_log_from(
+    path: &Path,
+    from: u64,
+    workers: usize,
+    progress: &mut dyn FnMut(u64),
+    sink: impl FnMut(LogItem<'_>),
+) -> anyhow::Result<ReadSummary> {
     let mut file = match crate::files::is_stdio(path) {
         true => None,
         false => Some(crate::files::open_file(path, "log")?),
@@ -200,13 +212,19 @@ pub fn read_log(
     };
     let Some(file) = file.filter(|_| !compressed) else {
         let input = crate::files::open_log(path)?;
-        return Ok(read_stream(input.reader, progress, sink));
+        return Ok(read_stream(LogReader::new(input.reader), progress, sink));
     };
     let size = file.metadata().map_or(0, |m| m.len());
-    if workers < 2 || size < 2 * PART_BYTES {
-        return Ok(read_stream(Box::new(file), progress, sink));
+    if workers < 2 || size.saturating_sub(from) < 2 * PART_BYTES {
+        let mut reader = LogReader::new(file);
+        if from > 0 {
+            reader
+                .restart(from, u64::MAX)
+                .map_err(|e| anyhow::anyhow!("cannot read {}: {e}", path.display()))?;
+        }
+        return Ok(read_stream(reader, progress, sink));
     }
-    let cut = Cut::new(size, PART_BYTES, workers);
+    let cut = Cut::new(from..size, PART_BYTES, workers);
     Ok(read_in_parts(
         path,
         LogReader::new(Paced(file)),
@@ -222,24 +240,28 @@ const PARTS_PER_WORKER: usize = 2;
 /// How a file is cut into parts and the parts dealt to workers.
 #[derive(Debug, Clone, Copy)]
 struct Cut {
+    /// Where the first part begins (a record boundary, or 0).
+    base: u64,
     part_bytes: u64,
     parts: u64,
     workers: u64,
 }
 
 impl Cut {
-    fn new(size: u64, part_bytes: u64, workers: usize) -> Self {
+    /// Cuts the bytes `span` of a file.
+    fn new(span: Range<u64>, part_bytes: u64, workers: usize) -> Self {
         let part_bytes = part_bytes.max(1);
         Cut {
+            base: span.start,
             part_bytes,
-            parts: size.div_ceil(part_bytes),
+            parts: span.end.saturating_sub(span.start).div_ceil(part_bytes),
             workers: (workers as u64).max(1),
         }
     }
 
     /// Where part `i` begins (its end is where part `i + 1` begins).
     fn start(self, i: u64) -> u64 {
-        i.saturating_mul(self.part_bytes)
+        self.base.saturating_add(i.saturating_mul(self.part_bytes))
     }
 }
 
@@ -285,7 +307,7 @@ fn read_in_parts(
             scope.spawn(move || read_parts(path, w, cut, full_send, empty_receive));
             lanes.push((full, empty));
         }
-        let mut expected = 0;
+        let mut expected = cut.start(0);
         for i in 0..cut.parts {
             let Some((full, empty)) = lanes.get((i % cut.workers) as usize) else {
                 break;
@@ -315,13 +337,12 @@ fn read_in_parts(
 }
 
 /// Reads a log as one stream (standard input, small files, one core).
-fn read_stream(
-    input: Box<dyn Read + Send>,
+fn read_stream<R: Read>(
+    mut reader: LogReader<R>,
     progress: &mut dyn FnMut(u64),
     mut sink: impl FnMut(LogItem<'_>),
 ) -> ReadSummary {
-    let mut reader = LogReader::new(input);
-    let (mut shown, mut records) = (0u64, 0u64);
+    let (mut shown, mut records) = (reader.offset(), 0u64);
     while let Some(record) = reader.next_ref() {
         sink(match record {
             RecordRef::Frame {
@@ -408,7 +429,7 @@ mod tests {
     fn read_whole(path: &Path) -> (Vec<Seen>, Vec<ReadWarning>) {
         let mut items = Vec::new();
         let file = File::open(path).unwrap();
-        let summary = read_stream(Box::new(file), &mut |_| {}, |i| items.push(seen(i)));
+        let summary = read_stream(LogReader::new(file), &mut |_| {}, |i| items.push(seen(i)));
         (items, summary.warnings)
     }
 
@@ -421,7 +442,7 @@ mod tests {
         let size = std::fs::metadata(path).unwrap().len();
         let own = LogReader::new(Paced(File::open(path).unwrap()));
         let mut read = 0;
-        let cut = Cut::new(size, part_bytes, workers);
+        let cut = Cut::new(0..size, part_bytes, workers);
         let summary = read_in_parts(path, own, cut, &mut |n| read += n, |i| items.push(seen(i)));
         assert!(summary.io_error.is_none());
         assert_eq!(summary.bytes, size);
@@ -506,13 +527,15 @@ mod tests {
             let mut analyzer = crate::analysis::Analyzer::new();
             match part_bytes {
                 None => {
-                    read_stream(Box::new(File::open(&path).unwrap()), &mut |_| {}, |i| {
-                        analyzer.add_item(i)
-                    });
+                    read_stream(
+                        LogReader::new(File::open(&path).unwrap()),
+                        &mut |_| {},
+                        |i| analyzer.add_item(i),
+                    );
                 }
                 Some(bytes) => {
                     let own = LogReader::new(Paced(File::open(&path).unwrap()));
-                    let cut = Cut::new(size, bytes, 2);
+                    let cut = Cut::new(0..size, bytes, 2);
                     read_in_parts(&path, own, cut, &mut |_| {}, |i| analyzer.add_item(i));
                 }
             }

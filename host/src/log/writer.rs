@@ -13,7 +13,9 @@ use gleaner_protocol::frame_crc;
 
 use super::format::{
     LogHeader, MarkerKind, KIND_FRAME, KIND_HEADER, KIND_MARKER, MAGIC, MAX_BODY_LEN,
+    RECORD_PREFIX_LEN,
 };
+use crate::analysis::checkpoint::{Keeper, CHECKPOINT_EVERY_BYTES};
 
 /// Records gathered before they are handed to the operating system anyway.
 const PENDING_LIMIT: usize = 64 * 1024;
@@ -47,6 +49,15 @@ impl LogStore for Vec<u8> {
     }
 }
 
+/// Follows every record a writer appends, and may have records of its own
+/// appended after one: the analysis checkpoints ([`Keeper`]).
+pub trait Follower: Send {
+    /// Sees one record as it goes into the file: length, CRC and body.
+    fn follow(&mut self, record: &[u8]);
+    /// Records due now: their kind, host time and payloads.
+    fn due(&mut self) -> Option<(u8, u64, Vec<Vec<u8>>)>;
+}
+
 /// The disk (or the user's quota) holding a log is full: what was handed to
 /// the operating system before is intact.
 #[derive(Debug, thiserror::Error)]
@@ -68,6 +79,8 @@ pub struct LogWriter<W: Write = File> {
     /// Bytes and records handed over whole: the store holds exactly these.
     kept_bytes: u64,
     kept_records: u64,
+    /// Follows what is written (none after a write failed part-way).
+    follower: Option<Box<dyn Follower>>,
 }
 
 fn explain(err: std::io::Error, path: &Path) -> anyhow::Error {
@@ -143,7 +156,18 @@ impl LogWriter<File> {
             records,
             kept_bytes: len,
             kept_records: records,
+            follower: Keeper::picking_up(path, len, CHECKPOINT_EVERY_BYTES)
+                .map(|k| Box::new(k) as Box<dyn Follower>),
         })
+    }
+}
+
+impl LogWriter<Vec<u8>> {
+    /// The bytes written since the last call, the writer going on: for a log
+    /// generated in memory and streamed.
+    pub fn take_written(&mut self) -> Result<Vec<u8>> {
+        self.flush()?;
+        Ok(std::mem::take(&mut self.out))
     }
 }
 
@@ -160,6 +184,8 @@ impl<W: LogStore> LogWriter<W> {
     /// readable to its end. Returns the records given up.
     pub fn roll_back(&mut self) -> Result<u64> {
         let given_up = self.records.saturating_sub(self.kept_records);
+        // What the follower saw is no longer what the file holds.
+        self.follower = None;
         self.pending.clear();
         self.bytes = self.kept_bytes;
         self.records = self.kept_records;
@@ -186,6 +212,7 @@ impl<W: Write> LogWriter<W> {
             records: 0,
             kept_bytes: 0,
             kept_records: 0,
+            follower: Some(Box::new(Keeper::new())),
         };
         let json = serde_json::to_vec(header)?;
         writer.append(KIND_HEADER, super::now_us(), &[&json])?;
@@ -209,10 +236,14 @@ impl<W: Write> LogWriter<W> {
         let len = self.scratch.len().min(MAX_BODY_LEN);
         self.scratch.truncate(len);
         let crc = frame_crc(&self.scratch);
+        let at = self.pending.len();
         self.pending.extend_from_slice(&(len as u32).to_le_bytes());
         self.pending.extend_from_slice(&crc.to_le_bytes());
         self.pending.extend_from_slice(&self.scratch);
-        self.bytes += 8 + len as u64;
+        if let Some(follower) = self.follower.as_mut() {
+            follower.follow(&self.pending[at..]);
+        }
+        self.bytes += (RECORD_PREFIX_LEN + len) as u64;
         self.records += 1;
         if self.pending.len() >= PENDING_LIMIT {
             self.flush()?;
@@ -220,9 +251,28 @@ impl<W: Write> LogWriter<W> {
         Ok(())
     }
 
+    /// Appends what the follower has due (a checkpoint), if anything.
+    fn append_due(&mut self) -> Result<()> {
+        let Some((kind, host_time_us, payloads)) = self.follower.as_mut().and_then(|f| f.due())
+        else {
+            return Ok(());
+        };
+        for payload in payloads {
+            self.append(kind, host_time_us, &[&payload])?;
+        }
+        Ok(())
+    }
+
+    /// Follows what is written with `follower` instead (none: nothing
+    /// follows, so the log gets no checkpoints).
+    pub fn follow_with(&mut self, follower: Option<Box<dyn Follower>>) {
+        self.follower = follower;
+    }
+
     /// Appends a received frame (without its delimiter).
     pub fn append_frame(&mut self, host_time_us: u64, frame: &[u8]) -> Result<()> {
-        self.append(KIND_FRAME, host_time_us, &[frame])
+        self.append(KIND_FRAME, host_time_us, &[frame])?;
+        self.append_due()
     }
 
     /// Appends a marker.
@@ -236,7 +286,8 @@ impl<W: Write> LogWriter<W> {
             KIND_MARKER,
             host_time_us,
             &[&[kind.code()], detail.as_bytes()],
-        )
+        )?;
+        self.append_due()
     }
 
     /// Hands buffered records to the operating system.

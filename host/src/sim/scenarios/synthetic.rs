@@ -166,6 +166,15 @@ impl SyntheticLog {
         log
     }
 
+    /// The same log without the analysis checkpoints a recording leaves
+    /// (for measuring the analysis alone).
+    pub fn without_checkpoints(mut self) -> Self {
+        if let Some(writer) = self.writer.as_mut() {
+            writer.follow_with(None);
+        }
+        self
+    }
+
     fn emit_hello(&mut self) {
         let hello = Uplink {
             seq: 0,
@@ -193,48 +202,23 @@ impl SyntheticLog {
     }
 
     fn refill(&mut self) -> bool {
-        self.buf.clear();
         self.pos = 0;
-        if let Some(w) = self.writer.take() {
-            if let Ok(bytes) = w.into_inner() {
-                self.buf = bytes;
-            }
-        }
-        if self.next_t >= self.seconds {
-            return !self.buf.is_empty();
-        }
         // Generate about a thousand reports per refill.
-        let mut out = Vec::with_capacity(96 * 1024);
-        std::mem::swap(&mut out, &mut self.buf);
-        let mut frame = [0u8; MAX_UPLINK_FRAME_LEN];
         for _ in 0..1000 {
             if self.next_t >= self.seconds {
                 break;
             }
-            let t = self.next_t;
-            for m in messages_at(t, self.interval_s, &mut self.seq) {
-                if let Ok(bytes) = encode_frame(&m, &mut frame) {
-                    let body = &bytes[..bytes.len() - 1];
-                    let host = self.start_us + m.uptime_ms * 1000;
-                    append_record(&mut out, host, body);
-                }
+            for m in messages_at(self.next_t, self.interval_s, &mut self.seq) {
+                self.write_message(&m, self.start_us + m.uptime_ms * 1000);
             }
             self.next_t += self.interval_s;
         }
-        self.buf = out;
+        self.buf = match self.writer.as_mut() {
+            Some(writer) => writer.take_written().unwrap_or_default(),
+            None => Vec::new(),
+        };
         !self.buf.is_empty()
     }
-}
-
-/// Appends one frame record in the log layout.
-fn append_record(out: &mut Vec<u8>, host_time_us: u64, frame: &[u8]) {
-    let mut body = Vec::with_capacity(9 + frame.len());
-    body.push(2u8);
-    body.extend_from_slice(&host_time_us.to_le_bytes());
-    body.extend_from_slice(frame);
-    out.extend_from_slice(&(body.len() as u32).to_le_bytes());
-    out.extend_from_slice(&gleaner_protocol::frame_crc(&body).to_le_bytes());
-    out.extend_from_slice(&body);
 }
 
 impl Read for SyntheticLog {
