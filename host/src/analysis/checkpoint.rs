@@ -21,11 +21,10 @@ use crc32fast::Hasher;
 use gleaner_protocol::frame_crc;
 
 use super::Analyzer;
-use crate::link::ReadAhead;
 use crate::log::split::LogItem;
 use crate::log::{
-    lend_body, parse_body, Follower, LogReader, RecordRef, BODY_PREFIX_LEN, KIND_CHECKPOINT,
-    KIND_FRAME, MAGIC, MAX_BODY_LEN, RECORD_PREFIX_LEN,
+    lend_body, parse_body, Follower, LogReader, BODY_PREFIX_LEN, KIND_CHECKPOINT, KIND_FRAME,
+    MAGIC, MAX_BODY_LEN, RECORD_PREFIX_LEN,
 };
 
 /// Bytes of log between two checkpoints: a report reads at most about this
@@ -193,17 +192,8 @@ impl Follower for Keeper {
         self.body.clear();
         self.body.extend_from_slice(body);
         // Exactly what a reader hands the analyzer for this body.
-        let item = match lend_body(&mut self.body) {
-            RecordRef::Frame {
-                host_time_us,
-                bytes,
-            } => LogItem::Frame {
-                host_time_us,
-                frame: ReadAhead::open(bytes),
-            },
-            RecordRef::Other(record) => LogItem::Other(record),
-        };
-        self.analyzer.add_item(item);
+        self.analyzer
+            .add_item(LogItem::from(lend_body(&mut self.body)));
     }
 
     fn due(&mut self) -> Option<(u8, u64, Vec<Vec<u8>>)> {
@@ -458,6 +448,17 @@ mod tests {
         copied
     }
 
+    /// Checkpoint spacing in the tests: several per test log.
+    const EVERY: u64 = 8 * 1024;
+
+    /// The test log `name` written again into `dir`, with a checkpoint
+    /// every [`EVERY`] bytes.
+    fn with_checkpoints(dir: &Path, name: &str) -> PathBuf {
+        let path = dir.join(format!("{name}.gleanlog"));
+        rewrite(File::open(fixture(name)).unwrap(), &path, EVERY, None);
+        path
+    }
+
     fn append<W: crate::log::LogStore>(writer: &mut LogWriter<W>, record: Record) {
         match record.body {
             RecordBody::Frame(frame) => writer.append_frame(record.host_time_us, &frame),
@@ -517,14 +518,13 @@ mod tests {
     fn a_report_from_a_checkpoint_is_the_report_of_every_record() {
         let dir = tempfile::tempdir().unwrap();
         for name in FIXTURES {
-            let path = dir.path().join(format!("{name}.gleanlog"));
-            rewrite(File::open(fixture(name)).unwrap(), &path, 8 * 1024, None);
+            let path = with_checkpoints(dir.path(), name);
             let (parts, checkpoints) = checkpoints_in(&path);
             assert!(checkpoints >= 3, "{name}: {checkpoints} checkpoints");
             let resumed = resume(&path, 2).expect("the last checkpoint is found and trusted");
             let size = std::fs::metadata(&path).unwrap().len();
             assert!(
-                size - resumed.offset < 8 * 1024 + 2 * MAX_BODY_LEN as u64,
+                size - resumed.offset < EVERY + 2 * MAX_BODY_LEN as u64,
                 "{name}"
             );
             let quick = report(&path, true);
@@ -551,13 +551,7 @@ mod tests {
     #[test]
     fn a_byte_changed_before_the_checkpoint_means_every_record_is_read() {
         let dir = tempfile::tempdir().unwrap();
-        let path = dir.path().join("damaged.gleanlog");
-        rewrite(
-            File::open(fixture(FIXTURES[2])).unwrap(),
-            &path,
-            8 * 1024,
-            None,
-        );
+        let path = with_checkpoints(dir.path(), FIXTURES[2]);
         flip_byte(&path, 4_000);
         assert!(resume(&path, 2).is_none());
         let quick = report(&path, true);
@@ -572,13 +566,7 @@ mod tests {
     #[test]
     fn damage_or_a_torn_tail_after_the_checkpoint_is_read_as_ever() {
         let dir = tempfile::tempdir().unwrap();
-        let path = dir.path().join("tail.gleanlog");
-        rewrite(
-            File::open(fixture(FIXTURES[2])).unwrap(),
-            &path,
-            8 * 1024,
-            None,
-        );
+        let path = with_checkpoints(dir.path(), FIXTURES[2]);
         let offset = resume(&path, 2).unwrap().offset;
         flip_byte(&path, offset + 20);
         let size = std::fs::metadata(&path).unwrap().len();
@@ -604,11 +592,11 @@ mod tests {
         let dir = tempfile::tempdir().unwrap();
         let path = dir.path().join("gone-on.gleanlog");
         let source = fixture(FIXTURES[1]);
-        let copied = rewrite(File::open(&source).unwrap(), &path, 8 * 1024, Some(300));
+        let copied = rewrite(File::open(&source).unwrap(), &path, EVERY, Some(300));
         let first_part = std::fs::metadata(&path).unwrap().len();
         let first_checkpoint = resume(&path, 1).unwrap().offset;
         let mut writer = LogWriter::append_to(&path).unwrap();
-        let keeper = Keeper::picking_up(&path, first_part, 8 * 1024).unwrap();
+        let keeper = Keeper::picking_up(&path, first_part, EVERY).unwrap();
         writer.follow_with(Some(Box::new(keeper)));
         for record in LogReader::new(File::open(&source).unwrap()).skip(1 + copied) {
             append(&mut writer, record);
@@ -622,13 +610,7 @@ mod tests {
     #[test]
     fn a_compressed_log_is_read_whole() {
         let dir = tempfile::tempdir().unwrap();
-        let path = dir.path().join("plain.gleanlog");
-        rewrite(
-            File::open(fixture(FIXTURES[0])).unwrap(),
-            &path,
-            8 * 1024,
-            None,
-        );
+        let path = with_checkpoints(dir.path(), FIXTURES[0]);
         let gz = dir.path().join("packed.gleanlog.gz");
         let mut encoder =
             flate2::write::GzEncoder::new(File::create(&gz).unwrap(), flate2::Compression::fast());

@@ -47,6 +47,22 @@ pub enum LogItem<'a> {
     Other(Record),
 }
 
+impl<'a> From<RecordRef<'a>> for LogItem<'a> {
+    /// A record as the analysis takes it: a frame opened and read in place.
+    fn from(record: RecordRef<'a>) -> Self {
+        match record {
+            RecordRef::Frame {
+                host_time_us,
+                bytes,
+            } => LogItem::Frame {
+                host_time_us,
+                frame: ReadAhead::open(bytes),
+            },
+            RecordRef::Other(record) => LogItem::Other(record),
+        }
+    }
+}
+
 /// What reading a log noticed besides its records.
 #[derive(Debug, Default)]
 pub struct ReadSummary {
@@ -344,16 +360,7 @@ fn read_stream<R: Read>(
 ) -> ReadSummary {
     let (mut shown, mut records) = (reader.offset(), 0u64);
     while let Some(record) = reader.next_ref() {
-        sink(match record {
-            RecordRef::Frame {
-                host_time_us,
-                bytes,
-            } => LogItem::Frame {
-                host_time_us,
-                frame: ReadAhead::open(bytes),
-            },
-            RecordRef::Other(record) => LogItem::Other(record),
-        });
+        sink(LogItem::from(record));
         records += 1;
         if records.is_multiple_of(crate::progress::RECORDS_PER_UPDATE) {
             progress(reader.offset() - shown);
