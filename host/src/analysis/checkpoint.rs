@@ -14,11 +14,10 @@
 //! either way, only the time differs.
 
 use std::fs::File;
-use std::io::{BufReader, Read, Seek, SeekFrom};
+use std::io::{Read, Seek, SeekFrom};
 use std::path::Path;
 
 use crc32fast::Hasher;
-use gleaner_protocol::frame_crc;
 
 use super::Analyzer;
 use crate::log::split::LogItem;
@@ -318,43 +317,21 @@ fn last_checkpoint(file: &File, start: u64) -> Option<Found> {
 
 /// Reads whole, valid records from `from` (a record boundary) on, handing
 /// each (prefix and body) and its offset to `each`, up to the end of the
-/// file or the first bytes that are not a whole, valid record; returns
-/// where it stopped.
+/// file or the first damage; returns where it stopped.
 fn walk(file: &File, from: u64, mut each: impl FnMut(u64, &[u8])) -> std::io::Result<u64> {
-    let mut input = BufReader::with_capacity(256 * 1024, file);
-    input.seek(SeekFrom::Start(from))?;
-    let mut record = vec![0u8; RECORD_PREFIX_LEN + MAX_BODY_LEN];
+    let mut reader = LogReader::new(file);
+    reader.restart(from, u64::MAX)?;
     let mut at = from;
-    loop {
-        let Some(prefix) = record.get_mut(..RECORD_PREFIX_LEN) else {
-            return Ok(at);
-        };
-        if !read_whole(&mut input, prefix)? {
-            return Ok(at);
+    while let Some((record_at, record)) = reader.next_whole() {
+        if record_at != at {
+            return Ok(at); // damage was skipped before this record
         }
-        let word =
-            |i: usize| u32::from_le_bytes([prefix[i], prefix[i + 1], prefix[i + 2], prefix[i + 3]]);
-        let (len, crc) = (word(0) as usize, word(4));
-        if !(BODY_PREFIX_LEN..=MAX_BODY_LEN).contains(&len) {
-            return Ok(at);
-        }
-        let whole = &mut record[..RECORD_PREFIX_LEN + len];
-        if !read_whole(&mut input, &mut whole[RECORD_PREFIX_LEN..])?
-            || frame_crc(&whole[RECORD_PREFIX_LEN..]) != crc
-        {
-            return Ok(at);
-        }
-        each(at, whole);
-        at += whole.len() as u64;
+        each(at, record);
+        at += record.len() as u64;
     }
-}
-
-/// Fills `buf`; false when the input ends first.
-fn read_whole(input: &mut impl Read, buf: &mut [u8]) -> std::io::Result<bool> {
-    match input.read_exact(buf) {
-        Ok(()) => Ok(true),
-        Err(e) if e.kind() == std::io::ErrorKind::UnexpectedEof => Ok(false),
-        Err(e) => Err(e),
+    match reader.take_io_error() {
+        Some(error) => Err(error),
+        None => Ok(at),
     }
 }
 

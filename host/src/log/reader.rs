@@ -295,6 +295,22 @@ impl<R: Read> LogReader<R> {
     /// The next record, a frame's bytes lent in place (no copy): what a
     /// reader that decodes frames should call.
     pub fn next_ref(&mut self) -> Option<RecordRef<'_>> {
+        let (at, len) = self.next_valid()?;
+        let body = at + RECORD_PREFIX_LEN;
+        Some(lend_body(&mut self.buf[body..body + len]))
+    }
+
+    /// The next valid record whole, as it lies in the file (length, CRC and
+    /// body), with its offset: for a reader that hashes or copies records.
+    pub(crate) fn next_whole(&mut self) -> Option<(u64, &[u8])> {
+        let (at, len) = self.next_valid()?;
+        let whole = RECORD_PREFIX_LEN + len;
+        Some((self.offset - whole as u64, &self.buf[at..at + whole]))
+    }
+
+    /// Moves past the next valid record, skipping and noting damage; where
+    /// it lies in the buffer and its body's length.
+    fn next_valid(&mut self) -> Option<(usize, usize)> {
         if !self.checked_magic && !self.check_magic() {
             return None;
         }
@@ -328,9 +344,9 @@ impl<R: Read> LogReader<R> {
                 }
                 Probe::Valid(len) => {
                     self.end_damage();
-                    let at = self.start + RECORD_PREFIX_LEN;
+                    let at = self.start;
                     self.consume(RECORD_PREFIX_LEN + len);
-                    return Some(lend_body(&mut self.buf[at..at + len]));
+                    return Some((at, len));
                 }
             }
         }
